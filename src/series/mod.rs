@@ -1,1 +1,6 @@
-//! Placeholder: being written.
+//! InSAR geometry and time-series analysis (being written).
+pub mod decompose;
+pub mod fit;
+pub mod los;
+pub mod project;
+pub mod stats;
