@@ -1,1 +1,110 @@
-fn main() {}
+//! The `plinth` binary: parse arguments, dispatch, print errors once, set the exit code.
+
+use std::process::ExitCode;
+
+use clap::{CommandFactory, Parser};
+use plinth::cli::{Cli, Command};
+use plinth::error::InputError;
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    if let Some(n) = cli.jobs {
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(n.max(1))
+            .build_global()
+            .ok();
+    }
+    match dispatch(&cli) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            if let Some(ie) = e.downcast_ref::<InputError>() {
+                eprintln!("error: {ie}");
+                ExitCode::from(2)
+            } else {
+                eprintln!("error: {e:#}");
+                ExitCode::from(1)
+            }
+        }
+    }
+}
+
+fn dispatch(cli: &Cli) -> anyhow::Result<()> {
+    match &cli.command {
+        Command::Assess {
+            portfolio,
+            out,
+            previous,
+            no_reports,
+            shard,
+        } => {
+            let opts = plinth::run::RunOptions {
+                out: Some(out.clone()),
+                previous: previous.clone(),
+                no_reports: *no_reports,
+                jobs: cli.jobs,
+                progress: plinth::cli::progress_allowed(cli.quiet),
+                shard: *shard,
+            };
+            let a = plinth::run::analyse(portfolio, &opts)?;
+            plinth::run::write(&a, &opts, out)?;
+            if !cli.quiet {
+                print_summary(&a);
+                eprintln!("results written to {}", out.display());
+            }
+            Ok(())
+        }
+        Command::Check { portfolio } => {
+            let opts = plinth::run::RunOptions::default();
+            let a = plinth::run::analyse(portfolio, &opts)?;
+            if !cli.quiet {
+                print_summary(&a);
+                eprintln!("check passed: nothing was written");
+            }
+            Ok(())
+        }
+        Command::Init { dir } => plinth::init::scaffold(dir),
+        Command::Completions { shell } => {
+            let mut cmd = Cli::command();
+            clap_complete::generate(*shell, &mut cmd, "plinth", &mut std::io::stdout());
+            Ok(())
+        }
+        Command::Man => {
+            let man = clap_mangen::Man::new(Cli::command());
+            man.render(&mut std::io::stdout())?;
+            Ok(())
+        }
+    }
+}
+
+fn print_summary(a: &plinth::run::Analysis) {
+    let p = &a.results.portfolio;
+    let c = &p.coverage;
+    eprintln!("portfolio: {}", p.name);
+    eprintln!(
+        "window: {} to {}   analysis CRS: {}",
+        p.window_start.as_deref().unwrap_or("?"),
+        p.window_end.as_deref().unwrap_or("?"),
+        p.analysis_crs
+    );
+    eprintln!("structures: {}", c.structures);
+    for (k, v) in &c.by_status {
+        eprintln!("  {k}: {v}");
+    }
+    for (k, v) in &c.points_read {
+        eprintln!("points read from {k}: {v}");
+    }
+    eprintln!("points kept on structures: {}", c.points_kept);
+    eprintln!(
+        "points out of reach of every structure: {}",
+        c.points_out_of_reach
+    );
+    if !c.points_rejected.is_empty() {
+        eprintln!("points rejected:");
+        for (k, v) in &c.points_rejected {
+            eprintln!("  {k}: {v}");
+        }
+    }
+    for line in a.warnings.summary(3) {
+        eprintln!("{line}");
+    }
+}

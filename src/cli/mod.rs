@@ -1,0 +1,86 @@
+//! Command-line interface: clap definitions (the doc comments are the help text), resolution of
+//! arguments into a [`crate::run::RunOptions`], and the messages printed to the terminal.
+//!
+//! Exit codes (also in README.md and the man page):
+//! - 0: success.
+//! - 1: the run failed after reading its inputs (e.g. an output could not be written); the
+//!   output folder keeps its previous contents.
+//! - 2: bad input or usage: a file, line/feature or key is named with a hint; nothing was written.
+
+use std::io::IsTerminal;
+use std::path::PathBuf;
+
+use clap::{Parser, Subcommand};
+
+/// Plinth turns InSAR measurement points into a movement and damage verdict per structure.
+#[derive(Debug, Parser)]
+#[command(name = "plinth", version, about, long_about = None, after_help = EXIT_CODES)]
+pub struct Cli {
+    /// The command.
+    #[command(subcommand)]
+    pub command: Command,
+    /// Print nothing but errors.
+    #[arg(long, short, global = true)]
+    pub quiet: bool,
+    /// Worker threads (default: all cores).
+    #[arg(long, short, global = true, value_name = "N")]
+    pub jobs: Option<usize>,
+}
+
+/// Exit codes shown in `--help`.
+pub const EXIT_CODES: &str = "Exit codes: 0 success; 1 run failed after reading inputs (previous outputs kept); 2 bad input or usage (nothing written).";
+
+/// Subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Assess every structure of a portfolio and write results (and reports) to a folder.
+    Assess {
+        /// The portfolio file (TOML).
+        portfolio: PathBuf,
+        /// Output folder; replaced as a whole only when the run succeeds.
+        #[arg(long, short, value_name = "DIR")]
+        out: PathBuf,
+        /// Output folder of an earlier run to compare against (what changed since then).
+        #[arg(long, value_name = "OLD_DIR")]
+        previous: Option<PathBuf>,
+        /// Skip PDF rendering (analysis only).
+        #[arg(long)]
+        no_reports: bool,
+        /// Run only shard K of N (structures split deterministically by id), e.g. 2/8.
+        #[arg(long, value_name = "K/N", value_parser = parse_shard)]
+        shard: Option<(usize, usize)>,
+    },
+    /// Validate a portfolio and its data and print a coverage summary; writes nothing.
+    Check {
+        /// The portfolio file (TOML).
+        portfolio: PathBuf,
+    },
+    /// Write a commented portfolio file and folder layout for a new job.
+    Init {
+        /// Folder to create (must not exist or be empty).
+        dir: PathBuf,
+    },
+    /// Print shell completions to stdout.
+    Completions {
+        /// Shell.
+        shell: clap_complete::Shell,
+    },
+    /// Print the man page (roff) to stdout.
+    Man,
+}
+
+/// Parse `K/N` with 1 ≤ K ≤ N.
+pub fn parse_shard(s: &str) -> Result<(usize, usize), String> {
+    let (k, n) = s.split_once('/').ok_or("expected K/N, e.g. 2/8")?;
+    let k: usize = k.trim().parse().map_err(|_| "K must be a whole number")?;
+    let n: usize = n.trim().parse().map_err(|_| "N must be a whole number")?;
+    if n == 0 || k == 0 || k > n {
+        return Err("need 1 <= K <= N".into());
+    }
+    Ok((k, n))
+}
+
+/// Whether progress bars may be drawn.
+pub fn progress_allowed(quiet: bool) -> bool {
+    !quiet && std::io::stderr().is_terminal()
+}

@@ -1,0 +1,534 @@
+//! Footprints GeoJSON reader: a FeatureCollection of Polygon/MultiPolygon structures.
+//!
+//! Owns: parsing, validating every feature (id present and unique, rings closed with ≥ 4
+//! positions, non-zero area, no self-intersection, coordinates in range for geographic CRSs),
+//! reading the documented properties with recorded fallbacks. Returns footprints in the
+//! footprint file's own CRS; reprojection happens in `ingest::load`.
+//! It does not associate points or compute metrics.
+
+use std::path::Path;
+
+use geo::{Area, LineString, MultiPolygon, Polygon, Validation};
+use serde_json::Value;
+
+use crate::coords::{GeographicCheck, check_geographic};
+use crate::error::{InputError, Warnings};
+
+/// One structure read from the footprints file (coordinates still in the file's CRS).
+#[derive(Debug, Clone)]
+pub struct RawStructure {
+    /// 0-based feature index in the file.
+    pub feature_index: usize,
+    /// Structure id (from the id property; numbers are written as text).
+    pub id: String,
+    /// Display name (`name` property; falls back to the id).
+    pub name: String,
+    /// Height to eaves, m (`height_m`; falls back to the portfolio default).
+    pub height_m: f64,
+    /// `masonry` | `frame` (`structure`; falls back to the portfolio default).
+    pub structure_type: String,
+    /// Optional criteria set name (`criteria`).
+    pub criteria: Option<String>,
+    /// Footprint in the file's CRS.
+    pub footprint: MultiPolygon<f64>,
+    /// Which properties fell back to defaults, e.g. `height_m = 6 (default)`.
+    pub fallbacks: Vec<String>,
+}
+
+/// Defaults for missing optional properties.
+#[derive(Debug, Clone)]
+pub struct FootprintDefaults {
+    /// Height used when `height_m` is absent, m.
+    pub height_m: f64,
+    /// Structure type used when `structure` is absent.
+    pub structure_type: String,
+}
+
+fn feature_loc(i: usize, id: Option<&str>) -> String {
+    match id {
+        Some(id) => format!("feature {} (id \"{}\")", i, id),
+        None => format!("feature {}", i),
+    }
+}
+
+fn parse_ring(
+    v: &Value,
+    file: &Path,
+    loc: &str,
+    geographic: bool,
+    warnings: &mut Warnings,
+    warned_3d: &mut bool,
+) -> Result<LineString<f64>, InputError> {
+    let arr = v.as_array().ok_or_else(|| {
+        InputError::new(
+            file,
+            loc,
+            "a polygon ring is not an array of positions",
+            "each ring is [[x, y], [x, y], ...]",
+        )
+    })?;
+    let mut coords = Vec::with_capacity(arr.len());
+    for (j, pos) in arr.iter().enumerate() {
+        let p = pos.as_array().ok_or_else(|| {
+            InputError::new(
+                file,
+                loc,
+                format!("position {j} is not an array"),
+                "positions are [x, y] or [x, y, z]",
+            )
+        })?;
+        if p.len() < 2 {
+            return Err(InputError::new(
+                file,
+                loc,
+                format!("position {j} has fewer than 2 coordinates"),
+                "positions are [x, y] or [x, y, z]",
+            ));
+        }
+        if p.len() > 2 && !*warned_3d {
+            *warned_3d = true;
+            warnings.push(
+                "coordinates_3d",
+                format!(
+                    "{}: {loc}: 3-D coordinates found; the third value (height) is ignored",
+                    file.display()
+                ),
+            );
+        }
+        let x = p[0].as_f64();
+        let y = p[1].as_f64();
+        let (Some(x), Some(y)) = (x, y) else {
+            return Err(InputError::new(
+                file,
+                loc,
+                format!("position {j} has a non-numeric coordinate"),
+                "coordinates must be JSON numbers",
+            ));
+        };
+        if !x.is_finite() || !y.is_finite() {
+            return Err(InputError::new(
+                file,
+                loc,
+                format!("position {j} is not finite"),
+                "coordinates must be finite numbers",
+            ));
+        }
+        if geographic {
+            match check_geographic(x, y) {
+                GeographicCheck::Plausible => {}
+                GeographicCheck::LooksSwapped => {
+                    return Err(InputError::new(
+                        file,
+                        loc,
+                        format!(
+                            "position {j} ({x}, {y}) is not a valid longitude/latitude: latitude beyond ±90°"
+                        ),
+                        "the axes look swapped: GeoJSON positions are [longitude, latitude]",
+                    ));
+                }
+                GeographicCheck::LooksProjected => {
+                    return Err(InputError::new(
+                        file,
+                        loc,
+                        format!(
+                            "position {j} ({x}, {y}) is out of range for longitude/latitude degrees"
+                        ),
+                        "these look like projected metres: set [structures] crs = \"EPSG:<code>\" of the file",
+                    ));
+                }
+            }
+        }
+        coords.push(geo::Coord { x, y });
+    }
+    if coords.len() < 4 {
+        return Err(InputError::new(
+            file,
+            loc,
+            format!(
+                "a ring has {} positions; at least 4 are needed (a closed triangle)",
+                coords.len()
+            ),
+            "remove empty or degenerate rings",
+        ));
+    }
+    if coords.first() != coords.last() {
+        return Err(InputError::new(
+            file,
+            loc,
+            "a ring is not closed (its first and last positions differ)",
+            "repeat the first position at the end of the ring (RFC 7946 §3.1.6)",
+        ));
+    }
+    Ok(LineString::new(coords))
+}
+
+fn parse_polygon(
+    v: &Value,
+    file: &Path,
+    loc: &str,
+    geographic: bool,
+    warnings: &mut Warnings,
+    warned_3d: &mut bool,
+) -> Result<Polygon<f64>, InputError> {
+    let rings = v.as_array().ok_or_else(|| {
+        InputError::new(
+            file,
+            loc,
+            "polygon coordinates are not an array of rings",
+            "a Polygon is [[ring], [hole], ...]",
+        )
+    })?;
+    if rings.is_empty() {
+        return Err(InputError::new(
+            file,
+            loc,
+            "the polygon has no rings (empty geometry)",
+            "remove the feature or give it a footprint",
+        ));
+    }
+    let mut parsed = Vec::with_capacity(rings.len());
+    for r in rings {
+        parsed.push(parse_ring(r, file, loc, geographic, warnings, warned_3d)?);
+    }
+    let exterior = parsed.remove(0);
+    Ok(Polygon::new(exterior, parsed))
+}
+
+/// Read and validate a footprints file.
+pub fn read_footprints(
+    path: &Path,
+    id_property: &str,
+    geographic: bool,
+    defaults: &FootprintDefaults,
+    warnings: &mut Warnings,
+) -> Result<Vec<RawStructure>, InputError> {
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        InputError::new(
+            path,
+            "",
+            format!("cannot read the footprints file: {e}"),
+            "check [structures] path in the portfolio file",
+        )
+    })?;
+    parse_footprints(&text, path, id_property, geographic, defaults, warnings)
+}
+
+/// Parse footprints GeoJSON text (see [`read_footprints`]).
+pub fn parse_footprints(
+    text: &str,
+    path: &Path,
+    id_property: &str,
+    geographic: bool,
+    defaults: &FootprintDefaults,
+    warnings: &mut Warnings,
+) -> Result<Vec<RawStructure>, InputError> {
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
+    let root: Value = serde_json::from_str(text).map_err(|e| {
+        InputError::new(
+            path,
+            format!("line {}, column {}", e.line(), e.column()),
+            format!("not valid JSON: {e}"),
+            "the footprints file must be GeoJSON (RFC 7946); check it with a GIS or a JSON validator",
+        )
+    })?;
+    if root.get("type").and_then(Value::as_str) != Some("FeatureCollection") {
+        return Err(InputError::new(
+            path,
+            "top level",
+            "not a GeoJSON FeatureCollection",
+            "the file must be {\"type\": \"FeatureCollection\", \"features\": [...]}",
+        ));
+    }
+    let features = root
+        .get("features")
+        .and_then(Value::as_array)
+        .ok_or_else(|| {
+            InputError::new(
+                path,
+                "top level",
+                "the FeatureCollection has no \"features\" array",
+                "add \"features\": [...]",
+            )
+        })?;
+    if features.is_empty() {
+        return Err(InputError::new(
+            path,
+            "top level",
+            "the FeatureCollection has no features",
+            "a portfolio needs at least one structure",
+        ));
+    }
+    let mut out: Vec<RawStructure> = Vec::with_capacity(features.len());
+    let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
+    let mut warned_3d = false;
+    for (i, f) in features.iter().enumerate() {
+        let props = f.get("properties").and_then(Value::as_object);
+        let id = props
+            .and_then(|p| p.get(id_property))
+            .and_then(|v| match v {
+                Value::String(s) if !s.trim().is_empty() => Some(s.trim().to_string()),
+                Value::Number(n) => Some(n.to_string()),
+                _ => None,
+            });
+        let Some(id) = id else {
+            return Err(InputError::new(
+                path,
+                feature_loc(i, None),
+                format!("the id property `{id_property}` is missing or empty"),
+                format!(
+                    "give every feature a unique \"{id_property}\" property, or set [structures] id_property"
+                ),
+            ));
+        };
+        let loc = feature_loc(i, Some(&id));
+        if let Some(first) = seen.get(&id) {
+            return Err(InputError::new(
+                path,
+                loc,
+                format!("duplicate id \"{id}\" (also feature {first})"),
+                "structure ids must be unique",
+            ));
+        }
+        seen.insert(id.clone(), i);
+        let geom = f.get("geometry").filter(|g| !g.is_null()).ok_or_else(|| {
+            InputError::new(
+                path,
+                &loc,
+                "the feature has no geometry",
+                "give it a Polygon or MultiPolygon footprint",
+            )
+        })?;
+        let gtype = geom.get("type").and_then(Value::as_str).unwrap_or("");
+        let coords = geom.get("coordinates").ok_or_else(|| {
+            InputError::new(
+                path,
+                &loc,
+                "the geometry has no coordinates",
+                "a Polygon needs \"coordinates\"",
+            )
+        })?;
+        let footprint = match gtype {
+            "Polygon" => MultiPolygon::new(vec![parse_polygon(
+                coords,
+                path,
+                &loc,
+                geographic,
+                warnings,
+                &mut warned_3d,
+            )?]),
+            "MultiPolygon" => {
+                let parts = coords.as_array().ok_or_else(|| {
+                    InputError::new(
+                        path,
+                        &loc,
+                        "MultiPolygon coordinates are not an array",
+                        "a MultiPolygon is [[[ring]], ...]",
+                    )
+                })?;
+                if parts.is_empty() {
+                    return Err(InputError::new(
+                        path,
+                        &loc,
+                        "the MultiPolygon is empty",
+                        "remove the feature or give it a footprint",
+                    ));
+                }
+                let mut polys = Vec::new();
+                for p in parts {
+                    polys.push(parse_polygon(
+                        p,
+                        path,
+                        &loc,
+                        geographic,
+                        warnings,
+                        &mut warned_3d,
+                    )?);
+                }
+                MultiPolygon::new(polys)
+            }
+            other => {
+                return Err(InputError::new(
+                    path,
+                    &loc,
+                    format!("geometry type `{other}` is not a footprint"),
+                    "structures must be Polygon or MultiPolygon",
+                ));
+            }
+        };
+        if footprint.unsigned_area() <= 0.0 {
+            return Err(InputError::new(
+                path,
+                &loc,
+                "the footprint has zero area",
+                "a footprint must enclose an area; check for repeated or collinear vertices",
+            ));
+        }
+        if let Err(e) = footprint.check_validation() {
+            return Err(InputError::new(
+                path,
+                &loc,
+                format!("the footprint is not a valid polygon: {e}"),
+                "fix self-intersections and overlapping parts in a GIS (e.g. a 'make valid' tool)",
+            ));
+        }
+        let mut fallbacks = Vec::new();
+        let name = match props.and_then(|p| p.get("name")) {
+            Some(Value::String(s)) if !s.trim().is_empty() => s.clone(),
+            _ => {
+                fallbacks.push("name = id (no name property)".to_string());
+                id.clone()
+            }
+        };
+        let height_m = match props.and_then(|p| p.get("height_m")) {
+            Some(v) if !v.is_null() => {
+                let h = v.as_f64().ok_or_else(|| {
+                    InputError::new(
+                        path,
+                        &loc,
+                        "height_m is not a number",
+                        "give the height to eaves in metres as a number",
+                    )
+                })?;
+                if !(h > 0.0 && h < 1000.0) {
+                    return Err(InputError::new(
+                        path,
+                        &loc,
+                        format!("height_m = {h} is not a plausible height"),
+                        "give the height to eaves in metres (> 0)",
+                    ));
+                }
+                h
+            }
+            _ => {
+                fallbacks.push(format!("height_m = {} m (default)", defaults.height_m));
+                defaults.height_m
+            }
+        };
+        let structure_type = match props.and_then(|p| p.get("structure")) {
+            Some(Value::String(s)) => {
+                let s = s.trim().to_lowercase();
+                if s != "masonry" && s != "frame" {
+                    return Err(InputError::new(
+                        path,
+                        &loc,
+                        format!("structure = \"{s}\" is not a known structure type"),
+                        "use \"masonry\" or \"frame\" (or set a `criteria` property)",
+                    ));
+                }
+                s
+            }
+            Some(Value::Null) | None => {
+                fallbacks.push(format!("structure = {} (default)", defaults.structure_type));
+                defaults.structure_type.clone()
+            }
+            Some(_) => {
+                return Err(InputError::new(
+                    path,
+                    &loc,
+                    "structure is not a string",
+                    "use \"masonry\" or \"frame\"",
+                ));
+            }
+        };
+        let criteria = match props.and_then(|p| p.get("criteria")) {
+            Some(Value::String(s)) if !s.trim().is_empty() => Some(s.trim().to_string()),
+            _ => None,
+        };
+        out.push(RawStructure {
+            feature_index: i,
+            id,
+            name,
+            height_m,
+            structure_type,
+            criteria,
+            footprint,
+            fallbacks,
+        });
+    }
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn defaults() -> FootprintDefaults {
+        FootprintDefaults {
+            height_m: 6.0,
+            structure_type: "masonry".into(),
+        }
+    }
+
+    fn parse(text: &str) -> Result<Vec<RawStructure>, InputError> {
+        parse_footprints(
+            text,
+            Path::new("f.geojson"),
+            "id",
+            true,
+            &defaults(),
+            &mut Warnings::default(),
+        )
+    }
+
+    const SQUARE: &str = "[[[9.0,45.0],[9.001,45.0],[9.001,45.001],[9.0,45.001],[9.0,45.0]]]";
+
+    fn fc(features: &[String]) -> String {
+        format!(
+            "{{\"type\":\"FeatureCollection\",\"features\":[{}]}}",
+            features.join(",")
+        )
+    }
+
+    fn feat(id: &str, coords: &str) -> String {
+        format!(
+            "{{\"type\":\"Feature\",\"properties\":{{\"id\":\"{id}\"}},\"geometry\":{{\"type\":\"Polygon\",\"coordinates\":{coords}}}}}"
+        )
+    }
+
+    #[test]
+    fn reads_polygon_with_fallbacks() {
+        let s = parse(&fc(&[feat("A", SQUARE)])).unwrap();
+        assert_eq!(s[0].id, "A");
+        assert_eq!(s[0].height_m, 6.0);
+        assert_eq!(s[0].fallbacks.len(), 3);
+    }
+
+    #[test]
+    fn duplicate_ids_are_rejected() {
+        let e = parse(&fc(&[feat("A", SQUARE), feat("A", SQUARE)])).unwrap_err();
+        assert!(e.message.contains("duplicate id"), "{e}");
+        assert!(e.location.contains("feature 1"));
+    }
+
+    #[test]
+    fn unclosed_ring_is_rejected() {
+        let e = parse(&fc(&[feat(
+            "A",
+            "[[[9.0,45.0],[9.001,45.0],[9.001,45.001],[9.0,45.001]]]",
+        )]))
+        .unwrap_err();
+        assert!(e.message.contains("not closed"), "{e}");
+    }
+
+    #[test]
+    fn self_intersection_is_rejected() {
+        let bow = "[[[9.0,45.0],[9.002,45.002],[9.002,45.0],[9.0,45.001],[9.0,45.0]]]";
+        let e = parse(&fc(&[feat("A", bow)])).unwrap_err();
+        assert!(e.message.contains("not a valid polygon"), "{e}");
+    }
+
+    #[test]
+    fn swapped_axes_are_detected() {
+        let sw = "[[[45.0,99.0],[45.001,99.0],[45.001,99.001],[45.0,99.001],[45.0,99.0]]]";
+        let e = parse(&fc(&[feat("A", sw)])).unwrap_err();
+        assert!(e.hint.contains("swapped"), "{e}");
+    }
+
+    #[test]
+    fn not_a_feature_collection() {
+        let e = parse("{\"type\":\"Feature\"}").unwrap_err();
+        assert!(e.message.contains("FeatureCollection"));
+        let e = parse("not json").unwrap_err();
+        assert!(e.message.contains("not valid JSON"));
+    }
+}

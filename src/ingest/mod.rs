@@ -1,0 +1,207 @@
+//! Ingest: read the footprints and every points file into one metric analysis frame.
+//!
+//! Owns the order of reading (footprints first, so the points reader can keep only points within
+//! reach of a structure), the choice of the analysis CRS (the portfolio's, or the UTM zone of the
+//! structures' centroid), reprojection of footprints, and the per-structure local frame.
+//! Submodules: [`footprints`] (GeoJSON), [`points`] (CSV).
+
+pub mod footprints;
+pub mod points;
+
+use geo::{Centroid, MapCoords, MultiPolygon};
+
+use crate::association::SpatialIndex;
+use crate::coords::{Crs, LocalFrame, Transformer, utm_epsg_for};
+use crate::error::{InputError, Warnings};
+use crate::portfolio::Portfolio;
+
+pub use points::{Dataset, Point};
+
+/// One structure ready for analysis.
+#[derive(Debug, Clone)]
+pub struct Structure {
+    /// Input-order index.
+    pub index: usize,
+    /// Fields read from the footprint file.
+    pub raw: footprints::RawStructure,
+    /// Footprint in the analysis CRS.
+    pub footprint: MultiPolygon<f64>,
+    /// Footprint in WGS84 lon/lat (for GeoJSON output).
+    pub footprint_wgs84: MultiPolygon<f64>,
+    /// The structure's local metric frame (true east/north, m, origin at the centroid).
+    pub frame: LocalFrame,
+    /// Footprint in the local frame.
+    pub footprint_local: MultiPolygon<f64>,
+}
+
+/// Everything read for one run.
+pub struct Inputs {
+    /// Structures in input order.
+    pub structures: Vec<Structure>,
+    /// Points files in portfolio order.
+    pub datasets: Vec<Dataset>,
+    /// The analysis CRS.
+    pub analysis_crs: Crs,
+    /// The spatial index used for association.
+    pub index: SpatialIndex,
+}
+
+fn reproject(
+    mp: &MultiPolygon<f64>,
+    t: &Transformer,
+    file: &std::path::Path,
+    id: &str,
+) -> Result<MultiPolygon<f64>, InputError> {
+    mp.try_map_coords(|c| t.apply(c.x, c.y).map(|(x, y)| geo::Coord { x, y }))
+        .map_err(|e| {
+            InputError::new(
+                file,
+                format!("feature id \"{id}\""),
+                e.to_string(),
+                "check [structures] crs",
+            )
+        })
+}
+
+fn crs_or_input_error(s: &str, file: &std::path::Path, key: &str) -> Result<Crs, InputError> {
+    Crs::parse(s).map_err(|e| {
+        InputError::new(
+            file,
+            format!("key {key}"),
+            e.to_string(),
+            "use an EPSG code such as \"EPSG:4326\"",
+        )
+    })
+}
+
+/// Read the footprints and build the spatial index; points are read by [`read_datasets`].
+pub fn load_structures(
+    pf: &Portfolio,
+    warnings: &mut Warnings,
+) -> Result<(Vec<Structure>, Crs, SpatialIndex), InputError> {
+    let sfile = &pf.structures.path;
+    let scrs = crs_or_input_error(&pf.structures.crs, &pf.file, "structures.crs")?;
+    let defaults = footprints::FootprintDefaults {
+        height_m: pf.assessment.default_height_m,
+        structure_type: pf.assessment.default_structure.clone(),
+    };
+    let raws = footprints::read_footprints(
+        sfile,
+        &pf.structures.id_property,
+        scrs.is_geographic(),
+        &defaults,
+        warnings,
+    )?;
+    let wgs = Crs::wgs84();
+    let s_to_wgs = Transformer::new(&scrs, &wgs);
+    let mut wgs_fps = Vec::with_capacity(raws.len());
+    for r in &raws {
+        wgs_fps.push(reproject(&r.footprint, &s_to_wgs, sfile, &r.id)?);
+    }
+    let analysis = match &pf.crs {
+        Some(c) => crs_or_input_error(c, &pf.file, "portfolio.crs")?,
+        None => {
+            let (mut sx, mut sy, mut n) = (0.0, 0.0, 0.0);
+            for f in &wgs_fps {
+                if let Some(c) = f.centroid() {
+                    sx += c.x();
+                    sy += c.y();
+                    n += 1.0;
+                }
+            }
+            let code = utm_epsg_for(sx / n, sy / n);
+            warnings.push(
+                "default_applied",
+                format!(
+                    "analysis CRS not given: using EPSG:{code}, the UTM zone of the structures' centroid"
+                ),
+            );
+            Crs::from_epsg(code).map_err(|e| {
+                InputError::new(
+                    &pf.file,
+                    "key portfolio.crs",
+                    e.to_string(),
+                    "set portfolio.crs",
+                )
+            })?
+        }
+    };
+    let wgs_to_a = Transformer::new(&wgs, &analysis);
+    let a_to_wgs = Transformer::new(&analysis, &wgs);
+    let mut structures = Vec::with_capacity(raws.len());
+    for (i, (raw, fw)) in raws.into_iter().zip(wgs_fps).enumerate() {
+        let fa = reproject(&fw, &wgs_to_a, sfile, &raw.id)?;
+        let c = fa.centroid().ok_or_else(|| {
+            InputError::new(
+                sfile,
+                format!("feature id \"{}\"", raw.id),
+                "footprint has no centroid",
+                "check the geometry",
+            )
+        })?;
+        let frame = LocalFrame::at(c.x(), c.y(), &a_to_wgs, &wgs_to_a).map_err(|e| {
+            InputError::new(
+                sfile,
+                format!("feature id \"{}\"", raw.id),
+                e.to_string(),
+                "check [structures] crs",
+            )
+        })?;
+        let local = fa.map_coords(|p| {
+            let (x, y) = frame.to_local(p.x, p.y);
+            geo::Coord { x, y }
+        });
+        structures.push(Structure {
+            index: i,
+            raw,
+            footprint: fa,
+            footprint_wgs84: fw,
+            frame,
+            footprint_local: local,
+        });
+    }
+    let index = SpatialIndex::new(
+        structures.iter().map(|s| s.footprint.clone()).collect(),
+        pf.assessment.buffer_m,
+        pf.assessment.surroundings_m,
+    );
+    Ok((structures, analysis, index))
+}
+
+/// Read every points file, keeping only points within reach of a structure.
+pub fn read_datasets(
+    pf: &Portfolio,
+    analysis: &Crs,
+    index: &SpatialIndex,
+    warnings: &mut Warnings,
+) -> Result<Vec<Dataset>, InputError> {
+    let wgs = Crs::wgs84();
+    let mut out = Vec::with_capacity(pf.datasets.len());
+    for (i, spec) in pf.datasets.iter().enumerate() {
+        let dcrs = crs_or_input_error(&spec.crs, &pf.file, &format!("datasets[{i}].crs"))?;
+        let to_a = Transformer::new(&dcrs, analysis);
+        let to_w = Transformer::new(&dcrs, &wgs);
+        let reach = |x: f64, y: f64| index.within_reach(x, y);
+        out.push(points::read_points(
+            spec,
+            &to_a,
+            &to_w,
+            dcrs.is_geographic(),
+            &reach,
+            warnings,
+        )?);
+    }
+    Ok(out)
+}
+
+/// Read everything for a run.
+pub fn load(pf: &Portfolio, warnings: &mut Warnings) -> Result<Inputs, InputError> {
+    let (structures, analysis_crs, index) = load_structures(pf, warnings)?;
+    let datasets = read_datasets(pf, &analysis_crs, &index, warnings)?;
+    Ok(Inputs {
+        structures,
+        datasets,
+        analysis_crs,
+        index,
+    })
+}

@@ -1,0 +1,263 @@
+//! Output files: results.json/csv/geojson, points.csv/geojson, manifest.json, atomic writes and
+//! safe file names.
+//!
+//! Owns the on-disk formats (documented in docs/formats.md) and the rule that a run either
+//! replaces the output folder completely or leaves it untouched: everything is written into a
+//! temporary sibling folder, which is swapped in by rename only when the whole run succeeded.
+//! It does not compute anything.
+
+pub mod safe_names;
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+use anyhow::{Context, Result};
+use sha2::{Digest, Sha256};
+
+use crate::results::{Results, SCALAR_FIELDS};
+
+/// Write a file inside the staging folder (the folder itself is swapped atomically).
+pub fn write_file(dir: &Path, rel: &str, bytes: &[u8]) -> Result<()> {
+    let p = dir.join(rel);
+    if let Some(parent) = p.parent() {
+        std::fs::create_dir_all(parent)
+            .with_context(|| format!("cannot create {}", parent.display()))?;
+    }
+    let mut f =
+        std::fs::File::create(&p).with_context(|| format!("cannot write {}", p.display()))?;
+    f.write_all(bytes)
+        .with_context(|| format!("cannot write {}", p.display()))?;
+    f.sync_all().ok();
+    Ok(())
+}
+
+/// A staging folder next to the final output folder.
+pub struct Staging {
+    /// Where files are written during the run.
+    pub dir: PathBuf,
+    /// The final folder.
+    pub target: PathBuf,
+}
+
+impl Staging {
+    /// Create `.NAME.partial-PID` next to `target`.
+    pub fn new(target: &Path) -> Result<Staging> {
+        let parent = match target.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
+            _ => PathBuf::from("."),
+        };
+        std::fs::create_dir_all(&parent)
+            .with_context(|| format!("cannot create {}", parent.display()))?;
+        let name = target
+            .file_name()
+            .map(|n| n.to_string_lossy().to_string())
+            .unwrap_or_else(|| "out".into());
+        let dir = parent.join(format!(".{name}.partial-{}", std::process::id()));
+        if dir.exists() {
+            std::fs::remove_dir_all(&dir).ok();
+        }
+        std::fs::create_dir_all(&dir)
+            .with_context(|| format!("cannot create the staging folder {}", dir.display()))?;
+        Ok(Staging {
+            dir,
+            target: target.to_path_buf(),
+        })
+    }
+
+    /// Swap the staging folder in place of the target (old contents removed only after success).
+    pub fn commit(self) -> Result<()> {
+        let parent = self.dir.parent().unwrap_or(Path::new(".")).to_path_buf();
+        let name = self
+            .target
+            .file_name()
+            .map(|n| n.to_string_lossy().to_string())
+            .unwrap_or_else(|| "out".into());
+        if self.target.exists() {
+            let old = parent.join(format!(".{name}.old-{}", std::process::id()));
+            if old.exists() {
+                std::fs::remove_dir_all(&old).ok();
+            }
+            std::fs::rename(&self.target, &old).with_context(|| {
+                format!("cannot move the previous {} aside", self.target.display())
+            })?;
+            if let Err(e) = std::fs::rename(&self.dir, &self.target) {
+                // Put the previous contents back.
+                std::fs::rename(&old, &self.target).ok();
+                return Err(e).with_context(|| {
+                    format!("cannot move the new results into {}", self.target.display())
+                });
+            }
+            std::fs::remove_dir_all(&old).ok();
+        } else {
+            std::fs::rename(&self.dir, &self.target)
+                .with_context(|| format!("cannot create {}", self.target.display()))?;
+        }
+        Ok(())
+    }
+
+    /// Remove the staging folder (on failure); the target is untouched.
+    pub fn abandon(self) {
+        std::fs::remove_dir_all(&self.dir).ok();
+    }
+}
+
+/// SHA-256 of a file, hex.
+pub fn sha256_file(path: &Path) -> Result<String> {
+    let mut f = std::fs::File::open(path)
+        .with_context(|| format!("cannot read {} to hash it", path.display()))?;
+    let mut h = Sha256::new();
+    let mut buf = vec![0u8; 1 << 20];
+    loop {
+        let n = std::io::Read::read(&mut f, &mut buf)?;
+        if n == 0 {
+            break;
+        }
+        h.update(&buf[..n]);
+    }
+    Ok(hex(&h.finalize()))
+}
+
+/// Lower-case hex of bytes.
+pub fn hex(b: &[u8]) -> String {
+    b.iter().map(|x| format!("{x:02x}")).collect()
+}
+
+/// results.json text (pretty, stable field order).
+pub fn results_json(r: &Results) -> Result<String> {
+    Ok(serde_json::to_string_pretty(r)? + "\n")
+}
+
+/// results.csv text: one row per structure, the scalar fields.
+pub fn results_csv(r: &Results) -> Result<Vec<u8>> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record(SCALAR_FIELDS)?;
+    for s in &r.structures {
+        w.write_record(s.csv_cells())?;
+    }
+    Ok(w.into_inner()?)
+}
+
+fn ring_json(ls: &geo::LineString<f64>) -> serde_json::Value {
+    serde_json::Value::Array(
+        ls.0.iter()
+            .map(|c| serde_json::json!([round9(c.x), round9(c.y)]))
+            .collect(),
+    )
+}
+
+fn round9(v: f64) -> f64 {
+    (v * 1e9).round() / 1e9
+}
+
+/// GeoJSON MultiPolygon geometry of a footprint (lon/lat).
+pub fn multipolygon_json(mp: &geo::MultiPolygon<f64>) -> serde_json::Value {
+    let polys: Vec<serde_json::Value> =
+        mp.0.iter()
+            .map(|p| {
+                let mut rings = vec![ring_json(p.exterior())];
+                rings.extend(p.interiors().iter().map(ring_json));
+                serde_json::Value::Array(rings)
+            })
+            .collect();
+    serde_json::json!({"type": "MultiPolygon", "coordinates": polys})
+}
+
+/// results.geojson text: footprints (WGS84, RFC 7946) with the scalar fields as properties.
+pub fn results_geojson(r: &Results, footprints_wgs84: &[geo::MultiPolygon<f64>]) -> Result<String> {
+    let mut feats = Vec::with_capacity(r.structures.len());
+    for (s, fp) in r.structures.iter().zip(footprints_wgs84) {
+        let full = serde_json::to_value(s)?;
+        let mut props = serde_json::Map::new();
+        for f in SCALAR_FIELDS {
+            let v = full.get(*f).cloned().unwrap_or(serde_json::Value::Null);
+            // GIS tools want flat properties: lists and maps become text.
+            let v = match v {
+                serde_json::Value::Array(_) | serde_json::Value::Object(_) => {
+                    serde_json::Value::String(v.to_string())
+                }
+                other => other,
+            };
+            props.insert((*f).to_string(), v);
+        }
+        feats.push(serde_json::json!({
+            "type": "Feature",
+            "properties": props,
+            "geometry": multipolygon_json(fp),
+        }));
+    }
+    let doc = serde_json::json!({"type": "FeatureCollection", "features": feats});
+    Ok(serde_json::to_string(&doc)? + "\n")
+}
+
+/// One row of points.csv.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct PointRow {
+    /// Dataset name.
+    pub dataset: String,
+    /// Point id.
+    pub point_id: String,
+    /// Line in the points file.
+    pub line: u64,
+    /// Longitude (WGS84).
+    pub lon: f64,
+    /// Latitude (WGS84).
+    pub lat: f64,
+    /// Structure id ("" for a tie).
+    pub structure_id: String,
+    /// `structure` | `surroundings` | `tie`.
+    pub role: String,
+    /// Inside the footprint.
+    pub inside: bool,
+    /// Distance to the footprint, m.
+    pub distance_m: f64,
+    /// `kept` | `rejected`.
+    pub status: String,
+    /// Rejection reason ("" when kept).
+    pub reason: String,
+    /// Vertical velocity of the point, mm/yr (+ up), when computed.
+    pub vertical_velocity_mm_per_yr: Option<f64>,
+}
+
+/// points.csv text.
+pub fn points_csv(rows: &[PointRow]) -> Result<Vec<u8>> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    for r in rows {
+        w.serialize(r)?;
+    }
+    if rows.is_empty() {
+        w.write_record([
+            "dataset",
+            "point_id",
+            "line",
+            "lon",
+            "lat",
+            "structure_id",
+            "role",
+            "inside",
+            "distance_m",
+            "status",
+            "reason",
+            "vertical_velocity_mm_per_yr",
+        ])?;
+    }
+    Ok(w.into_inner()?)
+}
+
+/// points.geojson text.
+pub fn points_geojson(rows: &[PointRow]) -> Result<String> {
+    let feats: Vec<serde_json::Value> = rows
+        .iter()
+        .map(|r| {
+            serde_json::json!({
+                "type": "Feature",
+                "properties": r,
+                "geometry": {"type": "Point", "coordinates": [round9(r.lon), round9(r.lat)]},
+            })
+        })
+        .collect();
+    Ok(
+        serde_json::to_string(
+            &serde_json::json!({"type": "FeatureCollection", "features": feats}),
+        )? + "\n",
+    )
+}

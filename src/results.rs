@@ -1,0 +1,295 @@
+//! The results contract: one record per structure and one for the portfolio.
+//!
+//! Field names listed in docs/formats.md are fixed: other parts of the project, the documentation
+//! and outside acceptance checks rely on them. Every scalar carries its unit in its name or is
+//! dimensionless (m/m). `null` means "not computed" or "not computable" — the reason is in
+//! `status_reasons` or in the nested detail — and never "zero".
+//!
+//! Owns the types only; they are filled by `assess` and written by `output`.
+
+use std::collections::BTreeMap;
+
+use serde::{Deserialize, Serialize};
+
+/// Structure status.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Status {
+    /// Enough data for the movement and damage verdict.
+    Assessed,
+    /// Below the minimums: no verdict (never "no movement").
+    InsufficientData,
+}
+
+/// One exceeded trigger level.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct TriggerHit {
+    /// The user's level name.
+    pub level: String,
+    /// Rank (higher = more severe).
+    pub severity: u32,
+    /// Result field.
+    pub field: String,
+    /// The structure's value of that field.
+    pub value: f64,
+    /// Rule as text, e.g. `>= 10`.
+    pub rule: String,
+    /// Action text from the portfolio file.
+    pub action: Option<String>,
+}
+
+/// What changed since the previous period (`--previous`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Change {
+    /// `new` (not in the previous run), `continuing`.
+    pub kind: String,
+    /// Previous damage category.
+    pub previous_damage_category: Option<u8>,
+    /// True when the category differs from the previous one.
+    pub category_changed: bool,
+    /// Previous vertical velocity, mm/yr.
+    pub previous_vertical_velocity_mm_per_yr: Option<f64>,
+    /// Current minus previous vertical velocity, mm/yr.
+    pub velocity_change_mm_per_yr: Option<f64>,
+    /// z = Δv / sqrt(SE₁² + SE₂²) (insar-methods §5.8 sub-period comparison [D]).
+    pub velocity_change_z: Option<f64>,
+    /// |z| > 2.
+    pub velocity_change_significant: Option<bool>,
+    /// Trigger levels exceeded now but not before.
+    pub new_exceedances: Vec<String>,
+    /// Previous status.
+    pub previous_status: Option<Status>,
+}
+
+/// The per-structure result record.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct StructureResult {
+    /// Structure id.
+    pub id: String,
+    /// Structure name.
+    pub name: String,
+    /// `assessed` | `insufficient_data`.
+    pub status: Status,
+    /// Why the status is what it is (always filled for insufficient data).
+    pub status_reasons: Vec<String>,
+    /// Points kept on the structure (all geometries).
+    pub n_points: usize,
+    /// Rejected points by reason.
+    pub n_rejected: BTreeMap<String, usize>,
+    /// Kept surroundings points.
+    pub n_surroundings: usize,
+    /// Dataset names contributing kept points.
+    pub datasets: Vec<String>,
+    /// Maximum settlement over the window, mm, + downward.
+    pub settlement_mm: Option<f64>,
+    /// Max − min settlement among kept points, mm.
+    pub differential_settlement_mm: Option<f64>,
+    /// Mean vertical displacement over the window, mm, + up.
+    pub mean_vertical_mm: Option<f64>,
+    /// Mean east displacement over the window, mm, + east (null with one geometry).
+    pub mean_east_mm: Option<f64>,
+    /// Vertical velocity, mm/yr, + up.
+    pub vertical_velocity_mm_per_yr: Option<f64>,
+    /// East velocity, mm/yr, + east (null with one geometry).
+    pub east_velocity_mm_per_yr: Option<f64>,
+    /// Tilt magnitude, m/m.
+    pub tilt: Option<f64>,
+    /// Direction in which the structure goes down, degrees clockwise from true north.
+    pub tilt_azimuth_deg: Option<f64>,
+    /// Angular distortion magnitude, m/m (rad).
+    pub angular_distortion: Option<f64>,
+    /// Deflection ratio Δ/L, signed (+ sagging, − hogging), largest magnitude over the axes.
+    pub deflection_ratio: Option<f64>,
+    /// Horizontal strain, + extension (null when not measurable).
+    pub horizontal_strain: Option<f64>,
+    /// Governing tensile strain, absolute (not %).
+    pub governing_strain: Option<f64>,
+    /// Damage category 0–5 (4 stands for "4–5"), null when not assessable.
+    pub damage_category: Option<u8>,
+    /// Route that gave the category.
+    pub damage_route: Option<String>,
+    /// Evidence grade.
+    pub evidence_grade: Option<String>,
+
+    /// Standard error of the vertical velocity, mm/yr.
+    pub vertical_velocity_se_mm_per_yr: Option<f64>,
+    /// Standard error of the east velocity, mm/yr.
+    pub east_velocity_se_mm_per_yr: Option<f64>,
+    /// Standard error of the tilt, m/m.
+    pub tilt_se: Option<f64>,
+    /// Name of the damage category.
+    pub damage_category_name: Option<String>,
+    /// Criteria set used.
+    pub criteria_set: Option<String>,
+    /// Height used, m.
+    pub height_m: f64,
+    /// Structure type used.
+    pub structure_type: String,
+    /// Highest trigger level exceeded (null when none; `not_evaluated` when the structure is insufficient).
+    pub trigger_status: Option<String>,
+    /// Every exceeded trigger.
+    pub triggers: Vec<TriggerHit>,
+    /// Safe file stem of this structure's report.
+    pub report_file: Option<String>,
+    /// Properties that fell back to defaults.
+    pub fallbacks: Vec<String>,
+    /// Assumptions made for this structure.
+    pub assumptions: Vec<String>,
+    /// Change since the previous period.
+    pub change: Option<Change>,
+    /// Time-series detail (structure series, fits, decomposition).
+    #[serde(default)]
+    pub series: serde_json::Value,
+    /// Metrics detail (axes, profiles, zones, uncertainty).
+    #[serde(default)]
+    pub metrics: serde_json::Value,
+    /// Damage detail (per-zone strains, screening flags).
+    #[serde(default)]
+    pub damage: serde_json::Value,
+    /// Evidence-grade detail.
+    #[serde(default)]
+    pub grade: serde_json::Value,
+}
+
+/// Names of the scalar fields written to results.csv and results.geojson, in order.
+pub const SCALAR_FIELDS: &[&str] = &[
+    "id",
+    "name",
+    "status",
+    "status_reasons",
+    "n_points",
+    "n_rejected",
+    "n_surroundings",
+    "datasets",
+    "settlement_mm",
+    "differential_settlement_mm",
+    "mean_vertical_mm",
+    "mean_east_mm",
+    "vertical_velocity_mm_per_yr",
+    "east_velocity_mm_per_yr",
+    "tilt",
+    "tilt_azimuth_deg",
+    "angular_distortion",
+    "deflection_ratio",
+    "horizontal_strain",
+    "governing_strain",
+    "damage_category",
+    "damage_route",
+    "evidence_grade",
+    "vertical_velocity_se_mm_per_yr",
+    "east_velocity_se_mm_per_yr",
+    "tilt_se",
+    "damage_category_name",
+    "criteria_set",
+    "height_m",
+    "structure_type",
+    "trigger_status",
+    "report_file",
+];
+
+impl StructureResult {
+    /// The value of a numeric field by name (used by triggers); None when null or not numeric.
+    pub fn numeric(&self, field: &str) -> Option<f64> {
+        match field {
+            "settlement_mm" => self.settlement_mm,
+            "differential_settlement_mm" => self.differential_settlement_mm,
+            "mean_vertical_mm" => self.mean_vertical_mm,
+            "mean_east_mm" => self.mean_east_mm,
+            "vertical_velocity_mm_per_yr" => self.vertical_velocity_mm_per_yr,
+            "east_velocity_mm_per_yr" => self.east_velocity_mm_per_yr,
+            "tilt" => self.tilt,
+            "angular_distortion" => self.angular_distortion,
+            "deflection_ratio" => self.deflection_ratio,
+            "horizontal_strain" => self.horizontal_strain,
+            "governing_strain" => self.governing_strain,
+            "damage_category" => self.damage_category.map(f64::from),
+            _ => None,
+        }
+    }
+
+    /// Scalar fields as text cells for CSV (empty = null), in [`SCALAR_FIELDS`] order.
+    pub fn csv_cells(&self) -> Vec<String> {
+        let v = serde_json::to_value(self).unwrap_or_default();
+        SCALAR_FIELDS
+            .iter()
+            .map(|f| match v.get(*f) {
+                None | Some(serde_json::Value::Null) => String::new(),
+                Some(serde_json::Value::String(s)) => s.clone(),
+                Some(serde_json::Value::Array(a)) => a
+                    .iter()
+                    .map(|x| {
+                        x.as_str()
+                            .map(str::to_string)
+                            .unwrap_or_else(|| x.to_string())
+                    })
+                    .collect::<Vec<_>>()
+                    .join("; "),
+                Some(serde_json::Value::Object(o)) => o
+                    .iter()
+                    .map(|(k, x)| format!("{k}={x}"))
+                    .collect::<Vec<_>>()
+                    .join("; "),
+                Some(x) => x.to_string(),
+            })
+            .collect()
+    }
+}
+
+/// Coverage summary of a run.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct Coverage {
+    /// Structures read.
+    pub structures: usize,
+    /// Structures per status.
+    pub by_status: BTreeMap<String, usize>,
+    /// Points rows read per dataset.
+    pub points_read: BTreeMap<String, u64>,
+    /// Points kept on structures (all datasets).
+    pub points_kept: usize,
+    /// Points rejected by reason (all structures).
+    pub points_rejected: BTreeMap<String, usize>,
+    /// Points within reach but neither on a structure nor a tie (surroundings only).
+    pub points_surroundings_only: usize,
+    /// Points outside every structure's reach (not kept).
+    pub points_out_of_reach: u64,
+    /// Points excluded as ties between structures.
+    pub ties: usize,
+}
+
+/// Portfolio-level record.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PortfolioResult {
+    /// Job name.
+    pub name: String,
+    /// Analysis CRS, e.g. `EPSG:32632`.
+    pub analysis_crs: String,
+    /// Assessment window start (ISO date).
+    pub window_start: Option<String>,
+    /// Assessment window end (ISO date).
+    pub window_end: Option<String>,
+    /// Analysis date = the last acquisition used (from the data, not the clock).
+    pub analysis_date: Option<String>,
+    /// Tool version.
+    pub tool_version: String,
+    /// Coverage summary.
+    pub coverage: Coverage,
+    /// Structures per damage category (`insufficient_data` separate).
+    pub by_category: BTreeMap<String, usize>,
+    /// Structures per evidence grade.
+    pub by_grade: BTreeMap<String, usize>,
+    /// Previous run compared against, if any.
+    pub previous: Option<String>,
+    /// Structures in the previous run that are gone now.
+    pub gone_since_previous: Vec<String>,
+    /// Shard `K/N` if this run was one shard.
+    pub shard: Option<String>,
+}
+
+/// The whole results.json document.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Results {
+    /// Portfolio record.
+    pub portfolio: PortfolioResult,
+    /// One record per structure, input order.
+    pub structures: Vec<StructureResult>,
+}
