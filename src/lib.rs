@@ -22,4 +22,5 @@ pub mod report;
 pub mod results;
 pub mod run;
 pub mod series;
+pub mod synth;
 pub mod triggers;
