@@ -1,0 +1,4 @@
+//! End-to-end tests of the `plinth` binary on small fixture portfolios, one module per topic.
+
+mod fixture;
+mod foundation;
