@@ -506,11 +506,11 @@ pub fn fit_profile(
         deflection_ratio_ls_se: dr_se,
         angular_distortion_ls_se: beta_se,
         residual_rms_mm: (chosen.rss / n as f64).sqrt(),
-        residual_std_mm: chosen
-            .dof
-            .gt(&0)
-            .then(|| (chosen.rss / chosen.dof as f64).sqrt())
-            .unwrap_or(0.0),
+        residual_std_mm: if chosen.dof > 0 {
+            (chosen.rss / chosen.dof as f64).sqrt()
+        } else {
+            0.0
+        },
         point_count: n,
         coverage_fraction: coverage,
         curve,
