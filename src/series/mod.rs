@@ -5,5 +5,7 @@ pub mod decompose;
 pub mod fit;
 pub mod jumps;
 pub mod los;
+pub mod period;
 pub mod project;
+pub mod resample;
 pub mod stats;
