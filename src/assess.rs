@@ -137,6 +137,32 @@ pub struct RunContext<'a> {
     pub window_idx: Vec<Vec<usize>>,
     /// LOS unit vectors per dataset at the scene angles (None when per-point columns are used).
     pub scene_unit: Vec<Option<[f64; 3]>>,
+    /// Criteria sets available (built-in + user-defined).
+    pub criteria: crate::criteria::CriteriaRegistry,
+}
+
+/// Period displacement of one point over the window: mean of the 3 valid epochs nearest the window
+/// end minus the mean of the 3 valid epochs nearest the window start (insar-methods §5.11 [D]:
+/// "difference of local means ... never two single noisy epochs"), mm; and its 1-σ from the
+/// residual scatter about a straight-line fit, σ_period = s·sqrt(2/3).
+pub fn period_displacement(t_yr: &[f64], v_mm: &[f64]) -> Option<(f64, f64)> {
+    let n = t_yr.len();
+    if n < 6 {
+        return None;
+    }
+    let k = 3;
+    let start = v_mm[..k].iter().sum::<f64>() / k as f64;
+    let end = v_mm[n - k..].iter().sum::<f64>() / k as f64;
+    let vel = ols_velocity_mm_per_yr(t_yr, v_mm)?;
+    let tm = t_yr.iter().sum::<f64>() / n as f64;
+    let vm = v_mm.iter().sum::<f64>() / n as f64;
+    let rss: f64 = t_yr
+        .iter()
+        .zip(v_mm)
+        .map(|(t, v)| (v - (vm + vel * (t - tm))).powi(2))
+        .sum();
+    let s = (rss / (n - 2) as f64).sqrt();
+    Some((end - start, s * (2.0f64 / 3.0).sqrt()))
 }
 
 /// Assess one structure.
@@ -154,6 +180,7 @@ pub fn assess_structure(
 
     // Screening, per member point.
     let mut kept_by_ds: BTreeMap<usize, Vec<(usize, f64)>> = BTreeMap::new(); // ds -> (verdict idx, v_los)
+    let mut period: Vec<Option<(f64, f64)>> = Vec::with_capacity(members.len());
     for m in members {
         let ds = &ctx.datasets[m.dataset];
         let idx = &ctx.window_idx[m.dataset];
@@ -172,6 +199,11 @@ pub fn assess_structure(
         } else {
             None
         };
+        period.push(if rejected.is_none() {
+            period_displacement(&t, &v)
+        } else {
+            None
+        });
         let cos_inc = m.point.incidence_deg.to_radians().cos();
         let vv = vel.map(|v| v / cos_inc);
         if rejected.is_none() && m.role == Role::Structure {
@@ -280,6 +312,112 @@ pub fn assess_structure(
     if status == Status::Assessed {
         reasons.push("minimums met".into());
     }
+    let mut out = Filled::default();
+    let criteria_name = s
+        .raw
+        .criteria
+        .clone()
+        .unwrap_or_else(|| s.raw.structure_type.clone());
+    if status == Status::Assessed {
+        // Per-point period settlement in the structure's local frame (vertical projection of
+        // each point's own geometry; insar-methods §7.4).
+        let mut mpts = Vec::new();
+        for (m, (v, per)) in members.iter().zip(verdicts.iter().zip(&period)) {
+            if v.role != Role::Structure || v.rejected.is_some() {
+                continue;
+            }
+            let Some((d_los, sigma)) = per else { continue };
+            let u = point_unit(ctx, m);
+            let (x, y) = s.frame.to_local(m.point.x, m.point.y);
+            let d_v = d_los / u[2];
+            mpts.push(crate::metrics::MetricPoint {
+                x_m: x,
+                y_m: y,
+                settlement_mm: -d_v,
+                sigma_mm: sigma / u[2],
+                geometry: m.dataset,
+                los_mm: *d_los,
+                unit_enu: u,
+            });
+        }
+        let mcfg = crate::metrics::MetricsConfig {
+            monte_carlo_draws: a.monte_carlo_draws,
+            seed: a.seed ^ fnv(&s.raw.id),
+            ..Default::default()
+        };
+        let met =
+            crate::metrics::structure_metrics(&mpts, &s.footprint_local, s.raw.height_m, &mcfg);
+        out.settlement_mm = met.settlement_mm;
+        out.differential_settlement_mm = met.differential_settlement_mm;
+        out.mean_vertical_mm = met.mean_settlement_mm.map(|x| -x);
+        out.tilt = met.tilt;
+        out.tilt_se = met.tilt_se;
+        out.tilt_azimuth_deg = met.tilt_azimuth_deg;
+        out.angular_distortion = met.angular_distortion;
+        out.deflection_ratio = met.deflection_ratio;
+        out.horizontal_strain = met.horizontal_strain;
+        if met.horizontal_strain.is_none() {
+            assumptions.push(
+                "horizontal strain not measured (needs both geometries at both ends of an axis that is not north–south); taken as 0 in the strain relations".into(),
+            );
+        }
+        match ctx.criteria.get(&criteria_name) {
+            Ok(set) => {
+                let zones: Vec<crate::damage::assess::ZoneInput> = met
+                    .damage_zones()
+                    .iter()
+                    .map(|z| crate::damage::assess::ZoneInput {
+                        mode: match z.mode {
+                            crate::metrics::profile::DeflectionMode::Sagging => {
+                                crate::damage::Mode::Sagging
+                            }
+                            crate::metrics::profile::DeflectionMode::Hogging => {
+                                crate::damage::Mode::Hogging
+                            }
+                        },
+                        length_m: z.length_m,
+                        deflection_ratio: z.deflection_ratio,
+                        horizontal_strain: z.horizontal_strain,
+                    })
+                    .collect();
+                let max_slope = match (met.tilt, met.angular_distortion) {
+                    (Some(t), Some(b)) => Some(t + b),
+                    (Some(t), None) => Some(t),
+                    _ => None,
+                };
+                let dmg = crate::damage::assess::assess_damage(
+                    &crate::damage::assess::DamageInput {
+                        zones,
+                        angular_distortion: met.angular_distortion,
+                        height_m: s.raw.height_m,
+                        max_settlement_mm: met.settlement_mm,
+                        max_slope,
+                    },
+                    set,
+                );
+                out.governing_strain = dmg.governing_strain;
+                out.damage_category = dmg.category.map(|c| c.number());
+                out.damage_category_name = dmg.category.map(|c| c.label().to_string());
+                out.damage_route = Some(match &dmg.governing {
+                    Some(g) => format!("{} ({})", set.route.label(), branch_label(g.branch)),
+                    None => set.route.label().to_string(),
+                });
+                out.criteria_set = Some(set.name.clone());
+                if dmg.category.is_none() {
+                    for r in &dmg.category_reasons {
+                        reasons.push(format!("damage category not computed: {r}"));
+                    }
+                }
+                assumptions.extend(dmg.assumptions.iter().cloned());
+                out.damage = serde_json::to_value(&dmg).unwrap_or_default();
+            }
+            Err(e) => reasons.push(format!("damage category not computed: {e}")),
+        }
+        for r in &met.refusals {
+            assumptions.push(format!("metric not computed: {r}"));
+        }
+        out.metrics = serde_json::to_value(&met).unwrap_or_default();
+    }
     let result = StructureResult {
         id: s.raw.id.clone(),
         name: s.raw.name.clone(),
@@ -289,26 +427,26 @@ pub fn assess_structure(
         n_rejected,
         n_surroundings,
         datasets,
-        settlement_mm: None,
-        differential_settlement_mm: None,
-        mean_vertical_mm: None,
+        settlement_mm: out.settlement_mm,
+        differential_settlement_mm: out.differential_settlement_mm,
+        mean_vertical_mm: out.mean_vertical_mm,
         mean_east_mm: None,
         vertical_velocity_mm_per_yr: vertical_velocity,
         east_velocity_mm_per_yr: None,
-        tilt: None,
-        tilt_azimuth_deg: None,
-        angular_distortion: None,
-        deflection_ratio: None,
-        horizontal_strain: None,
-        governing_strain: None,
-        damage_category: None,
-        damage_route: None,
+        tilt: out.tilt,
+        tilt_azimuth_deg: out.tilt_azimuth_deg,
+        angular_distortion: out.angular_distortion,
+        deflection_ratio: out.deflection_ratio,
+        horizontal_strain: out.horizontal_strain,
+        governing_strain: out.governing_strain,
+        damage_category: out.damage_category,
+        damage_route: out.damage_route,
         evidence_grade: None,
         vertical_velocity_se_mm_per_yr: None,
         east_velocity_se_mm_per_yr: None,
-        tilt_se: None,
-        damage_category_name: None,
-        criteria_set: None,
+        tilt_se: out.tilt_se,
+        damage_category_name: out.damage_category_name,
+        criteria_set: out.criteria_set,
         height_m: s.raw.height_m,
         structure_type: s.raw.structure_type.clone(),
         trigger_status: None,
@@ -318,11 +456,70 @@ pub fn assess_structure(
         assumptions,
         change: None,
         series: serde_json::Value::Null,
-        metrics: serde_json::Value::Null,
-        damage: serde_json::Value::Null,
+        metrics: out.metrics,
+        damage: out.damage,
         grade: serde_json::Value::Null,
     };
     (result, verdicts)
+}
+
+/// Values filled by the metrics and damage stages.
+#[derive(Default)]
+struct Filled {
+    settlement_mm: Option<f64>,
+    differential_settlement_mm: Option<f64>,
+    mean_vertical_mm: Option<f64>,
+    tilt: Option<f64>,
+    tilt_se: Option<f64>,
+    tilt_azimuth_deg: Option<f64>,
+    angular_distortion: Option<f64>,
+    deflection_ratio: Option<f64>,
+    horizontal_strain: Option<f64>,
+    governing_strain: Option<f64>,
+    damage_category: Option<u8>,
+    damage_category_name: Option<String>,
+    damage_route: Option<String>,
+    criteria_set: Option<String>,
+    metrics: serde_json::Value,
+    damage: serde_json::Value,
+}
+
+/// LOS unit vector of a member point: per-point angles when mapped, else the dataset's.
+fn point_unit(ctx: &RunContext, m: &Member) -> [f64; 3] {
+    if let Some(u) = ctx.scene_unit[m.dataset] {
+        if ctx.portfolio.datasets[m.dataset]
+            .columns
+            .incidence
+            .is_none()
+            && ctx.portfolio.datasets[m.dataset].columns.heading.is_none()
+        {
+            return u;
+        }
+    }
+    let look = match ctx.portfolio.datasets[m.dataset].look {
+        crate::portfolio::LookSide::Right => crate::series::los::LookSide::Right,
+        crate::portfolio::LookSide::Left => crate::series::los::LookSide::Left,
+    };
+    crate::series::los::unit_vector_from_angles(m.point.incidence_deg, m.point.heading_deg, look)
+        .unwrap_or([0.0, 0.0, m.point.incidence_deg.to_radians().cos()])
+}
+
+fn branch_label(b: crate::damage::Branch) -> &'static str {
+    match b {
+        crate::damage::Branch::Bending => "bending strain",
+        crate::damage::Branch::Diagonal => "diagonal strain",
+        crate::damage::Branch::Principal => "principal strain",
+    }
+}
+
+/// FNV-1a hash of text (seeds per structure, so results do not depend on processing order).
+pub fn fnv(text: &str) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for b in text.as_bytes() {
+        h ^= u64::from(*b);
+        h = h.wrapping_mul(0x0100_0000_01b3);
+    }
+    h
 }
 
 fn median_sorted(v: &[f64]) -> f64 {

@@ -714,7 +714,7 @@ impl Portfolio {
                 "give the height to eaves in metres",
             );
         }
-        if !(assessment.outlier_z > 0.0) {
+        if assessment.outlier_z.is_nan() || assessment.outlier_z <= 0.0 {
             return bad(
                 "outlier_z",
                 format!("{} must be positive", assessment.outlier_z),

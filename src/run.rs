@@ -18,6 +18,11 @@ use crate::output::{self, PointRow};
 use crate::portfolio::{LookSide, Pass, Portfolio};
 use crate::results::{Change, Coverage, PortfolioResult, Results, Status, StructureResult};
 
+/// (structure, dataset, point id) of a screening verdict.
+type VerdictKey<'a> = (usize, usize, &'a str);
+/// (rejection reason, vertical velocity mm/yr) of a screening verdict.
+type VerdictValue = (Option<&'static str>, Option<f64>);
+
 /// Options of one run, resolved from the command line.
 #[derive(Debug, Clone, Default)]
 pub struct RunOptions {
@@ -254,12 +259,14 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         }
     }
 
+    let criteria = build_criteria(&pf)?;
     let ctx = RunContext {
         portfolio: &pf,
         datasets: &datasets,
         window,
         window_idx,
         scene_unit,
+        criteria,
     };
     let ids: Vec<&str> = structures.iter().map(|s| s.raw.id.as_str()).collect();
     let stems = output::safe_names::assign(&ids);
@@ -271,8 +278,7 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         .collect();
 
     // points.csv rows: one per (point, structure link), plus ties.
-    let mut verdict_map: BTreeMap<(usize, usize, &str), (Option<&'static str>, Option<f64>)> =
-        BTreeMap::new();
+    let mut verdict_map: BTreeMap<VerdictKey, VerdictValue> = BTreeMap::new();
     for (si, (_, vs)) in assessed.iter().enumerate() {
         for v in vs {
             verdict_map.insert(
@@ -423,6 +429,30 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         point_rows,
         warnings,
         window,
+    })
+}
+
+/// Built-in criteria sets plus the portfolio's `[criteria.NAME]` sets, validated.
+pub fn build_criteria(pf: &Portfolio) -> Result<crate::criteria::CriteriaRegistry, InputError> {
+    let mut user = BTreeMap::new();
+    for (name, table) in &pf.criteria {
+        let o: crate::criteria::CriteriaOverride = toml::Value::Table(table.clone()).try_into().map_err(|e: toml::de::Error| {
+            InputError::new(
+                &pf.file,
+                format!("key criteria.{name}"),
+                e.message().trim().to_string(),
+                "keys of a criteria set: base, route, e_over_g, poisson, neutral_axis, thresholds, compressive_strain, source (docs/formats.md)",
+            )
+        })?;
+        user.insert(name.clone(), o);
+    }
+    crate::criteria::CriteriaRegistry::with_user_sets(&user).map_err(|e| {
+        InputError::new(
+            &pf.file,
+            "key criteria",
+            e.to_string(),
+            "see docs/formats.md for criteria sets",
+        )
     })
 }
 

@@ -112,7 +112,7 @@ impl SpatialIndex {
             })
             .filter(|(_, d, _)| *d <= self.surroundings_m.max(self.buffer_m))
             .collect();
-        cands.sort_by(|a, b| a.0.cmp(&b.0));
+        cands.sort_by_key(|c| c.0);
         let mut out = PointLinks::default();
         // Rule 1/2: choose the owning structure.
         let insiders: Vec<&(usize, f64, bool)> = cands.iter().filter(|c| c.2).collect();
