@@ -127,7 +127,7 @@ fn beta_cf(a: f64, b: f64, x: f64) -> f64 {
 
 /// Regularised incomplete beta `I_x(a, b)` for `a, b > 0`, `x ∈ [0, 1]`; NaN otherwise.
 pub fn incomplete_beta(a: f64, b: f64, x: f64) -> f64 {
-    if !(a > 0.0 && b > 0.0) || !(0.0..=1.0).contains(&x) {
+    if !(a > 0.0 && b > 0.0 && (0.0..=1.0).contains(&x)) {
         return f64::NAN;
     }
     if x == 0.0 || x == 1.0 {
