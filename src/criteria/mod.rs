@@ -65,10 +65,10 @@ pub struct CriteriaSet {
     /// Relation that decides the category.
     pub route: Route,
     /// E/G of the equivalent deep beam, dimensionless (> 0). Burland & Wroth (1974): 2.6 for
-    /// isotropic masonry (= 2(1 + ν), ν = 0.3) [M]; 12.5 for frames [M].
+    /// isotropic masonry (= 2(1 + ν), ν = 0.3) \[M\]; 12.5 for frames \[M\].
     pub e_over_g: f64,
     /// Poisson's ratio ν in the resultant diagonal strain (3.2), dimensionless, 0 ≤ ν < 0.5.
-    /// Default 0.3 (damage-relations.md §2.4 [Rec]; the value itself from memory [M]).
+    /// Default 0.3 (damage-relations.md §2.4 \[Rec\]; the value itself from memory \[M\]).
     pub poisson: f64,
     /// Neutral-axis position per mode (Burland & Wroth 1974: sagging mid-height, hogging lower
     /// edge).
@@ -162,12 +162,12 @@ pub const BUILTIN_NAMES: [&str; 3] = ["masonry", "frame", "masonry-son-cording"]
 
 /// A built-in criteria set by name.
 ///
-/// - `masonry`: E/G 2.6, ν 0.3 (Burland & Wroth 1974, isotropic masonry [M]), Burland thresholds,
+/// - `masonry`: E/G 2.6, ν 0.3 (Burland & Wroth 1974, isotropic masonry \[M\]), Burland thresholds,
 ///   Burland & Wroth neutral axes, compressive ε_h clamped to 0.
-/// - `frame`: E/G 12.5 (Burland & Wroth 1974, **from memory** [M]), ν 0.3 (kept as its own input;
+/// - `frame`: E/G 12.5 (Burland & Wroth 1974, **from memory** \[M\]), ν 0.3 (kept as its own input;
 ///   12.5 is not isotropic), Burland thresholds (calibrated for masonry; noted in the source).
 /// - `masonry-son-cording`: Son & Cording (2005) route with thresholds 0.05/0.075/0.167/0.333 %
-///   (upper two **from memory** [M]); E/G, ν and neutral axes as masonry for the zone strains.
+///   (upper two **from memory** \[M\]); E/G, ν and neutral axes as masonry for the zone strains.
 ///
 /// Unknown name → `None`.
 pub fn builtin(name: &str) -> Option<CriteriaSet> {

@@ -2,7 +2,7 @@
 //! damage category).
 //!
 //! Owns the ladder [`BJERRUM_LADDER`] (1/750 … 1/150) and the flag ([`bjerrum_flag`]: highest
-//! limit reached, next limit). **Values from memory** [M] (damage-relations.md §6.4, §11 item 7).
+//! limit reached, next limit). **Values from memory** \[M\] (damage-relations.md §6.4, §11 item 7).
 //! Like Skempton & MacDonald, Bjerrum's angular distortion is δ/l of adjacent points.
 
 use serde::Serialize;
@@ -20,7 +20,7 @@ pub struct BjerrumLimit {
     pub description: &'static str,
 }
 
-/// Bjerrum (1963) ladder, ascending. **From memory** [M].
+/// Bjerrum (1963) ladder, ascending. **From memory** \[M\].
 pub const BJERRUM_LADDER: [BjerrumLimit; 6] = [
     BjerrumLimit {
         angular_distortion: 1.0 / 750.0,
@@ -74,7 +74,7 @@ pub struct BjerrumFlag {
 ///
 /// # References
 /// Bjerrum, L. (1963), Allowable settlement of structures, Proc. 3rd ECSMFE, Wiesbaden, Vol. 2 —
-/// ladder **from memory** [M].
+/// ladder **from memory** \[M\].
 ///
 /// # Examples
 /// ```

@@ -26,7 +26,7 @@ pub const RECONSTRUCTION_LABEL: &str = "Boscardin & Cording (1989)-type β–ε_
 /// How a compressive (negative) horizontal strain enters the resultant strains.
 ///
 /// # References
-/// damage-relations.md §3.5 [Rec; P]: Burland's chart covers ε_h ≥ 0 and common practice takes no
+/// damage-relations.md §3.5 \[Rec; P\]: Burland's chart covers ε_h ≥ 0 and common practice takes no
 /// credit for compression, so the default clamps ε_h to ≥ 0. Example 8.3-C7 shows the effect
 /// (category 0 signed, 1 clamped).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
@@ -58,7 +58,7 @@ impl CompressivePolicy {
 /// Absolute strains, tension / extension positive.
 ///
 /// # References
-/// Boscardin & Cording (1989); Burland (1995); Mair, Taylor & Burland (1996) [M]
+/// Boscardin & Cording (1989); Burland (1995); Mair, Taylor & Burland (1996) \[M\]
 /// (damage-relations.md §3.1).
 ///
 /// # Examples
@@ -79,7 +79,7 @@ pub fn resultant_bending_strain(bending_strain_max: f64, horizontal_strain: f64)
 /// Absolute strains, tension / extension positive; ν dimensionless.
 ///
 /// # References
-/// Boscardin & Cording (1989); Burland (1995) [M]; derivation in damage-relations.md §3.1 [D].
+/// Boscardin & Cording (1989); Burland (1995) \[M\]; derivation in damage-relations.md §3.1 \[D\].
 ///
 /// # Examples
 /// ```
@@ -120,7 +120,7 @@ pub struct ResultantStrains {
 /// Absolute strains, tension / extension positive.
 ///
 /// # References
-/// Boscardin & Cording (1989); Burland (1995) [M]; damage-relations.md §3.1.
+/// Boscardin & Cording (1989); Burland (1995) \[M\]; damage-relations.md §3.1.
 ///
 /// # Examples
 /// ```
@@ -165,7 +165,7 @@ pub fn resultant_strains(
 /// β: angular distortion, rad (dimensionless; magnitude used). ε_h absolute, + extension.
 ///
 /// # References
-/// Boscardin & Cording (1989) chart (not read); reconstruction in damage-relations.md §4 [D + Rec].
+/// Boscardin & Cording (1989) chart (not read); reconstruction in damage-relations.md §4 \[D + Rec\].
 ///
 /// # Examples
 /// ```
@@ -196,7 +196,7 @@ pub fn reconstructed_chart_strain(
 /// ε_h, ε_lim absolute; β returned in rad (dimensionless).
 ///
 /// # References
-/// damage-relations.md §4 [D + Rec].
+/// damage-relations.md §4 \[D + Rec\].
 ///
 /// # Examples
 /// ```

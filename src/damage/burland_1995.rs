@@ -3,7 +3,7 @@
 //!
 //! Owns the inverse of eqs (3.1)/(3.2) at ε_max = ε_lim ([`boundary_deflection_ratio`]) and the
 //! sampled curves for plotting ([`interaction_curves`]). It does not classify: damage-relations.md
-//! §3.4 [Rec] classifies by computing ε_max directly (identical result); the curves are only
+//! §3.4 \[Rec\] classifies by computing ε_max directly (identical result); the curves are only
 //! drawn.
 
 use serde::Serialize;
@@ -35,7 +35,7 @@ pub struct BoundaryPoint {
 ///
 /// # References
 /// Burland, J.B. (1995), Assessment of risk of damage to buildings due to tunnelling and
-/// excavation [M]; inversion derived in damage-relations.md §3.4 [D].
+/// excavation \[M\]; inversion derived in damage-relations.md §3.4 \[D\].
 ///
 /// # Examples
 /// ```
@@ -86,8 +86,8 @@ pub fn boundary_deflection_ratio(
 /// `l_over_h`, `e_over_g`, `nu` dimensionless; points `(ε_h, Δ/L)`, both absolute.
 ///
 /// # References
-/// Burland (1995) chart (published for hogging, L/H = 1, E/G = 2.6, ν = 0.3 [M]); generalised
-/// per damage-relations.md §3.4 [D].
+/// Burland (1995) chart (published for hogging, L/H = 1, E/G = 2.6, ν = 0.3 \[M\]); generalised
+/// per damage-relations.md §3.4 \[D\].
 ///
 /// # Examples
 /// ```

@@ -6,7 +6,7 @@
 //! strain (that is [`super::boscardin_cording`]) and does not classify.
 //!
 //! Only the central point load is implemented (the standard of Burland 1995 and Mair et al. 1996,
-//! damage-relations.md §2.7 [Rec]); the distributed-load variant is deliberately left out.
+//! damage-relations.md §2.7 \[Rec\]); the distributed-load variant is deliberately left out.
 
 use serde::{Deserialize, Serialize};
 
@@ -15,7 +15,7 @@ use super::{DamageError, Mode, require_finite, require_positive};
 /// Position of the neutral axis of the equivalent deep beam.
 ///
 /// # References
-/// Burland & Wroth (1974); the hogging choice I = H³/3, t = H is [R] (damage-relations.md §2.2).
+/// Burland & Wroth (1974); the hogging choice I = H³/3, t = H is \[R\] (damage-relations.md §2.2).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum NeutralAxis {
@@ -106,8 +106,8 @@ pub struct BeamFactors {
 ///
 /// # References
 /// Burland, J.B. & Wroth, C.P. (1974), Settlement of buildings and associated damage, eqs for
-/// Δ/L in terms of ε_bmax and ε_dmax ([M; R; D]); dimensionless forms derived in
-/// damage-relations.md §2.3 [D].
+/// Δ/L in terms of ε_bmax and ε_dmax (\[M; R; D\]); dimensionless forms derived in
+/// damage-relations.md §2.3 \[D\].
 ///
 /// # Examples
 /// ```
@@ -169,7 +169,7 @@ pub struct BeamStrains {
 /// ratio enters). Strains: absolute, tension positive.
 ///
 /// # References
-/// Burland & Wroth (1974) [M; R; D]; damage-relations.md §2.1–2.3.
+/// Burland & Wroth (1974) \[M; R; D\]; damage-relations.md §2.1–2.3.
 ///
 /// # Examples
 /// ```

@@ -22,11 +22,11 @@ const SQRT_TWO_PI: f64 = 2.506_628_274_631_000_7;
 /// Trough width parameter `i = K·z0`.
 ///
 /// # Units
-/// `k` dimensionless (≈ 0.5 clays, 0.25–0.35 granular, from memory [M]); `z0_m` depth of the
+/// `k` dimensionless (≈ 0.5 clays, 0.25–0.35 granular, from memory \[M\]); `z0_m` depth of the
 /// tunnel axis, m; returns i in m.
 ///
 /// # References
-/// O'Reilly, M.P. & New, B.M. (1982), Settlements above tunnels in the United Kingdom [M]
+/// O'Reilly, M.P. & New, B.M. (1982), Settlements above tunnels in the United Kingdom \[M\]
 /// (damage-relations.md §7.1, eq. 7.5).
 ///
 /// # Examples
@@ -42,7 +42,7 @@ pub fn trough_width_m(k: f64, z0_m: f64) -> Result<f64, DamageError> {
 }
 
 /// O'Reilly & New (1982) regression for cohesive soils: `i = 0.43·z0 + 1.1` (m), stated for
-/// 3 ≤ z0 ≤ 34 m. **From memory** [M]. Outside that range the value is still returned; the caller
+/// 3 ≤ z0 ≤ 34 m. **From memory** \[M\]. Outside that range the value is still returned; the caller
 /// should flag the extrapolation.
 ///
 /// # Examples
@@ -58,7 +58,7 @@ pub fn o_reilly_new_width_cohesive_m(z0_m: f64) -> Result<f64, DamageError> {
 }
 
 /// O'Reilly & New (1982) regression for granular soils: `i = 0.28·z0 − 0.12` (m), stated for
-/// 6 ≤ z0 ≤ 10 m. **From memory** [M]. z0 = 8 m gives 2.12 m (damage-relations.md §8.8).
+/// 6 ≤ z0 ≤ 10 m. **From memory** \[M\]. z0 = 8 m gives 2.12 m (damage-relations.md §8.8).
 ///
 /// z0 ≤ 0, non-finite, or a non-positive result → [`DamageError::InvalidInput`].
 pub fn o_reilly_new_width_granular_m(z0_m: f64) -> Result<f64, DamageError> {
@@ -76,7 +76,7 @@ pub fn o_reilly_new_width_granular_m(z0_m: f64) -> Result<f64, DamageError> {
 
 /// Subsurface trough width parameter of Mair, Taylor & Bracegirdle (1993):
 /// `K(z) = [0.175 + 0.325·(1 − z/z0)] / (1 − z/z0)`, with i(z) = K(z)·(z0 − z). **From memory**
-/// [M]. K(0) = 0.5.
+/// \[M\]. K(0) = 0.5.
 ///
 /// # Units
 /// z (depth below surface) and z0 in m; K dimensionless.
@@ -110,8 +110,8 @@ pub fn mair_subsurface_k(z_m: f64, z0_m: f64) -> Result<f64, DamageError> {
 /// S_max in m.
 ///
 /// # References
-/// Peck (1969); O'Reilly & New (1982) [M; R for the 0.313 coefficient]; damage-relations.md §7.1
-/// eq. (7.4) [D].
+/// Peck (1969); O'Reilly & New (1982) \[M; R for the 0.313 coefficient\]; damage-relations.md §7.1
+/// eq. (7.4) \[D\].
 ///
 /// # Examples
 /// ```
@@ -212,7 +212,7 @@ impl GaussianTrough {
     }
 
     /// Horizontal displacement u(x) = −(x/z0)·s(x), m, + in +x (movement towards the axis;
-    /// O'Reilly & New 1982 [M]).
+    /// O'Reilly & New 1982 \[M\]).
     pub fn horizontal_displacement_m(&self, x_m: f64) -> f64 {
         -(x_m / self.z0_m) * self.settlement_m(x_m)
     }
@@ -253,7 +253,7 @@ impl GaussianTrough {
         -self.s_max_m / self.z0_m
     }
 
-    /// Continuous relative deflection of the part [start, end] (damage-relations.md §1.2 step 6
+    /// Continuous relative deflection of the part \[start, end\] (damage-relations.md §1.2 step 6
     /// applied to the exact profile, §7.3 step 3): offset d(x) = s(x) − chord(x); sagging
     /// Δ = max d, hogging Δ = max(−d); the larger sets the mode. Found by dense sampling
     /// (20 001 points) refined by golden-section search around the best sample.
@@ -310,7 +310,7 @@ impl GaussianTrough {
     }
 }
 
-/// Maximise a smooth function on [a, b]: dense sampling then golden-section refinement in the
+/// Maximise a smooth function on \[a, b\]: dense sampling then golden-section refinement in the
 /// bracket around the best sample. Returns (x, f(x)).
 fn maximise(f: &dyn Fn(f64) -> f64, a: f64, b: f64) -> (f64, f64) {
     const N: usize = 20_000;
@@ -364,7 +364,7 @@ pub enum ExcavationSoil {
 /// - soft to medium clays: 1 for d ≤ 0.75H_e, (2H_e − d)/(1.25H_e) to 2H_e;
 /// - 0 beyond.
 ///
-/// Envelope shapes **from memory** [M]; δvm is a user input. No horizontal movements are given by
+/// Envelope shapes **from memory** \[M\]; δvm is a user input. No horizontal movements are given by
 /// these envelopes.
 ///
 /// # Units
@@ -372,7 +372,7 @@ pub enum ExcavationSoil {
 ///
 /// # References
 /// Clough, G.W. & O'Rourke, T.D. (1990), Construction induced movements of in situ walls, ASCE
-/// GSP 25 [M] (damage-relations.md §7.4).
+/// GSP 25 \[M\] (damage-relations.md §7.4).
 ///
 /// # Examples
 /// ```

@@ -163,7 +163,7 @@ pub enum Branch {
 }
 
 /// Grouping of the damage categories by what they affect (Burland 1995, as restated in
-/// damage-relations.md §3.2, [R]).
+/// damage-relations.md §3.2, \[R\]).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum DamageGroup {
@@ -190,8 +190,8 @@ pub enum DamageGroup {
 ///   structures, 9th ICSMFE, Tokyo — categories, crack widths, ease of repair.
 /// - Boscardin & Cording (1989); Burland (1995) — limiting tensile strains.
 ///
-/// Names and crack widths are [R] in damage-relations.md §3.2; ease of repair and grouping are [M]
-/// (partly [R]). The typical-damage wording is our paraphrase.
+/// Names and crack widths are \[R\] in damage-relations.md §3.2; ease of repair and grouping are \[M\]
+/// (partly \[R\]). The typical-damage wording is our paraphrase.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
 pub enum DamageCategory {
     /// 0 — negligible.
@@ -262,7 +262,7 @@ impl DamageCategory {
         }
     }
 
-    /// Approximate crack width (Burland et al. 1977, [R]).
+    /// Approximate crack width (Burland et al. 1977, \[R\]).
     pub fn crack_width(self) -> &'static str {
         match self {
             DamageCategory::Negligible => "hairline cracks, less than about 0.1 mm",
@@ -308,7 +308,7 @@ impl DamageCategory {
         }
     }
 
-    /// Ease of repair (Burland et al. 1977, [M], partly [R]).
+    /// Ease of repair (Burland et al. 1977, \[M\], partly \[R\]).
     pub fn ease_of_repair(self) -> &'static str {
         match self {
             DamageCategory::Negligible => "no repair needed",
@@ -346,7 +346,7 @@ impl Serialize for DamageCategory {
     }
 }
 
-/// Relative tolerance of the boundary rule (damage-relations.md §3.3 [Rec]): a value within
+/// Relative tolerance of the boundary rule (damage-relations.md §3.3 \[Rec\]): a value within
 /// 1e-9 (relative) below a boundary counts as on it, so rounding cannot move a value that was built
 /// to equal a boundary into the milder category.
 pub const BOUNDARY_RELATIVE_TOLERANCE: f64 = 1e-9;
@@ -365,8 +365,8 @@ pub fn reaches_boundary(value: f64, boundary: f64) -> bool {
 ///
 /// # References
 /// - Boscardin & Cording (1989), restated by Burland (1995): 0.05, 0.075, 0.15, 0.3 %
-///   ([R], damage-relations.md §3.2) — [`StrainThresholds::BURLAND`].
-/// - Son & Cording (2005): 0.05, 0.075, 0.167, 0.333 % — **from memory** [M], stored as exactly
+///   (\[R\], damage-relations.md §3.2) — [`StrainThresholds::BURLAND`].
+/// - Son & Cording (2005): 0.05, 0.075, 0.167, 0.333 % — **from memory** \[M\], stored as exactly
 ///   1/600 and 1/300 (§5) — [`StrainThresholds::SON_CORDING`].
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct StrainThresholds {
@@ -380,7 +380,7 @@ impl StrainThresholds {
     };
 
     /// Son & Cording (2005) thresholds, absolute: 5e-4, 7.5e-4, 1/600, 1/300.
-    /// The upper two are **from memory** [M] (damage-relations.md §5, §11 item 2).
+    /// The upper two are **from memory** \[M\] (damage-relations.md §5, §11 item 2).
     pub const SON_CORDING: StrainThresholds = StrainThresholds {
         boundaries: [5.0e-4, 7.5e-4, 1.0 / 600.0, 1.0 / 300.0],
     };

@@ -2,8 +2,8 @@
 //! used in the preliminary stage of Mair, Taylor & Burland (1996).
 //!
 //! Owns the two ladders and the combination "classify separately, take the worse"
-//! ([`rankin_category`]). **All threshold values are from memory** [M] (damage-relations.md §6.1,
-//! §11 item 6); only the structure of the screen (slope plus settlement) was corroborated [R].
+//! ([`rankin_category`]). **All threshold values are from memory** \[M\] (damage-relations.md §6.1,
+//! §11 item 6); only the structure of the screen (slope plus settlement) was corroborated \[R\].
 //! It does not compute slope or settlement from points.
 
 use serde::Serialize;
@@ -77,23 +77,23 @@ impl RankinCategory {
 }
 
 /// Slope boundaries 1/500, 1/200, 1/50 between categories 1|2, 2|3, 3|4 (dimensionless).
-/// **From memory** [M] (Rankin 1988, via damage-relations.md §6.1).
+/// **From memory** \[M\] (Rankin 1988, via damage-relations.md §6.1).
 pub const RANKIN_SLOPE_BOUNDARIES: [f64; 3] = [1.0 / 500.0, 1.0 / 200.0, 1.0 / 50.0];
 
 /// Settlement boundaries 10, 50, 75 mm between categories 1|2, 2|3, 3|4.
-/// **From memory** [M] (Rankin 1988, via damage-relations.md §6.1).
+/// **From memory** \[M\] (Rankin 1988, via damage-relations.md §6.1).
 pub const RANKIN_SETTLEMENT_BOUNDARIES_MM: [f64; 3] = [10.0, 50.0, 75.0];
 
 /// Rankin category from the maximum slope alone.
 ///
 /// # Units
 /// `max_slope`: dimensionless (rad); the magnitude is used. A value on a boundary goes to the
-/// more severe category (damage-relations.md §6.1 [Rec], matching "< 1/500" for category 1),
+/// more severe category (damage-relations.md §6.1 \[Rec\], matching "< 1/500" for category 1),
 /// with the relative tolerance of [`super::BOUNDARY_RELATIVE_TOLERANCE`].
 ///
 /// # References
 /// Rankin, W.J. (1988), Ground movements resulting from urban tunnelling: predictions and effects
-/// — values **from memory** [M].
+/// — values **from memory** \[M\].
 ///
 /// # Examples
 /// ```
@@ -117,7 +117,7 @@ pub fn rankin_from_slope(max_slope: f64) -> Result<RankinCategory, DamageError> 
 /// Boundary rule as [`rankin_from_slope`].
 ///
 /// # References
-/// Rankin (1988) — values **from memory** [M].
+/// Rankin (1988) — values **from memory** \[M\].
 ///
 /// # Examples
 /// ```
@@ -148,13 +148,13 @@ pub struct RankinResult {
 }
 
 /// Rankin (1988) category: classify slope and settlement separately and take the worse
-/// (damage-relations.md §6.1 [Rec]).
+/// (damage-relations.md §6.1 \[Rec\]).
 ///
 /// # Units
 /// `max_settlement_mm` in mm (+ down, magnitude used); `max_slope` dimensionless (magnitude).
 ///
 /// # References
-/// Rankin (1988) — values **from memory** [M]; combination rule [Rec].
+/// Rankin (1988) — values **from memory** \[M\]; combination rule \[Rec\].
 ///
 /// # Examples
 /// ```

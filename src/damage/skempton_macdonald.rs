@@ -2,7 +2,7 @@
 //! (not a damage category).
 //!
 //! Owns the three limits (1/500 design, 1/300 cracking, 1/150 structural damage) and the flag
-//! ([`skempton_macdonald_flag`]). **Values from memory** [M] (damage-relations.md §6.3, §11 item 7).
+//! ([`skempton_macdonald_flag`]). **Values from memory** \[M\] (damage-relations.md §6.3, §11 item 7).
 //! Skempton & MacDonald's "angular distortion" is δ/l between adjacent points, which equals
 //! Burland & Wroth's β only when tilt is negligible (§1.1); the caller says which it passes.
 
@@ -10,12 +10,12 @@ use serde::Serialize;
 
 use super::{DamageError, reaches_boundary, require_finite};
 
-/// Recommended design limit on angular distortion, 1/500 (dimensionless). From memory [M].
+/// Recommended design limit on angular distortion, 1/500 (dimensionless). From memory \[M\].
 pub const DESIGN_LIMIT: f64 = 1.0 / 500.0;
 /// Angular distortion at which cracking of panel and load-bearing walls is expected, 1/300.
-/// From memory [M].
+/// From memory \[M\].
 pub const CRACKING_LIMIT: f64 = 1.0 / 300.0;
-/// Angular distortion at which structural damage is expected, 1/150. From memory [M].
+/// Angular distortion at which structural damage is expected, 1/150. From memory \[M\].
 pub const STRUCTURAL_DAMAGE_LIMIT: f64 = 1.0 / 150.0;
 
 /// Where an angular distortion sits against the Skempton & MacDonald limits.
@@ -58,7 +58,7 @@ impl SkemptonMacDonaldFlag {
 ///
 /// # References
 /// Skempton, A.W. & MacDonald, D.H. (1956), The allowable settlements of buildings, Proc. ICE
-/// Part III, 5 — 98 buildings [R]; limits **from memory** [M].
+/// Part III, 5 — 98 buildings \[R\]; limits **from memory** \[M\].
 ///
 /// # Examples
 /// ```

@@ -12,7 +12,7 @@ use serde::Serialize;
 use super::{Curve, CurveOrdinate, DamageError, StrainThresholds, require_finite, sample_curve};
 
 /// Son & Cording (2005) thresholds, absolute: 5e-4, 7.5e-4, 1/600, 1/300 (0.05, 0.075, 0.167,
-/// 0.333 %). The upper two are **from memory** [M], corroborated once; stored as exact fractions
+/// 0.333 %). The upper two are **from memory** \[M\], corroborated once; stored as exact fractions
 /// because at ε_l = 0 they correspond to β = 1/300 and 1/150 (damage-relations.md §5, §11 item 2).
 pub const SON_CORDING_THRESHOLDS: StrainThresholds = StrainThresholds::SON_CORDING;
 
@@ -45,8 +45,8 @@ impl PrincipalStrain {
 ///
 /// # References
 /// Son, M. & Cording, E.J. (2005), Estimation of building damage due to excavation-induced ground
-/// movements, J. Geotech. Geoenviron. Eng. 131(2) [M; abstract R]; closed form derived in
-/// damage-relations.md §5 [D].
+/// movements, J. Geotech. Geoenviron. Eng. 131(2) \[M; abstract R\]; closed form derived in
+/// damage-relations.md §5 \[D\].
 ///
 /// # Examples
 /// ```
@@ -91,7 +91,7 @@ pub fn principal_strain_angle_form(
 /// ε_l, ε_lim absolute; β rad (dimensionless).
 ///
 /// # References
-/// damage-relations.md §5 boundary curves [D].
+/// damage-relations.md §5 boundary curves \[D\].
 ///
 /// # Examples
 /// ```
