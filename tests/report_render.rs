@@ -51,7 +51,9 @@ fn pdf_text(pdf: &[u8]) -> Option<String> {
         .output()
         .expect("run pdftotext");
     assert!(out.status.success(), "pdftotext failed");
-    Some(String::from_utf8_lossy(&out.stdout).into_owned())
+    // Rotated axis titles come out one word per line: compare with whitespace collapsed.
+    let text = String::from_utf8_lossy(&out.stdout);
+    Some(text.split_whitespace().collect::<Vec<_>>().join(" "))
 }
 
 #[test]

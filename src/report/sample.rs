@@ -376,7 +376,7 @@ fn sample_profile() -> ProfileChart {
             chainage_m: 0.0,
             chord_mm: (s(-15.0) + s(15.0)) / 2.0,
             profile_mm: s(0.0),
-            label: format!("Δ = {} mm (hogging)", fixed(delta, 2)),
+            label: format!("Δ = {} mm (hogging)", fixed(delta.abs(), 2)),
         }),
         zones: vec![ZoneSpan {
             start_m: -15.0,
@@ -498,7 +498,9 @@ pub fn portfolio() -> Result<(PortfolioReport, PortfolioCharts), ReportError> {
                 governing_strain: strain,
                 velocity_mm_per_yr: vel,
                 evidence_grade: grade.into(),
-                trigger_status: if cat == Some(2) {
+                trigger_status: if cat.is_none() {
+                    "not evaluated".into()
+                } else if cat == Some(2) {
                     "alert level exceeded".into()
                 } else {
                     "below alert level".into()

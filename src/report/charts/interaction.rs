@@ -32,6 +32,22 @@ const LEGEND_H: u32 = 96;
 /// Degenerate input: invalid L/H, E/G or ν (rejected by the damage relations) is an error; a
 /// non-finite structure value is drawn without the structure marker and the legend says so.
 pub fn draw(data: &InteractionChart) -> Result<String, ReportError> {
+    let first_guess = 60;
+    let (svg, legend) = draw_with(data, first_guess)?;
+    let needed = super::legend_height(&legend, SIZE.0);
+    if needed == first_guess {
+        Ok(svg)
+    } else {
+        draw_with(data, needed).map(|(svg, _)| svg)
+    }
+}
+
+/// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries
+/// (so [`draw`] can size the strip to fit).
+fn draw_with(
+    data: &InteractionChart,
+    legend_h: u32,
+) -> Result<(String, Vec<(Swatch, String)>), ReportError> {
     let err = chart_error(NAME);
     let mode = match data.mode {
         BendingMode::Hogging => Mode::Hogging,
@@ -68,7 +84,8 @@ pub fn draw(data: &InteractionChart) -> Result<String, ReportError> {
     let mut legend: Vec<(Swatch, String)> = Vec::new();
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (SIZE.0, SIZE.1 - LEGEND_H + legend_h))
+            .into_drawing_area();
         root.fill(&WHITE).map_err(&err)?;
         let (plot_area, legend_area) = root.split_vertically(SIZE.1 - LEGEND_H);
         let mut chart = ChartBuilder::on(&plot_area)
@@ -110,6 +127,7 @@ pub fn draw(data: &InteractionChart) -> Result<String, ReportError> {
             .y_desc("Deflection ratio |Δ/L| (%)")
             .label_style((FONT, LABEL_SIZE).into_font().color(&INK))
             .axis_desc_style((FONT, DESC_SIZE).into_font().color(&INK))
+            .max_light_lines(0)
             .light_line_style(GRID_LIGHT)
             .bold_line_style(GRID_BOLD)
             .axis_style(INK)
@@ -184,6 +202,18 @@ pub fn draw(data: &InteractionChart) -> Result<String, ReportError> {
                     INK.stroke_width(1),
                 )))
                 .map_err(&err)?;
+            // Value label beside the marker: near the origin the marker alone is hard to read.
+            chart
+                .draw_series(std::iter::once(Text::new(
+                    format!(
+                        "Δ/L {} %, ε_h {} %",
+                        fixed(pct(dr.value), 4),
+                        fixed(pct(eh.value), 4)
+                    ),
+                    (px + (x1 - x0) * 0.02, py + (y1 - y0) * 0.035),
+                    (FONT, LABEL_SIZE).into_font().color(&INK),
+                )))
+                .map_err(&err)?;
             legend.push((
                 Swatch::Dot(super::BLUE),
                 "this structure, bars = interval".to_string(),
@@ -210,7 +240,7 @@ pub fn draw(data: &InteractionChart) -> Result<String, ReportError> {
         draw_legend(&legend_area, &legend)?;
         root.present().map_err(&err)?;
     }
-    Ok(svg)
+    Ok((svg, legend))
 }
 
 #[cfg(test)]

@@ -24,7 +24,7 @@ use crate::report::format::{fixed, with_unit};
 use crate::report::model::MapChart;
 
 const NAME: &str = "map";
-const SIZE: (u32, u32) = (800, 700);
+const SIZE: (u32, u32) = (800, 680);
 const TITLE_H: u32 = 34;
 const LEGEND_H: u32 = 56;
 const BAR_W: u32 = 130;
@@ -96,7 +96,7 @@ pub(crate) fn plan_chart<'a, DB: DrawingBackend>(
         .y_desc(format!("Northing, {crs} (m)"))
         .label_style((FONT, LABEL_SIZE).into_font().color(&INK))
         .axis_desc_style((FONT, LABEL_SIZE).into_font().color(&INK))
-        .light_line_style(WHITE)
+        .max_light_lines(0)
         .bold_line_style(GRID_LIGHT)
         .axis_style(INK)
         .draw()
@@ -235,6 +235,22 @@ fn velocity_limit(data: &MapChart) -> f64 {
 /// Degenerate input: a footprint with fewer than three finite vertices is an error; no kept
 /// points is allowed (the legend says "no kept points").
 pub fn draw(data: &MapChart) -> Result<String, ReportError> {
+    let first_guess = 60;
+    let (svg, legend) = draw_with(data, first_guess)?;
+    let needed = super::legend_height(&legend, SIZE.0);
+    if needed == first_guess {
+        Ok(svg)
+    } else {
+        draw_with(data, needed).map(|(svg, _)| svg)
+    }
+}
+
+/// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries
+/// (so [`draw`] can size the strip to fit).
+fn draw_with(
+    data: &MapChart,
+    legend_h: u32,
+) -> Result<(String, Vec<(Swatch, String)>), ReportError> {
     let err = chart_error(NAME);
     let footprint = ring(&data.footprint);
     if footprint.len() < 4 {
@@ -269,9 +285,11 @@ pub fn draw(data: &MapChart) -> Result<String, ReportError> {
     let frame = bounds(frame_pts.iter());
     let limit = velocity_limit(data);
 
+    let mut legend: Vec<(Swatch, String)> = Vec::new();
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (SIZE.0, SIZE.1 - LEGEND_H + legend_h))
+            .into_drawing_area();
         root.fill(&WHITE).map_err(&err)?;
         let (title_area, rest) = root.split_vertically(TITLE_H);
         let (body, legend_area) = rest.split_vertically(SIZE.1 - TITLE_H - LEGEND_H);
@@ -290,7 +308,6 @@ pub fn draw(data: &MapChart) -> Result<String, ReportError> {
             .map_err(&err)?;
 
         let mut chart = plan_chart(&map_area, frame, data.origin_m, &data.crs_label)?;
-        let mut legend: Vec<(Swatch, String)> = Vec::new();
         for n in &neighbours {
             chart
                 .draw_series(std::iter::once(Polygon::new(n.clone(), GREY_FILL.filled())))
@@ -367,7 +384,7 @@ pub fn draw(data: &MapChart) -> Result<String, ReportError> {
         draw_legend(&legend_area, &legend)?;
         root.present().map_err(&err)?;
     }
-    Ok(svg)
+    Ok((svg, legend))
 }
 
 /// Vertical colour bar from −limit to +limit (mm/yr, + up).
@@ -381,7 +398,7 @@ fn draw_colour_bar<DB: DrawingBackend>(
         .margin_bottom(56)
         .margin_left(6)
         .margin_right(6)
-        .y_label_area_size(70)
+        .right_y_label_area_size(70)
         .build_cartesian_2d(0.0..1.0, -limit..limit)
         .map_err(&err)?;
     let steps = 64;

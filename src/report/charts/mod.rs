@@ -156,15 +156,7 @@ pub(crate) fn draw_legend<DB: plotters::prelude::DrawingBackend>(
     let err = chart_error("legend");
     let (width, _) = area.dim_in_pixel();
     let font = (FONT, LABEL_SIZE).into_font().color(&INK);
-    let char_w = 0.6 * f64::from(LABEL_SIZE) / 1.24;
-    let (mut x, mut y) = (12i32, 6i32);
-    for (swatch, label) in entries {
-        let text_w = (label.chars().count() as f64 * char_w).ceil() as i32;
-        let item_w = 30 + text_w + 18;
-        if x + item_w > width as i32 && x > 12 {
-            x = 12;
-            y += 22;
-        }
+    for ((x, y), (swatch, label)) in legend_layout(entries, width).into_iter().zip(entries) {
         let cy = y + 7;
         match *swatch {
             Swatch::Line(c, w) => {
@@ -233,9 +225,38 @@ pub(crate) fn draw_legend<DB: plotters::prelude::DrawingBackend>(
         }
         area.draw(&Text::new(label.clone(), (x + 30, y), font.clone()))
             .map_err(&err)?;
-        x += item_w;
     }
     Ok(())
+}
+
+/// Top-left pixel of every legend item, wrapping rows at `width`.
+fn legend_layout(entries: &[(Swatch, String)], width: u32) -> Vec<(i32, i32)> {
+    let char_w = 0.6 * f64::from(LABEL_SIZE) / 1.24;
+    let (mut x, mut y) = (12i32, 6i32);
+    let mut out = Vec::with_capacity(entries.len());
+    for (_, label) in entries {
+        let text_w = (label.chars().count() as f64 * char_w).ceil() as i32;
+        let item_w = 30 + text_w + 18;
+        if x + item_w > width as i32 && x > 12 {
+            x = 12;
+            y += LEGEND_ROW_H;
+        }
+        out.push((x, y));
+        x += item_w;
+    }
+    out
+}
+
+/// Height of one legend row, px.
+const LEGEND_ROW_H: i32 = 22;
+
+/// Pixel height a legend of `entries` needs at `width` (rows × row height + padding).
+pub(crate) fn legend_height(entries: &[(Swatch, String)], width: u32) -> u32 {
+    let last_y = legend_layout(entries, width)
+        .last()
+        .map(|p| p.1)
+        .unwrap_or(0);
+    u32::try_from(last_y + LEGEND_ROW_H + 8).unwrap_or(40)
 }
 
 #[cfg(test)]

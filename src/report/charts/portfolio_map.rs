@@ -24,6 +24,22 @@ const MAX_LABELS: usize = 40;
 ///
 /// Degenerate input: no structure with a drawable footprint is an error.
 pub fn draw(data: &PortfolioMapChart) -> Result<String, ReportError> {
+    let first_guess = 60;
+    let (svg, legend) = draw_with(data, first_guess)?;
+    let needed = super::legend_height(&legend, SIZE.0);
+    if needed == first_guess {
+        Ok(svg)
+    } else {
+        draw_with(data, needed).map(|(svg, _)| svg)
+    }
+}
+
+/// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries
+/// (so [`draw`] can size the strip to fit).
+fn draw_with(
+    data: &PortfolioMapChart,
+    legend_h: u32,
+) -> Result<(String, Vec<(Swatch, String)>), ReportError> {
     let err = chart_error(NAME);
     let items: Vec<(Vec<(f64, f64)>, Option<u8>, &str)> = data
         .structures
@@ -38,9 +54,11 @@ pub fn draw(data: &PortfolioMapChart) -> Result<String, ReportError> {
         });
     }
     let frame = bounds(items.iter().flat_map(|(r, _, _)| r.iter()));
+    let mut legend: Vec<(Swatch, String)>;
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (SIZE.0, SIZE.1 - LEGEND_H + legend_h))
+            .into_drawing_area();
         root.fill(&WHITE).map_err(&err)?;
         let (title_area, rest) = root.split_vertically(TITLE_H);
         let (map_area, legend_area) = rest.split_vertically(SIZE.1 - TITLE_H - LEGEND_H);
@@ -114,7 +132,7 @@ pub fn draw(data: &PortfolioMapChart) -> Result<String, ReportError> {
             }
         }
         scale_and_north(&mut chart)?;
-        let mut legend: Vec<(Swatch, String)> = CategoryView::all()
+        legend = CategoryView::all()
             .into_iter()
             .map(|c| {
                 (
@@ -130,7 +148,7 @@ pub fn draw(data: &PortfolioMapChart) -> Result<String, ReportError> {
         draw_legend(&legend_area, &legend)?;
         root.present().map_err(&err)?;
     }
-    Ok(svg)
+    Ok((svg, legend))
 }
 
 #[cfg(test)]

@@ -39,6 +39,22 @@ fn date_label(x: f64) -> String {
 /// Degenerate input: an empty aggregate series is an error (the caller shows "not computed");
 /// a single epoch is drawn as one point with a ±1 mm axis.
 pub fn draw(data: &TimeSeriesChart) -> Result<String, ReportError> {
+    let first_guess = 60;
+    let (svg, legend) = draw_with(data, first_guess)?;
+    let needed = super::legend_height(&legend, SIZE.0);
+    if needed == first_guess {
+        Ok(svg)
+    } else {
+        draw_with(data, needed).map(|(svg, _)| svg)
+    }
+}
+
+/// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries
+/// (so [`draw`] can size the strip to fit).
+fn draw_with(
+    data: &TimeSeriesChart,
+    legend_h: u32,
+) -> Result<(String, Vec<(Swatch, String)>), ReportError> {
     let err = chart_error(NAME);
     if data.aggregate.iter().all(|p| !p.value_mm.is_finite()) {
         return Err(ReportError::Chart {
@@ -79,7 +95,8 @@ pub fn draw(data: &TimeSeriesChart) -> Result<String, ReportError> {
 
     let mut svg = String::new();
     {
-        let root = SVGBackend::with_string(&mut svg, SIZE).into_drawing_area();
+        let root = SVGBackend::with_string(&mut svg, (SIZE.0, SIZE.1 - LEGEND_H + legend_h))
+            .into_drawing_area();
         root.fill(&WHITE).map_err(&err)?;
         let (plot_area, legend_area) = root.split_vertically(SIZE.1 - LEGEND_H);
         let mut chart = ChartBuilder::on(&plot_area)
@@ -139,6 +156,7 @@ pub fn draw(data: &TimeSeriesChart) -> Result<String, ReportError> {
             .y_desc("Vertical displacement (mm, + up)")
             .label_style((FONT, LABEL_SIZE).into_font().color(&INK))
             .axis_desc_style((FONT, DESC_SIZE).into_font().color(&INK))
+            .max_light_lines(0)
             .light_line_style(GRID_LIGHT)
             .bold_line_style(GRID_BOLD)
             .axis_style(INK)
@@ -230,7 +248,7 @@ pub fn draw(data: &TimeSeriesChart) -> Result<String, ReportError> {
         draw_legend(&legend_area, &legend)?;
         root.present().map_err(&err)?;
     }
-    Ok(svg)
+    Ok((svg, legend))
 }
 
 #[cfg(test)]
