@@ -321,6 +321,9 @@ impl DamageCategory {
     }
 
     /// Aesthetic (0–2), serviceability (3–4) or stability (5) grouping.
+    ///
+    /// A strain-based category 4 means "4 or 5" and is grouped as serviceability here; it may
+    /// reach stability, which strain cannot tell (reports should say "serviceability or worse").
     pub fn group(self) -> DamageGroup {
         match self {
             DamageCategory::Negligible | DamageCategory::VerySlight | DamageCategory::Slight => {
