@@ -92,6 +92,13 @@ impl Axis {
         x_m * e + y_m * n
     }
 
+    /// Across-axis coordinate r = (x, y)·(cos az, −sin az) (m): positive to the right of the
+    /// positive axis direction when looking along it (towards azimuth az + 90°).
+    pub fn across_m(&self, x_m: f64, y_m: f64) -> f64 {
+        let (e, n) = self.direction();
+        x_m * n - y_m * e
+    }
+
     /// Midpoint of the footprint extent along the axis (m).
     pub fn centre_m(&self) -> f64 {
         0.5 * (self.s_min_m + self.s_max_m)

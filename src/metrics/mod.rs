@@ -122,6 +122,11 @@ pub struct MetricsConfig {
     pub collinearity_min_m2: f64,
     /// Minimum spacing of point pairs for the pairwise β (m, §7.7: 5 m).
     pub min_pair_spacing_m: f64,
+    /// Fit a linear across-axis term in the profiles so that rigid tilt across an axis cannot
+    /// create deflection (`profile.rs`); `false` gives the insar-methods §7.7 estimator.
+    pub profile_across_axis_term: bool,
+    /// Smallest standard deviation of the points' across-axis coordinates for that term (m).
+    pub min_across_spread_m: f64,
     /// Shortest profile zone as a fraction of L; the effective minimum is the larger of this
     /// times L and `min_pair_spacing_m` (our choice 0.2: a zone shorter than a fifth of the
     /// building rarely holds enough points to be more than noise, damage-relations §9.2).
@@ -154,6 +159,8 @@ impl Default for MetricsConfig {
             collinearity_min_m2: 1.0,
             min_pair_spacing_m: 5.0,
             min_zone_fraction: 0.2,
+            profile_across_axis_term: true,
+            min_across_spread_m: 1.0,
             residual_outlier_z: Some(3.0),
             min_points_outlier_pass: 6,
             strain_min_abs_sin_azimuth: 0.5,
@@ -557,6 +564,9 @@ pub fn structure_metrics(
         min_zone_length_m: (cfg.min_zone_fraction * ax.length_m).max(cfg.min_pair_spacing_m),
         curve_samples: cfg.curve_samples,
         force_degree: None,
+        across_axis_term: cfg.profile_across_axis_term,
+        min_across_spread_m: cfg.min_across_spread_m,
+        force_across_term: None,
     };
     let mut axis_metrics = Vec::new();
     if let Some(ax) = &axes {
@@ -587,7 +597,7 @@ pub fn structure_metrics(
     let mut raw_draws: Vec<(Option<f64>, Vec<AxisDraw>)> = Vec::new();
     let any_metric = plane.is_some() || axis_metrics.iter().any(|a| a.profile.is_some());
     if cfg.monte_carlo_draws > 0 && any_metric {
-        let fixed: Vec<(AxisKind, Axis, usize, Option<f64>)> = axes
+        let fixed: Vec<(AxisKind, Axis, usize, bool, Option<f64>)> = axes
             .iter()
             .flat_map(|ax| {
                 [
@@ -597,9 +607,15 @@ pub fn structure_metrics(
             })
             .filter_map(|(k, axis)| {
                 let am = axis_metrics.iter().find(|a| a.kind == k)?;
-                let deg = am.profile.as_ref()?.degree;
+                let prof = am.profile.as_ref()?;
                 let eps = am.horizontal_strain.as_ref().map(|s| s.horizontal_strain);
-                Some((k, axis, deg, eps))
+                Some((
+                    k,
+                    axis,
+                    prof.degree,
+                    prof.across_slope_mm_per_m.is_some(),
+                    eps,
+                ))
             })
             .collect();
         let has_tilt = plane.is_some();
@@ -609,9 +625,10 @@ pub fn structure_metrics(
                 .flatten()
                 .map(|f| f.tilt);
             let mut per_axis = Vec::new();
-            for (kind, axis, deg, eps) in &fixed {
+            for (kind, axis, deg, across, eps) in &fixed {
                 let pc = ProfileConfig {
                     force_degree: Some(*deg),
+                    force_across_term: Some(*across),
                     curve_samples: 2,
                     ..axis_cfg(axis)
                 };
@@ -721,8 +738,8 @@ pub fn structure_metrics(
         MetricsUncertainty {
             method: format!(
                 "Monte Carlo, {} draws, each point's settlement perturbed by N(0, σ²) \
-                 independently; polynomial degree of each profile fixed to the one chosen on \
-                 the data; building-level values taken on the governing axis",
+                 independently; polynomial degree and across-axis term of each profile fixed to \
+                 those chosen on the data; building-level values taken on the governing axis",
                 cfg.monte_carlo_draws
             ),
             draws: cfg.monte_carlo_draws,
@@ -780,6 +797,7 @@ fn samples_on(axis: &Axis, pts: &[MetricPoint]) -> Vec<ProfileSample> {
             s_m: axis.coordinate_m(p.x_m, p.y_m),
             settlement_mm: p.settlement_mm,
             geometry: p.geometry,
+            across_m: axis.across_m(p.x_m, p.y_m),
         })
         .collect()
 }
@@ -991,12 +1009,12 @@ mod tests {
         // insar-methods.md §7.11 / Appendix A BLD-1 [C]: ω = 1.857e-4 at 103.1°, SE 6.146e-5,
         // DR = −8.430e-5 (hogging), |β|max = 3.372e-4, δS = 4.93 mm, mean 6.819 mm.
         // 4 significant figures: ±1 in the 4th digit.
-        let m = structure_metrics(
-            &bld1_points(),
-            &bld1_footprint(),
-            10.0,
-            &MetricsConfig::default(),
-        );
+        // The §7.7 estimator projects the settlements as they are: no across-axis term.
+        let reference = MetricsConfig {
+            profile_across_axis_term: false,
+            ..MetricsConfig::default()
+        };
+        let m = structure_metrics(&bld1_points(), &bld1_footprint(), 10.0, &reference);
         assert_eq!(
             m.point_count, 10,
             "no point of BLD-1 is an outlier: {:?}",
@@ -1223,5 +1241,88 @@ mod tests {
                 .iter()
                 .any(|r| r.contains("footprint axes unavailable"))
         );
+    }
+
+    #[test]
+    fn across_axis_tilt_does_not_create_deflection() {
+        // Synthetic: a rigid tilt purely across the long axis (0.5 mm/m towards azimuth 0°, the
+        // block's long axis runs east-west) on an irregular layout where the points at the two
+        // ends sit near the north façade and those in the middle near the south façade. Truth:
+        // Δ/L = 0. The §7.7 estimator (no across term) turns the layout into a spurious
+        // sagging/hogging; the default does not (exact data, tolerance 1e-12).
+        let fp = rect(30.0, 12.0, 90.0);
+        let pts: Vec<MetricPoint> = [
+            (-14.0, 4.5),
+            (-10.0, 3.0),
+            (-6.0, -1.0),
+            (-2.0, -4.5),
+            (2.0, -4.0),
+            (6.0, -1.5),
+            (10.0, 2.5),
+            (14.0, 5.0),
+        ]
+        .iter()
+        .map(|&(x, y)| MetricPoint::vertical(x, y, 3.0 + 0.5 * y, 1.0, 0))
+        .collect();
+        let cfg = MetricsConfig {
+            monte_carlo_draws: 0,
+            ..MetricsConfig::default()
+        };
+        let m = structure_metrics(&pts, &fp, 6.0, &cfg);
+        assert!(m.deflection_ratio.unwrap().abs() < 1e-12);
+        assert!(m.angular_distortion.unwrap() < 1e-12);
+        assert!((m.tilt.unwrap() - 0.5e-3).abs() < 1e-12);
+        let plain = structure_metrics(
+            &pts,
+            &fp,
+            6.0,
+            &MetricsConfig {
+                profile_across_axis_term: false,
+                ..cfg
+            },
+        );
+        let dr = plain.axis_metrics[0].deflection_ratio.unwrap();
+        assert!(
+            dr.abs() > 1e-5,
+            "the §7.7 estimator sees a spurious Δ/L: {dr}"
+        );
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(32))]
+        /// Structure level: any rigid plane (uniform settlement + tilt in any direction) added
+        /// to any settlements on an irregular layout leaves every axis's Δ/L and β unchanged
+        /// (Burland & Wroth: tilt is rigid-body motion; damage-relations §1.2 step 6 [D]).
+        #[test]
+        fn rigid_plane_invariance(
+            settle in proptest::collection::vec(-15.0f64..15.0, 14),
+            xs in proptest::collection::vec(-14.5f64..14.5, 14),
+            ys in proptest::collection::vec(-5.5f64..5.5, 14),
+            a in -20.0f64..20.0, b in -1.0f64..1.0, c in -1.0f64..1.0,
+        ) {
+            let fp = rect(30.0, 12.0, 70.0);
+            let rot = 70f64.to_radians();
+            let base: Vec<MetricPoint> = (0..14).map(|i| {
+                // Layout in axis coordinates, rotated into the frame.
+                let (s, t) = (xs[i], ys[i]);
+                let (x, y) = (s * rot.sin() + t * rot.cos(), s * rot.cos() - t * rot.sin());
+                MetricPoint::vertical(x, y, settle[i], 1.0, 0)
+            }).collect();
+            let moved: Vec<MetricPoint> = base.iter().map(|p| MetricPoint::vertical(
+                p.x_m, p.y_m, p.settlement_mm + a + b * p.x_m + c * p.y_m, 1.0, 0)).collect();
+            let cfg = MetricsConfig { monte_carlo_draws: 0, residual_outlier_z: None, ..MetricsConfig::default() };
+            let m0 = structure_metrics(&base, &fp, 8.0, &cfg);
+            let m1 = structure_metrics(&moved, &fp, 8.0, &cfg);
+            for (u, v) in m0.axis_metrics.iter().zip(&m1.axis_metrics) {
+                match (u.deflection_ratio, v.deflection_ratio) {
+                    (Some(p), Some(q)) => proptest::prop_assert!((p - q).abs() < 1e-9, "{} vs {}", p, q),
+                    (p, q) => proptest::prop_assert_eq!(p.is_some(), q.is_some()),
+                }
+                match (u.angular_distortion, v.angular_distortion) {
+                    (Some(p), Some(q)) => proptest::prop_assert!((p - q).abs() < 1e-9),
+                    (p, q) => proptest::prop_assert_eq!(p.is_some(), q.is_some()),
+                }
+            }
+        }
     }
 }

@@ -25,9 +25,15 @@
 //! at the point counts InSAR gives on one building; not inventing reverse curvature from noise
 //! matters more here than a slightly better fit. BIC values are still reported.
 //!
-//! Points are projected on the axis as they are, without removing the across-axis tilt; this is
-//! the §7.7 estimator that the BLD-1 check values were computed with. Across-axis tilt then
-//! shows as scatter about the profile (and in the residual RMS).
+//! **Across-axis term.** By default the model also carries a linear term q·r in the across-axis
+//! coordinate r of each point (when the points spread at least `min_across_spread_m` across the
+//! axis; otherwise it is not identifiable and left out). Reason: a rigid tilt *across* the axis
+//! is rigid-body motion and must not create deflection; without the term it does whenever the
+//! point layout happens to correlate r with s or s² (e.g. the points at one end sit nearer one
+//! façade), and then a rigidly tilting block shows a spurious Δ/L. This departs from the §7.7
+//! estimator, which projects the settlements as they are; with `across_axis_term = false` the
+//! fit is exactly §7.7 (the BLD-1 check values are reproduced that way). With the term, any
+//! rigid plane S = a + b·x + c·y added to the data leaves Δ/L and β unchanged.
 //!
 //! # Quantities (on the fitted curve, over the footprint extent [s_min, s_max])
 //! - **Chord tilt** ω_axis: slope of the chord of the fitted curve between the ends of the
@@ -64,6 +70,8 @@ pub struct ProfileSample {
     pub settlement_mm: f64,
     /// Viewing geometry (dataset) index.
     pub geometry: usize,
+    /// Across-axis coordinate r (m), perpendicular to the axis (see `Axis::across_m`).
+    pub across_m: f64,
 }
 
 /// Settings of the profile estimator.
@@ -81,6 +89,12 @@ pub struct ProfileConfig {
     pub curve_samples: usize,
     /// Force the polynomial degree (2 or 3), e.g. to keep the model fixed in a Monte Carlo.
     pub force_degree: Option<usize>,
+    /// Fit a linear across-axis term q·r (see module docs); `false` = the §7.7 estimator.
+    pub across_axis_term: bool,
+    /// Smallest standard deviation of the across-axis coordinates for the term to be fitted (m).
+    pub min_across_spread_m: f64,
+    /// Force the across-axis term on or off regardless of the spread (Monte Carlo).
+    pub force_across_term: Option<bool>,
 }
 
 impl Default for ProfileConfig {
@@ -92,6 +106,9 @@ impl Default for ProfileConfig {
             min_zone_length_m: 5.0,
             curve_samples: 41,
             force_degree: None,
+            across_axis_term: true,
+            min_across_spread_m: 1.0,
+            force_across_term: None,
         }
     }
 }
@@ -144,7 +161,8 @@ pub struct ProjectedPoint {
     /// Settlement as measured (mm).
     pub settlement_mm: f64,
     /// Settlement shifted by the difference between its geometry's intercept and the reference
-    /// geometry's, so that all points line up with the plotted curve (mm).
+    /// geometry's, and by the across-axis term, so that all points line up with the plotted
+    /// curve (mm).
     pub aligned_settlement_mm: f64,
     /// Residual from the fit (mm).
     pub residual_mm: f64,
@@ -177,6 +195,8 @@ pub struct ProfileFit {
     pub length_m: f64,
     /// p1 (mm/m), p2 (mm/m²), p3 (mm/m³; 0 for the quadratic), about s_c.
     pub coefficients: [f64; 3],
+    /// Across-axis slope q (mm/m) when the across-axis term was fitted.
+    pub across_slope_mm_per_m: Option<f64>,
     /// Geometries with their own intercept, ascending.
     pub geometries: Vec<usize>,
     /// Intercept p0 of each geometry (mm), same order.
@@ -262,7 +282,7 @@ pub enum ProfileError {
 /// // Δ/L = 10/20·1e-3 = 5e-4, |β|max = 0.1·20·1e-3 = 2e-3 (hand-checked).
 /// let pts: Vec<ProfileSample> = (-5..=5).map(|i| {
 ///     let s = 2.0 * i as f64;
-///     ProfileSample { s_m: s, settlement_mm: 10.0 - 0.1 * s * s, geometry: 0 }
+///     ProfileSample { s_m: s, settlement_mm: 10.0 - 0.1 * s * s, geometry: 0, across_m: 0.0 }
 /// }).collect();
 /// let fit = fit_profile(&pts, -10.0, 10.0, &ProfileConfig::default()).unwrap();
 /// assert_eq!(fit.zones[0].mode, DeflectionMode::Sagging);
@@ -316,13 +336,28 @@ pub fn fit_profile(
     }
     let centre = 0.5 * (s_min_m + s_max_m);
     let half = 0.5 * length_m;
+    let across_sd = {
+        let m = samples.iter().map(|p| p.across_m).sum::<f64>() / n as f64;
+        (samples
+            .iter()
+            .map(|p| (p.across_m - m) * (p.across_m - m))
+            .sum::<f64>()
+            / n as f64)
+            .sqrt()
+    };
+    let use_across = cfg
+        .force_across_term
+        .unwrap_or(cfg.across_axis_term && across_sd >= cfg.min_across_spread_m)
+        && across_sd > 0.0;
+    let across = use_across.then_some(across_sd);
+    let extra = usize::from(use_across);
 
-    let quad = poly_fit(samples, &geometries, centre, half, 2)?;
+    let quad = poly_fit(samples, &geometries, centre, half, 2, across)?;
     let bic = |rss: f64, k: usize| {
         let nf = n as f64;
         nf * (rss.max(f64::MIN_POSITIVE) / nf).ln() + k as f64 * nf.ln()
     };
-    let bic2 = bic(quad.rss, g + 2);
+    let bic2 = bic(quad.rss, g + 2 + extra);
     let thirds_ok = {
         let third = length_m / 3.0;
         let c1 = samples.iter().filter(|p| p.s_m < s_min_m + third).count();
@@ -330,13 +365,13 @@ pub fn fit_profile(
         let c2 = n - c1 - c3;
         c1 >= 2 && c2 >= 2 && c3 >= 2
     };
-    let cubic_eligible = effective >= cfg.min_points_cubic && thirds_ok && effective > g + 3;
+    let cubic_eligible = effective >= cfg.min_points_cubic && thirds_ok && n > g + 3 + extra;
     let cubic = if cubic_eligible || cfg.force_degree == Some(3) {
-        poly_fit(samples, &geometries, centre, half, 3).ok()
+        poly_fit(samples, &geometries, centre, half, 3, across).ok()
     } else {
         None
     };
-    let bic3 = cubic.as_ref().map(|c| bic(c.rss, g + 3));
+    let bic3 = cubic.as_ref().map(|c| bic(c.rss, g + 3 + extra));
     let t_stat = cubic
         .as_ref()
         .and_then(|c| c.p3_variance.map(|v| (c.coefficients[2], v)))
@@ -475,7 +510,9 @@ pub fn fit_profile(
             ProjectedPoint {
                 s_m: p.s_m,
                 settlement_mm: p.settlement_mm,
-                aligned_settlement_mm: p.settlement_mm - (chosen.intercepts[k] - p0),
+                aligned_settlement_mm: p.settlement_mm
+                    - (chosen.intercepts[k] - p0)
+                    - chosen.across_slope.unwrap_or(0.0) * p.across_m,
                 residual_mm: *r,
                 geometry: p.geometry,
             }
@@ -494,6 +531,7 @@ pub fn fit_profile(
         s_max_m,
         length_m,
         coefficients: [p1, p2, p3],
+        across_slope_mm_per_m: chosen.across_slope,
         intercepts_mm: chosen.intercepts.clone(),
         geometries,
         reference_geometry,
@@ -622,6 +660,7 @@ struct PolyFitResult {
     dof: usize,
     p2_variance: Option<f64>,
     p3_variance: Option<f64>,
+    across_slope: Option<f64>,
 }
 
 /// OLS fit with per-geometry intercepts; the polynomial variable is scaled by `half` for
@@ -632,9 +671,10 @@ fn poly_fit(
     centre: f64,
     half: f64,
     degree: usize,
+    across_scale: Option<f64>,
 ) -> Result<PolyFitResult, ProfileError> {
     let g = geometries.len();
-    let cols = g + degree;
+    let cols = g + degree + usize::from(across_scale.is_some());
     let rows: Vec<Vec<f64>> = samples
         .iter()
         .map(|p| {
@@ -647,6 +687,9 @@ fn poly_fit(
             for d in 0..degree {
                 pow *= u;
                 r[g + d] = pow;
+            }
+            if let Some(sc) = across_scale {
+                r[g + degree] = p.across_m / sc;
             }
             r
         })
@@ -666,7 +709,9 @@ fn poly_fit(
                 .map(|s2| s2 * fit.unscaled_covariance[(g + 2, g + 2)] / half.powi(6))
         })
         .flatten();
+    let across_slope = across_scale.map(|sc| fit.coefficients[g + degree] / sc);
     Ok(PolyFitResult {
+        across_slope,
         p3_variance,
         cubic: degree == 3,
         intercepts: fit.coefficients[..g].to_vec(),
@@ -691,6 +736,7 @@ mod tests {
                 s_m: s,
                 settlement_mm: f(s),
                 geometry: 0,
+                across_m: 0.0,
             })
             .collect()
     }
@@ -699,7 +745,8 @@ mod tests {
     fn bld1_quadratic_profile() {
         // insar-methods.md §7.11 BLD-1 [C], 4 significant figures (±1 in the 4th digit):
         // p0 = 6.060, p1 = 0.1578, p2 = 0.01124; Δ = −2.529 mm, DR = −8.430e-5 hogging,
-        // |β|max = 3.372e-4 at the ends, ω_axis = 1.578e-4.
+        // |β|max = 3.372e-4 at the ends, ω_axis = 1.578e-4. These are the §7.7 estimator's
+        // values, i.e. without the across-axis term.
         let ax = principal_axes(&bld1_footprint()).unwrap().principal;
         let pts: Vec<ProfileSample> = bld1_points()
             .iter()
@@ -707,9 +754,15 @@ mod tests {
                 s_m: ax.coordinate_m(p.x_m, p.y_m),
                 settlement_mm: p.settlement_mm,
                 geometry: 0,
+                across_m: ax.across_m(p.x_m, p.y_m),
             })
             .collect();
-        let fit = fit_profile(&pts, ax.s_min_m, ax.s_max_m, &ProfileConfig::default()).unwrap();
+        let cfg = ProfileConfig {
+            across_axis_term: false,
+            ..ProfileConfig::default()
+        };
+        let fit = fit_profile(&pts, ax.s_min_m, ax.s_max_m, &cfg).unwrap();
+        assert!(fit.across_slope_mm_per_m.is_none());
         assert_eq!(fit.degree, 2, "{}", fit.degree_reason);
         assert!((fit.intercepts_mm[0] - 6.060).abs() < 1e-3);
         assert!((fit.coefficients[0] - 0.1578).abs() < 1e-4);
@@ -739,6 +792,7 @@ mod tests {
                 s_m: s,
                 settlement_mm: 4.0 + 0.2 * s - 0.05 * s * s + if i % 2 == 0 { 0.1 } else { -0.1 },
                 geometry: 0,
+                across_m: 0.0,
             })
             .collect();
         let fit = fit_profile(&pts, -12.0, 12.0, &ProfileConfig::default()).unwrap();
@@ -774,6 +828,52 @@ mod tests {
         // β: chord slope over extent = 0.45 mm/m; S'(±15) = 1.35 → β = 0.9e-3 at the ends;
         // S'(0) = 0 → β = −0.45e-3. Largest |β| = 0.9e-3.
         assert!((fit.angular_distortion - 0.9e-3).abs() < 1e-9);
+    }
+
+    #[test]
+    fn damage_relations_8_1_a_b_with_the_smooth_estimator() {
+        // damage-relations.md §8.1-A/B [D] profiles, run through the smooth (quadratic)
+        // estimator instead of the §1.2 discrete one (that one is tested in direct.rs against
+        // the published values). 8.1-A is not a parabola, so the quadratic LS fit gives
+        // p2 = −160/1750 = −0.0914286 mm/m² (hand-derived: symmetric, p1 = 0, regression of s
+        // on t²), Δ = −p2·20²/4 = 9.1429 mm and DR = 4.5714e-4, below the discrete 5.000e-4.
+        // 8.1-B adds a rigid tilt of 0.5e-3: Δ/L and β must not change, chord tilt = 0.5e-3.
+        let x = [0.0, 5.0, 10.0, 15.0, 20.0];
+        let a = fit_profile(
+            &samples(|_| 0.0, &x)
+                .iter()
+                .zip([0.0, 6.0, 10.0, 6.0, 0.0])
+                .map(|(p, s)| ProfileSample {
+                    settlement_mm: s,
+                    ..*p
+                })
+                .collect::<Vec<_>>(),
+            0.0,
+            20.0,
+            &ProfileConfig::default(),
+        )
+        .unwrap();
+        let b = fit_profile(
+            &samples(|_| 0.0, &x)
+                .iter()
+                .zip([0.0, 8.5, 15.0, 13.5, 10.0])
+                .map(|(p, s)| ProfileSample {
+                    settlement_mm: s,
+                    ..*p
+                })
+                .collect::<Vec<_>>(),
+            0.0,
+            20.0,
+            &ProfileConfig::default(),
+        )
+        .unwrap();
+        assert!((a.coefficients[1] - (-160.0 / 1750.0)).abs() < 1e-12);
+        assert!((a.zones[0].relative_deflection_mm - 9.142857).abs() < 1e-5);
+        assert!((a.deflection_ratio - 4.571429e-4).abs() < 1e-9);
+        assert_eq!(a.zones[0].mode, DeflectionMode::Sagging);
+        assert!((b.deflection_ratio - a.deflection_ratio).abs() < 1e-15);
+        assert!((b.angular_distortion - a.angular_distortion).abs() < 1e-15);
+        assert!((b.chord_tilt - 0.5e-3).abs() < 1e-12);
     }
 
     #[test]
@@ -824,20 +924,26 @@ mod tests {
 
     proptest! {
         #![proptest_config(ProptestConfig::with_cases(64))]
-        /// Adding a rigid tilt and a uniform settlement leaves Δ/L and β unchanged: the chord
-        /// absorbs both (damage-relations §1.2 step 6 [D]; insar-methods §6.6).
+        /// Adding a rigid tilt (along and across the axis) and a uniform settlement leaves Δ/L
+        /// and β unchanged: the chord absorbs the along-axis part (damage-relations §1.2 step 6
+        /// [D]; insar-methods §6.6) and the across-axis term the rest.
         #[test]
         fn tilt_and_offset_invariance(
             settle in proptest::collection::vec(-20.0f64..20.0, 12),
             jitter in proptest::collection::vec(-0.4f64..0.4, 12),
+            across in proptest::collection::vec(-5.0f64..5.0, 12),
             tilt_mm_per_m in -2.0f64..2.0,
+            across_tilt_mm_per_m in -2.0f64..2.0,
             offset_mm in -50.0f64..50.0,
         ) {
             let s: Vec<f64> = (0..12).map(|i| -16.5 + 3.0 * i as f64 + jitter[i]).collect();
-            let base: Vec<ProfileSample> = s.iter().zip(&settle).map(|(&s, &v)| ProfileSample {
-                s_m: s, settlement_mm: v, geometry: 0 }).collect();
+            let base: Vec<ProfileSample> = s.iter().zip(&settle).zip(&across)
+                .map(|((&s, &v), &r)| ProfileSample { s_m: s, settlement_mm: v, geometry: 0, across_m: r })
+                .collect();
             let moved: Vec<ProfileSample> = base.iter().map(|p| ProfileSample {
-                settlement_mm: p.settlement_mm + offset_mm + tilt_mm_per_m * p.s_m, ..*p }).collect();
+                settlement_mm: p.settlement_mm + offset_mm + tilt_mm_per_m * p.s_m
+                    + across_tilt_mm_per_m * p.across_m,
+                ..*p }).collect();
             let cfg = ProfileConfig::default();
             let a = fit_profile(&base, -18.0, 18.0, &cfg).unwrap();
             let b = fit_profile(&moved, -18.0, 18.0, &cfg).unwrap();
