@@ -179,7 +179,7 @@ pub fn hinge_search(t_yr: &[f64], d_mm: &[f64], m: usize) -> Result<HingeFit, Fi
     let n = t_yr.len();
     let basis = HingeBasis::new(t_yr, m);
     let rss_lin = linear_rss(t_yr, d_mm);
-    let (k, rss_h) = basis.best(d_mm, rss_lin).ok_or(FitError::Degenerate {
+    let (k, _) = basis.best(d_mm, rss_lin).ok_or(FitError::Degenerate {
         model: "hinge search",
         why: "no candidate hinge",
     })?;
@@ -198,7 +198,7 @@ pub fn hinge_search(t_yr: &[f64], d_mm: &[f64], m: usize) -> Result<HingeFit, Fi
         slope_after_mm_per_yr: b + c,
         se_slope_after_mm_per_yr: var_after.max(0.0).sqrt(),
         rss_linear_mm2: rss_lin,
-        rss_hinge_mm2: ls.rss.min(rss_h.max(0.0)).max(0.0),
+        rss_hinge_mm2: ls.rss,
         f_sup: f_sup_of(rss_lin, ls.rss, n),
         candidates: basis.columns.len(),
     })
