@@ -440,7 +440,7 @@ pub fn insufficient_asset() -> Result<(AssetReport, AssetCharts), ReportError> {
 /// A small invented portfolio of five structures, one of them not assessable.
 pub fn portfolio() -> Result<(PortfolioReport, PortfolioCharts), ReportError> {
     let blocks = TextBlocks::builtin()?;
-    let inputs = vec![
+    let inputs = [
         (
             "NF-0042",
             "Kestrel Row 1–7",

@@ -202,21 +202,15 @@ fn draw_with(
                     INK.stroke_width(1),
                 )))
                 .map_err(&err)?;
-            // Value label beside the marker: near the origin the marker alone is hard to read.
-            chart
-                .draw_series(std::iter::once(Text::new(
-                    format!(
-                        "Δ/L {} %, ε_h {} %",
-                        fixed(pct(dr.value), 4),
-                        fixed(pct(eh.value), 4)
-                    ),
-                    (px + (x1 - x0) * 0.02, py + (y1 - y0) * 0.035),
-                    (FONT, LABEL_SIZE).into_font().color(&INK),
-                )))
-                .map_err(&err)?;
+            // The values go into the legend: near the origin a label beside the marker would
+            // collide with the zone labels.
             legend.push((
                 Swatch::Dot(super::BLUE),
-                "this structure, bars = interval".to_string(),
+                format!(
+                    "this structure: Δ/L {} %, ε_h {} % (bars = interval)",
+                    fixed(pct(dr.value), 4),
+                    fixed(pct(eh.value), 4)
+                ),
             ));
         } else {
             legend.push((

@@ -137,7 +137,7 @@ const VEL_UP: Lab = Lab {
 /// mm/yr, + up (uplift blue, subsidence orange). A non-finite velocity or a non-positive limit
 /// gives mid grey, so bad data never looks like "no movement" white.
 pub fn velocity_color(velocity_mm_per_yr: f64, limit_mm_per_yr: f64) -> RGBColor {
-    if !velocity_mm_per_yr.is_finite() || !(limit_mm_per_yr.is_finite() && limit_mm_per_yr > 0.0) {
+    if !(velocity_mm_per_yr.is_finite() && limit_mm_per_yr.is_finite() && limit_mm_per_yr > 0.0) {
         return super::GREY;
     }
     let t = (velocity_mm_per_yr / limit_mm_per_yr).clamp(-1.0, 1.0);

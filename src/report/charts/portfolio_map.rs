@@ -20,6 +20,9 @@ const LEGEND_H: u32 = 60;
 /// Structure ids are written on the map only up to this many structures (else clutter).
 const MAX_LABELS: usize = 40;
 
+/// A footprint ring, its category and its id.
+type Item<'a> = (Vec<(f64, f64)>, Option<u8>, &'a str);
+
 /// Draws the portfolio map as an SVG string.
 ///
 /// Degenerate input: no structure with a drawable footprint is an error.
@@ -41,7 +44,7 @@ fn draw_with(
     legend_h: u32,
 ) -> Result<(String, Vec<(Swatch, String)>), ReportError> {
     let err = chart_error(NAME);
-    let items: Vec<(Vec<(f64, f64)>, Option<u8>, &str)> = data
+    let items: Vec<Item<'_>> = data
         .structures
         .iter()
         .map(|s| (ring(&s.footprint), s.category_index, s.id.as_str()))
