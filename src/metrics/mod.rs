@@ -217,6 +217,9 @@ pub struct AxisMetrics {
     pub horizontal_strain: Option<AxisStrain>,
     /// Monte Carlo spread of Δ/L.
     pub deflection_ratio_spread: Option<Spread>,
+    /// Whether |Δ/L| ≥ 2·SE (Monte Carlo SE, else the least-squares SE of the quadratic):
+    /// the deflection is resolved from noise. `None` without a profile or without an SE.
+    pub deflection_ratio_resolved: Option<bool>,
     /// Monte Carlo spread of β (signed).
     pub angular_distortion_spread: Option<Spread>,
 }
@@ -362,15 +365,32 @@ pub struct StructureMetrics {
 }
 
 impl StructureMetrics {
-    /// Zones of both axes in the shape the damage stage wants (principal axis first, zones in
-    /// axis order). Empty when no profile could be fitted.
+    /// Zones in the shape the damage stage wants, principal axis first, zones in axis order:
+    /// the principal axis's zones, plus the secondary axis's when its Δ/L is resolved from
+    /// noise or it governs (principal refused). Empty when no profile could be fitted.
+    ///
+    /// The secondary (short) axis is left out when unresolved because its noise-driven Δ/L over
+    /// a short L would otherwise drive the deep-beam strains by chance (see `governing_axis`).
     pub fn damage_zones(&self) -> Vec<DamageZone> {
-        zones_of(&self.axis_metrics, self.deflection_ratio_axis)
+        zones_of(&self.axis_metrics, self.deflection_ratio_axis, false)
+    }
+
+    /// Zones of both axes regardless of resolution (for plots and diagnostics).
+    pub fn all_damage_zones(&self) -> Vec<DamageZone> {
+        zones_of(&self.axis_metrics, self.deflection_ratio_axis, true)
     }
 }
 
-fn zones_of(axes: &[AxisMetrics], governing: Option<AxisKind>) -> Vec<DamageZone> {
+/// Whether an axis's zones go to the damage stage (see [`StructureMetrics::damage_zones`]).
+fn axis_counts_for_damage(a: &AxisMetrics, governing: Option<AxisKind>) -> bool {
+    a.kind == AxisKind::Principal
+        || a.deflection_ratio_resolved == Some(true)
+        || Some(a.kind) == governing
+}
+
+fn zones_of(axes: &[AxisMetrics], governing: Option<AxisKind>, all: bool) -> Vec<DamageZone> {
     axes.iter()
+        .filter(|a| all || axis_counts_for_damage(a, governing))
         .flat_map(|a| {
             let eps = a.horizontal_strain.as_ref().map(|s| s.horizontal_strain);
             a.profile.iter().flat_map(move |p| {
@@ -439,6 +459,18 @@ pub fn structure_metrics(
             None
         }
     };
+    if let Some(ax) = &axes {
+        if let Some(m) = ax.area_moment_azimuth_deg {
+            let d = (m - ax.principal.azimuth_deg).rem_euclid(180.0);
+            let off = d.min(180.0 - d).min((d - 90.0).abs());
+            if off > 15.0 {
+                notes.push(format!(
+                    "footprint is not rectangle-like: its second-moment axis ({m:.0}°) is {off:.0}° \
+                     off the wall-aligned axes used for the profiles"
+                ));
+            }
+        }
+    }
     if !(height_m.is_finite() && height_m > 0.0) {
         notes.push(format!(
             "height {height_m} m is not a positive number: tilt top offset not computed"
@@ -672,6 +704,17 @@ pub fn structure_metrics(
         notes.push("Monte Carlo switched off: only least-squares standard errors".to_string());
     }
 
+    for am in &mut axis_metrics {
+        let se = am
+            .deflection_ratio_spread
+            .map(|s| s.se)
+            .or(am.profile.as_ref().and_then(|p| p.deflection_ratio_ls_se));
+        am.deflection_ratio_resolved = match (am.deflection_ratio, se) {
+            (Some(v), Some(e)) if e.is_finite() => Some(v.abs() >= 2.0 * e),
+            _ => None,
+        };
+    }
+
     // 7. Building-level Δ/L and β: the governing axis of each (see `governing_axis`).
     let deflection_ratio_axis = governing_axis(
         &axis_metrics,
@@ -722,6 +765,12 @@ pub fn structure_metrics(
                     .map(|a| a.angular_distortion.abs()),
                 zones: per_axis
                     .iter()
+                    .filter(|a| {
+                        axis_metrics
+                            .iter()
+                            .find(|m| m.kind == a.kind)
+                            .is_some_and(|m| axis_counts_for_damage(m, deflection_ratio_axis))
+                    })
                     .flat_map(|a| a.zones.iter().cloned())
                     .map(|mut z| {
                         z.governing = Some(z.axis) == deflection_ratio_axis;
@@ -868,6 +917,7 @@ fn axis_result(
         pairwise_angular_distortion: pairwise,
         horizontal_strain,
         deflection_ratio_spread: None,
+        deflection_ratio_resolved: None,
         angular_distortion_spread: None,
     }
 }
@@ -1034,6 +1084,14 @@ mod tests {
         assert!(m.horizontal_strain.is_none());
         assert!(m.refusals.iter().any(|r| r.contains("horizontal strain")));
         let zones = m.damage_zones();
+        // Secondary-axis Δ/L (−8.7e-5, Monte Carlo SE ≈ 2e-4) is noise: only the principal
+        // zone goes to the damage stage; the principal one is resolved (≈ 2.2 SE).
+        assert_eq!(m.axis_metrics[1].deflection_ratio_resolved, Some(false));
+        assert_eq!(m.axis_metrics[0].deflection_ratio_resolved, Some(true));
+        assert_eq!(zones.len(), 1);
+        assert!(zones[0].governing && zones[0].axis == AxisKind::Principal);
+        assert_eq!(m.all_damage_zones().len(), 2);
+        assert!(m.draws.iter().all(|d| d.zones.len() == 1));
         assert_eq!(zones[0].mode, DeflectionMode::Hogging);
         assert!((zones[0].length_m - 30.0).abs() < 1e-3);
         assert!(zones[0].horizontal_strain.is_none());

@@ -366,7 +366,7 @@ pub fn fit_profile(
         c1 >= 2 && c2 >= 2 && c3 >= 2
     };
     let cubic_eligible = effective >= cfg.min_points_cubic && thirds_ok && n > g + 3 + extra;
-    let cubic = if cubic_eligible || cfg.force_degree == Some(3) {
+    let cubic = if (cubic_eligible && cfg.force_degree.is_none()) || cfg.force_degree == Some(3) {
         poly_fit(samples, &geometries, centre, half, 3, across).ok()
     } else {
         None
