@@ -251,6 +251,66 @@ pub fn assess_structure(
             }
         }
     }
+    // Time series per geometry of the points that passed screening: aggregate, decomposition,
+    // fits, jumps (insar-methods §4–5). Points with an unwrapping jump are rejected here.
+    let mut ser: Option<crate::series::StructureSeries> = None;
+    let mut point_period: Vec<Option<(f64, f64)>> = vec![None; verdicts.len()];
+    {
+        let mut by_ds: BTreeMap<usize, Vec<usize>> = BTreeMap::new(); // dataset -> verdict idx
+        let mut sur_by_ds: BTreeMap<usize, Vec<usize>> = BTreeMap::new();
+        for (i, v) in verdicts.iter().enumerate() {
+            if v.rejected.is_none() {
+                match v.role {
+                    Role::Structure => by_ds.entry(v.dataset).or_default().push(i),
+                    Role::Surroundings => sur_by_ds.entry(v.dataset).or_default().push(i),
+                }
+            }
+        }
+        if !by_ds.is_empty() {
+            let mk = |map: &BTreeMap<usize, Vec<usize>>| -> Vec<crate::series::GeometryInput> {
+                map.iter()
+                    .map(|(di, idxs)| crate::series::GeometryInput {
+                        name: &ctx.datasets[*di].name,
+                        pass: series_pass(ctx.portfolio.datasets[*di].pass),
+                        epochs: &ctx.datasets[*di].epochs,
+                        points: idxs
+                            .iter()
+                            .map(|i| crate::series::PointSeries {
+                                values_mm: &members[*i].point.values_mm,
+                                unit_enu: point_unit(ctx, &members[*i]),
+                            })
+                            .collect(),
+                    })
+                    .collect()
+            };
+            let geoms = mk(&by_ds);
+            let surr = mk(&sur_by_ds);
+            let mut scfg = crate::series::SeriesConfig::new(ctx.window.start, ctx.window.end);
+            scfg.min_epochs = a.min_epochs;
+            scfg.min_span_yr = a.min_span_years;
+            scfg.wavelength_mm =
+                ctx.portfolio.datasets[*by_ds.keys().next().unwrap_or(&0)].wavelength_mm;
+            scfg.bootstrap_draws = a.bootstrap_draws;
+            scfg.seed = a.seed ^ fnv(&s.raw.id);
+            let out_s = crate::series::analyse_structure(&geoms, &surr, &scfg);
+            for (g, idxs) in out_s.geometries.iter().zip(by_ds.values()) {
+                for pr in &g.points {
+                    let Some(&vi) = idxs.get(pr.index) else {
+                        continue;
+                    };
+                    if !pr.jumps.is_empty() && pr.excluded_from_aggregate {
+                        verdicts[vi].rejected = Some(reason::UNWRAPPING_JUMP);
+                        *n_rejected
+                            .entry(reason::UNWRAPPING_JUMP.to_string())
+                            .or_default() += 1;
+                    } else if let Some(pd) = &pr.period_los {
+                        point_period[vi] = Some((pd.displacement_mm, pd.sigma_mm));
+                    }
+                }
+            }
+            ser = Some(out_s);
+        }
+    }
     let kept: Vec<&PointVerdict> = verdicts
         .iter()
         .filter(|v| v.role == Role::Structure && v.rejected.is_none())
@@ -289,6 +349,13 @@ pub fn assess_structure(
             a.min_span_years
         ));
     }
+    if let Some(sr) = &ser {
+        if !sr.status.sufficient && reasons.is_empty() {
+            for r in &sr.status.reasons {
+                reasons.push(format!("time series insufficient: {r}"));
+            }
+        }
+    }
     let status = if reasons.is_empty() {
         Status::Assessed
     } else {
@@ -300,15 +367,6 @@ pub fn assess_structure(
                 .into(),
         );
     }
-    let vertical_velocity = if status == Status::Assessed {
-        let vs: Vec<f64> = kept
-            .iter()
-            .filter_map(|v| v.vertical_velocity_mm_per_yr)
-            .collect();
-        (!vs.is_empty()).then(|| vs.iter().sum::<f64>() / vs.len() as f64)
-    } else {
-        None
-    };
     if status == Status::Assessed {
         reasons.push("minimums met".into());
     }
@@ -319,24 +377,47 @@ pub fn assess_structure(
         .clone()
         .unwrap_or_else(|| s.raw.structure_type.clone());
     if status == Status::Assessed {
-        // Per-point period settlement in the structure's local frame (vertical projection of
-        // each point's own geometry; insar-methods §7.4).
+        let sr = ser.as_ref();
+        out.mean_vertical_mm = sr.and_then(|x| x.mean_vertical_mm);
+        out.mean_east_mm = sr.and_then(|x| x.mean_east_mm);
+        out.vertical_velocity_mm_per_yr = sr.and_then(|x| x.vertical_velocity_mm_per_yr);
+        out.vertical_velocity_se_mm_per_yr = sr.and_then(|x| x.se_vertical_velocity_mm_per_yr);
+        out.east_velocity_mm_per_yr = sr.and_then(|x| x.east_velocity_mm_per_yr);
+        out.east_velocity_se_mm_per_yr = sr.and_then(|x| x.se_east_velocity_mm_per_yr);
+        if let Some(x) = sr {
+            assumptions.extend(x.assumptions.iter().cloned());
+        }
+        let east_mm = out.mean_east_mm;
+        if east_mm.is_some() {
+            assumptions.push(
+                "per-point vertical displacement corrected for the structure's mean east–west displacement (both geometries); north–south motion neglected".into(),
+            );
+        }
+        // Per-point period settlement in the structure's local frame (insar-methods §7.4).
         let mut mpts = Vec::new();
-        for (m, (v, per)) in members.iter().zip(verdicts.iter().zip(&period)) {
+        let mut coh_sum = 0.0;
+        let mut coh_n = 0usize;
+        for (i, (m, v)) in members.iter().zip(&verdicts).enumerate() {
             if v.role != Role::Structure || v.rejected.is_some() {
                 continue;
             }
-            let Some((d_los, sigma)) = per else { continue };
+            if let Some(c) = m.point.coherence {
+                coh_sum += c as f64;
+                coh_n += 1;
+            }
+            let Some((d_los, sigma)) = point_period[i].or(period[i]) else {
+                continue;
+            };
             let u = point_unit(ctx, m);
             let (x, y) = s.frame.to_local(m.point.x, m.point.y);
-            let d_v = d_los / u[2];
+            let d_v = (d_los - u[0] * east_mm.unwrap_or(0.0)) / u[2];
             mpts.push(crate::metrics::MetricPoint {
                 x_m: x,
                 y_m: y,
                 settlement_mm: -d_v,
                 sigma_mm: sigma / u[2],
                 geometry: m.dataset,
-                los_mm: *d_los,
+                los_mm: d_los,
                 unit_enu: u,
             });
         }
@@ -349,7 +430,9 @@ pub fn assess_structure(
             crate::metrics::structure_metrics(&mpts, &s.footprint_local, s.raw.height_m, &mcfg);
         out.settlement_mm = met.settlement_mm;
         out.differential_settlement_mm = met.differential_settlement_mm;
-        out.mean_vertical_mm = met.mean_settlement_mm.map(|x| -x);
+        if out.mean_vertical_mm.is_none() {
+            out.mean_vertical_mm = met.mean_settlement_mm.map(|x| -x);
+        }
         out.tilt = met.tilt;
         out.tilt_se = met.tilt_se;
         out.tilt_azimuth_deg = met.tilt_azimuth_deg;
@@ -416,6 +499,44 @@ pub fn assess_structure(
         for r in &met.refusals {
             assumptions.push(format!("metric not computed: {r}"));
         }
+        // Evidence grade (grade.rs): the decisive metric is the governing strain, its SE scaled
+        // from the Monte Carlo SE of the deflection ratio.
+        let decisive = match (out.governing_strain, ctx.criteria.get(&criteria_name)) {
+            (Some(g), Ok(set)) if g > 0.0 => {
+                let rel = met
+                    .uncertainty
+                    .as_ref()
+                    .and_then(|u| u.deflection_ratio.as_ref())
+                    .zip(met.deflection_ratio)
+                    .filter(|(_, d)| d.abs() > 0.0)
+                    .map(|(sp, d)| sp.se / d.abs());
+                let nearest = set
+                    .thresholds
+                    .iter()
+                    .copied()
+                    .min_by(|x, y| (x - g).abs().total_cmp(&(y - g).abs()));
+                match (rel, nearest) {
+                    (Some(r), Some(b)) => Some(crate::grade::DecisiveMetric {
+                        name: "governing tensile strain".into(),
+                        value: g,
+                        se: r * g,
+                        nearest_boundary: b,
+                    }),
+                    _ => None,
+                }
+            }
+            _ => None,
+        };
+        let gi = crate::grade::GradeInputs::from_metrics(
+            &met,
+            Some(n_window_epochs),
+            Some(ctx.window.span_years()),
+            (coh_n > 0).then(|| coh_sum / coh_n as f64),
+            decisive,
+        );
+        let (g, why) = crate::grade::grade(&gi, &crate::grade::GradeThresholds::default());
+        out.evidence_grade = Some(g.name().to_string());
+        out.grade = serde_json::json!({"grade": g.name(), "reasons": why, "inputs": gi});
         out.metrics = serde_json::to_value(&met).unwrap_or_default();
     }
     let result = StructureResult {
@@ -430,9 +551,9 @@ pub fn assess_structure(
         settlement_mm: out.settlement_mm,
         differential_settlement_mm: out.differential_settlement_mm,
         mean_vertical_mm: out.mean_vertical_mm,
-        mean_east_mm: None,
-        vertical_velocity_mm_per_yr: vertical_velocity,
-        east_velocity_mm_per_yr: None,
+        mean_east_mm: out.mean_east_mm,
+        vertical_velocity_mm_per_yr: out.vertical_velocity_mm_per_yr,
+        east_velocity_mm_per_yr: out.east_velocity_mm_per_yr,
         tilt: out.tilt,
         tilt_azimuth_deg: out.tilt_azimuth_deg,
         angular_distortion: out.angular_distortion,
@@ -441,9 +562,9 @@ pub fn assess_structure(
         governing_strain: out.governing_strain,
         damage_category: out.damage_category,
         damage_route: out.damage_route,
-        evidence_grade: None,
-        vertical_velocity_se_mm_per_yr: None,
-        east_velocity_se_mm_per_yr: None,
+        evidence_grade: out.evidence_grade,
+        vertical_velocity_se_mm_per_yr: out.vertical_velocity_se_mm_per_yr,
+        east_velocity_se_mm_per_yr: out.east_velocity_se_mm_per_yr,
         tilt_se: out.tilt_se,
         damage_category_name: out.damage_category_name,
         criteria_set: out.criteria_set,
@@ -455,10 +576,13 @@ pub fn assess_structure(
         fallbacks: s.raw.fallbacks.clone(),
         assumptions,
         change: None,
-        series: serde_json::Value::Null,
+        series: ser
+            .as_ref()
+            .map(|x| serde_json::to_value(x).unwrap_or_default())
+            .unwrap_or_default(),
         metrics: out.metrics,
         damage: out.damage,
-        grade: serde_json::Value::Null,
+        grade: out.grade,
     };
     (result, verdicts)
 }
@@ -480,8 +604,22 @@ struct Filled {
     damage_category_name: Option<String>,
     damage_route: Option<String>,
     criteria_set: Option<String>,
+    mean_east_mm: Option<f64>,
+    vertical_velocity_mm_per_yr: Option<f64>,
+    vertical_velocity_se_mm_per_yr: Option<f64>,
+    east_velocity_mm_per_yr: Option<f64>,
+    east_velocity_se_mm_per_yr: Option<f64>,
+    evidence_grade: Option<String>,
+    grade: serde_json::Value,
     metrics: serde_json::Value,
     damage: serde_json::Value,
+}
+
+fn series_pass(p: crate::portfolio::Pass) -> crate::series::los::Pass {
+    match p {
+        crate::portfolio::Pass::Ascending => crate::series::los::Pass::Ascending,
+        crate::portfolio::Pass::Descending => crate::series::los::Pass::Descending,
+    }
 }
 
 /// LOS unit vector of a member point: per-point angles when mapped, else the dataset's.
