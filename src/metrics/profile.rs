@@ -27,7 +27,8 @@
 //!
 //! **Across-axis term.** By default the model also carries a linear term q·r in the across-axis
 //! coordinate r of each point (when the points spread at least `min_across_spread_m` across the
-//! axis; otherwise it is not identifiable and left out). Reason: a rigid tilt *across* the axis
+//! axis, and r is not a function of s as for points on a diagonal line; otherwise it is not
+//! identifiable and left out). Reason: a rigid tilt *across* the axis
 //! is rigid-body motion and must not create deflection; without the term it does whenever the
 //! point layout happens to correlate r with s or s² (e.g. the points at one end sit nearer one
 //! façade), and then a rigidly tilting block shows a spurious Δ/L. This departs from the §7.7
@@ -349,10 +350,18 @@ pub fn fit_profile(
         .force_across_term
         .unwrap_or(cfg.across_axis_term && across_sd >= cfg.min_across_spread_m)
         && across_sd > 0.0;
-    let across = use_across.then_some(across_sd);
-    let extra = usize::from(use_across);
-
-    let quad = poly_fit(samples, &geometries, centre, half, 2, across)?;
+    let mut across = use_across.then_some(across_sd);
+    // The across-axis term is not identifiable when r is (nearly) a function of s, e.g. points
+    // on a diagonal line; then the fit falls back to the plain §7.7 model.
+    let quad = match poly_fit(samples, &geometries, centre, half, 2, across) {
+        Ok(q) => q,
+        Err(_) if across.is_some() => {
+            across = None;
+            poly_fit(samples, &geometries, centre, half, 2, None)?
+        }
+        Err(e) => return Err(e),
+    };
+    let extra = usize::from(across.is_some());
     let bic = |rss: f64, k: usize| {
         let nf = n as f64;
         nf * (rss.max(f64::MIN_POSITIVE) / nf).ln() + k as f64 * nf.ln()
@@ -911,6 +920,27 @@ mod tests {
         assert!((t_critical_two_sided_5pct(60) - 2.000).abs() < 2e-3);
         assert!((t_critical_two_sided_5pct(120) - 1.980).abs() < 2e-3);
         assert!(t_critical_two_sided_5pct(0).is_infinite());
+    }
+
+    #[test]
+    fn diagonal_layout_falls_back_to_the_plain_model() {
+        // Points on a diagonal line across the footprint: r = 0.3·s exactly, so the across-axis
+        // term is not identifiable; the fit must still run (plain §7.7 model). Exact parabola
+        // S = 0.02·s² over [−10, 10]: Δ/L = −0.02·20/4·1e-3 = −1e-4 (hand-derived).
+        let pts: Vec<ProfileSample> = (0..9)
+            .map(|i| {
+                let s = -9.0 + 2.25 * i as f64;
+                ProfileSample {
+                    s_m: s,
+                    settlement_mm: 0.02 * s * s,
+                    geometry: 0,
+                    across_m: 0.3 * s,
+                }
+            })
+            .collect();
+        let fit = fit_profile(&pts, -10.0, 10.0, &ProfileConfig::default()).unwrap();
+        assert!(fit.across_slope_mm_per_m.is_none());
+        assert!((fit.deflection_ratio - (-1e-4)).abs() < 1e-12);
     }
 
     #[test]

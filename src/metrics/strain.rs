@@ -119,7 +119,7 @@ pub enum StrainError {
         min: f64,
     },
     #[error(
-        "{end} third of the axis has {geometries} viewing geometr(y/ies); both geometries are needed at both ends"
+        "{end} third of the axis has points from {geometries} viewing geometry(ies); both geometries are needed at both ends"
     )]
     MissingGeometry {
         end: &'static str,
