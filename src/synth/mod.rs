@@ -16,11 +16,13 @@
 //! - [`write`]: file writers;
 //! - [`demo`]: the demo portfolio; [`bench`]: large benchmark inputs, streamed.
 
+pub mod demo;
 pub mod frame;
 pub mod generate;
 pub mod model;
 pub mod shapes;
 pub mod truth;
+pub mod write;
 
 /// What went wrong while building or writing a synthetic scenario.
 #[derive(Debug, thiserror::Error)]

@@ -224,7 +224,7 @@ impl Trough {
             0.0
         };
         let tau_days = (date - self.face_start).num_days() as f64 - delay_days;
-        if !(tau_days > 0.0) {
+        if tau_days.is_nan() || tau_days <= 0.0 {
             0.0
         } else if self.time_constant_days <= 0.0 {
             1.0
