@@ -259,8 +259,7 @@ fn runtime_error_in_user_template_is_located() {
     let shared = ReportShared::with_template_dir(dir.path()).expect("shared");
     let job = asset_job("A").prepare().expect("prepare");
     let err = render_pdf(&shared, &job)
-        .err()
-        .expect("must fail")
+        .expect_err("must fail")
         .to_string();
     assert!(
         err.contains("/asset.typ:3:") && err.contains("no_such_key"),
@@ -279,8 +278,7 @@ fn world_refuses_package_imports() {
     let shared = ReportShared::with_template_dir(dir.path()).expect("shared");
     let job = asset_job("A").prepare().expect("prepare");
     let err = render_pdf(&shared, &job)
-        .err()
-        .expect("must fail")
+        .expect_err("must fail")
         .to_string();
     assert!(err.contains("package imports are disabled"), "{err}");
     assert!(err.contains("/asset.typ:1:"), "{err}");
@@ -312,8 +310,7 @@ fn world_refuses_paths_outside_the_template_folder() {
     .expect("write");
     let shared = ReportShared::with_template_dir(dir.path()).expect("shared");
     let err = render_pdf(&shared, &job)
-        .err()
-        .expect("absolute path must not resolve")
+        .expect_err("absolute path must not resolve")
         .to_string();
     assert!(err.contains("not found"), "{err}");
     // 3. A symlink inside the folder pointing out of it is refused.
@@ -323,8 +320,7 @@ fn world_refuses_paths_outside_the_template_folder() {
         std::fs::write(dir.path().join("asset.typ"), "#read(\"/link.txt\")\n").expect("write");
         let shared = ReportShared::with_template_dir(dir.path()).expect("shared");
         let err = render_pdf(&shared, &job)
-            .err()
-            .expect("symlink must be refused")
+            .expect_err("symlink must be refused")
             .to_string();
         assert!(err.contains("access denied"), "{err}");
         assert!(!err.contains("TOP-SECRET-VALUE"));

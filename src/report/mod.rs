@@ -8,6 +8,7 @@
 //! receives bytes), or the results record itself.
 //!
 //! Files:
+//! - [`build`]: adapter from the results record to the report model.
 //! - [`format`]: numbers to strings with units and fixed decimals.
 //! - [`model`]: `AssetReport`, `PortfolioReport` and the plain chart data structs.
 //! - [`charts`]: one SVG chart per file (time series, map, profile, interaction, portfolio map).
@@ -20,6 +21,7 @@
 //! Injection safety: templates are static `.typ` files; every per-report value reaches
 //! typst as data through `json("/data.json")` and is never parsed as markup.
 
+pub mod build;
 pub mod charts;
 pub mod format;
 pub mod model;

@@ -586,14 +586,14 @@ pub struct DatasetView {
     pub geometry: String,
     /// Incidence angle, e.g. "39.0°".
     pub incidence: String,
-    /// Number of epochs.
-    pub epochs: usize,
+    /// Number of epochs (text: "not stated" when the adapter does not know it).
+    pub epochs: String,
     /// First and last epoch, ISO.
     pub first_epoch: String,
     /// Last epoch, ISO.
     pub last_epoch: String,
-    /// Points of this data set kept for the structure.
-    pub points_kept: usize,
+    /// Points of this data set kept for the structure (text, as `epochs`).
+    pub points_kept: String,
 }
 
 /// Count of points rejected for one reason.
