@@ -499,8 +499,12 @@ pub fn read_points_from<R: std::io::BufRead>(
                             file,
                             format!("{}, column `{}`", loc(), headers[*col]),
                             format!(
-                                "displacement {v} {:?} = {mm:.0} mm is implausible (more than {MAX_ABS_DISPLACEMENT_MM} mm)",
-                                spec.unit
+                                "displacement {v} {} = {mm:.0} mm is implausible (more than {MAX_ABS_DISPLACEMENT_MM} mm)",
+                                if spec.unit == crate::portfolio::Unit::M {
+                                    "m"
+                                } else {
+                                    "mm"
+                                }
                             ),
                             "check the dataset's unit (\"mm\" or \"m\") and the column mapping",
                         ));
