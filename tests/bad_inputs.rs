@@ -116,10 +116,8 @@ fn run_case(dir: &Path) -> Vec<String> {
                 }
             }
         }
-        0 => {
-            if !stderr.contains("check passed") {
-                problems.push("exit 0 expected but no `check passed` line".into());
-            }
+        0 if !stderr.contains("check passed") => {
+            problems.push("exit 0 expected but no `check passed` line".into());
         }
         _ => {}
     }
