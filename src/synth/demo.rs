@@ -1003,6 +1003,10 @@ mod tests {
             tilt.period.tilt
         );
         assert!((tilt.period.tilt_azimuth_deg.unwrap_or(0.0) - 120.0).abs() < 1e-6);
+        // Uniform 2.0 mm/yr plus the 0.3 mm/yr background; a rigid tilt adds nothing to the mean
+        // of a rectangle, and the motion is linear, so both velocity truths are −2.3 mm/yr.
+        assert!((tilt.period.vertical_velocity_mm_per_yr + 2.3).abs() < 1e-6);
+        assert!((tilt.period.vertical_velocity_linear_fit_mm_per_yr + 2.3).abs() < 1e-6);
         // Sagging: Δ/L = +7.6e-4 over L = 24, H = 8 (L/H 3): Fb 0.71667 (damage-relations §2.5)
         // → ε_b = 1.0605e-3, category 2 (0.075-0.15 %).
         let sag = by(SAGGING_ID);

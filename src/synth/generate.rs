@@ -186,9 +186,18 @@ fn assign_jumps(
                     j.from_date
                 ))
             })?;
+        // The inside point with the highest coherence (first on ties): its noise is lowest, so the
+        // planted error stands out as clearly as in insar-methods §5.12 Series E.
         let p = points
             .iter_mut()
-            .find(|p| p.structure == Some(k) && p.role == PointRole::Inside)
+            .filter(|p| p.structure == Some(k) && p.role == PointRole::Inside)
+            .reduce(|best, p| {
+                if p.coherence > best.coherence {
+                    p
+                } else {
+                    best
+                }
+            })
             .ok_or_else(|| {
                 SynthError::Scenario(format!(
                     "unwrapping jump on `{}` but it has no inside point in geometry {g}",

@@ -16,6 +16,7 @@
 //! - [`write`]: file writers;
 //! - [`demo`]: the demo portfolio; [`bench`]: large benchmark inputs, streamed.
 
+pub mod bench;
 pub mod demo;
 pub mod frame;
 pub mod generate;

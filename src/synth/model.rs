@@ -381,7 +381,7 @@ impl NoiseModel {
 pub struct UnwrapJump {
     /// Geometry index.
     pub geometry: usize,
-    /// Structure id whose points receive it (the first inside point of that structure).
+    /// Structure id whose point receives it (its inside point with the highest coherence).
     pub structure_id: String,
     /// First date carrying the jump (the nearest acquisition on or after it).
     pub from_date: NaiveDate,

@@ -215,6 +215,12 @@ pub struct PeriodTruth {
     pub settlement_rate_mm_per_yr: f64,
     /// Mean vertical velocity over the window, mm/yr, up positive (= −settlement rate).
     pub vertical_velocity_mm_per_yr: f64,
+    /// Slope of an ordinary least-squares line through the footprint-mean vertical displacement
+    /// (noise-free, no seasonal term) at the first geometry's acquisitions inside the window,
+    /// mm/yr, up positive. Differs from `vertical_velocity_mm_per_yr` when the motion is not
+    /// linear in time (trough, breakpoint, acceleration); this is the value a linear-trend fit
+    /// of clean data would return.
+    pub vertical_velocity_linear_fit_mm_per_yr: f64,
     /// Mean east displacement, mm.
     pub east_displacement_mm: f64,
     /// Plane-fit tilt magnitude, dimensionless (m/m).
@@ -385,18 +391,21 @@ pub fn default_window(sc: &Scenario) -> Option<TruthWindow> {
     })
 }
 
-/// Sample grid inside a footprint (cell centres), spacing chosen for ≥ ~2000 samples.
-fn footprint_samples(sc: &Scenario, k: usize) -> Vec<[f64; 2]> {
+/// Sample grid inside a footprint (cell centres), about `target` cells over the footprint area.
+fn footprint_samples(sc: &Scenario, k: usize, target: f64) -> Vec<[f64; 2]> {
     let fp = &sc.structures[k].footprint;
     let area = fp.area_m2();
-    let h = (area / 4000.0).sqrt().clamp(0.02, 1.0);
+    let h = (area / target).sqrt().clamp(0.02, 1.0);
     let b = fp.bbox();
     let mut out = Vec::new();
-    let nx = ((b[2] - b[0]) / h).ceil() as usize;
-    let ny = ((b[3] - b[1]) / h).ceil() as usize;
+    // Cells fill the bounding box exactly, so the grid is symmetric about its centre (no bias of
+    // the mean of a tilt over a rectangle).
+    let nx = (((b[2] - b[0]) / h).ceil() as usize).max(1);
+    let ny = (((b[3] - b[1]) / h).ceil() as usize).max(1);
+    let (hx, hy) = ((b[2] - b[0]) / nx as f64, (b[3] - b[1]) / ny as f64);
     for i in 0..nx {
         for j in 0..ny {
-            let q = [b[0] + (i as f64 + 0.5) * h, b[1] + (j as f64 + 0.5) * h];
+            let q = [b[0] + (i as f64 + 0.5) * hx, b[1] + (j as f64 + 0.5) * hy];
             if fp.contains(q) {
                 out.push(q);
             }
@@ -423,7 +432,7 @@ fn lstsq(rows: &[Vec<f64>], y: &[f64]) -> Option<Vec<f64>> {
 /// Period quantities of structure `k` over `w` (see the module doc). None for a degenerate footprint.
 pub fn period_truth(sc: &Scenario, k: usize, w: &TruthWindow) -> Option<PeriodTruth> {
     let ax = sc.axis(k)?;
-    let samples = footprint_samples(sc, k);
+    let samples = footprint_samples(sc, k, 4000.0);
     if samples.len() < 10 {
         return None;
     }
@@ -446,7 +455,12 @@ pub fn period_truth(sc: &Scenario, k: usize, w: &TruthWindow) -> Option<PeriodTr
         .collect();
     let plane = lstsq(&plane_rows, &s)?;
     let (gb, gc) = (plane[1], plane[2]); // mm/m, gradient of settlement (E, N)
-    let tilt = (gb * gb + gc * gc).sqrt() * 1e-3;
+    // Round-off of the dense fits (~1e-15) is not a tilt or a curvature: below these floors the
+    // planted value is exactly zero and is reported as 0 (with no direction).
+    let mut tilt = (gb * gb + gc * gc).sqrt() * 1e-3;
+    if tilt < 1e-10 {
+        tilt = 0.0;
+    }
     let quad_rows: Vec<Vec<f64>> = samples
         .iter()
         .map(|&q| {
@@ -455,9 +469,39 @@ pub fn period_truth(sc: &Scenario, k: usize, w: &TruthWindow) -> Option<PeriodTr
         })
         .collect();
     let quad = lstsq(&quad_rows, &s)?;
-    let p2 = quad[2];
+    let p2 = if (quad[2] * ax.length_m).abs() < 1e-9 {
+        0.0
+    } else {
+        quad[2]
+    };
     let l = ax.length_m;
     let span = w.span_years;
+    // Linear-fit velocity of the footprint-mean series (a coarser symmetric grid is enough).
+    let sub = footprint_samples(sc, k, 400.0);
+    let epochs: Vec<NaiveDate> = sc
+        .geometries
+        .first()
+        .map(|g| {
+            g.dates()
+                .into_iter()
+                .filter(|d| *d >= w.start && *d <= w.end)
+                .collect()
+        })
+        .unwrap_or_default();
+    let series: Vec<(f64, f64)> = epochs
+        .iter()
+        .map(|d| {
+            let up = sub
+                .iter()
+                .map(|&q| sc.displacement_enu_mm(Some(k), q, *d, false)[2])
+                .sum::<f64>()
+                / sub.len() as f64;
+            (years_between(w.start, *d), up)
+        })
+        .collect();
+    let fit_rows: Vec<Vec<f64>> = series.iter().map(|(t, _)| vec![1.0, *t]).collect();
+    let fit_y: Vec<f64> = series.iter().map(|(_, u)| *u).collect();
+    let linear_fit = lstsq(&fit_rows, &fit_y).map(|c| c[1]).unwrap_or(f64::NAN);
     let rate = if span > 0.0 { mean / span } else { f64::NAN };
     Some(PeriodTruth {
         settlement_mean_mm: mean,
@@ -466,6 +510,7 @@ pub fn period_truth(sc: &Scenario, k: usize, w: &TruthWindow) -> Option<PeriodTr
         differential_settlement_mm: max - min,
         settlement_rate_mm_per_yr: rate,
         vertical_velocity_mm_per_yr: -rate,
+        vertical_velocity_linear_fit_mm_per_yr: linear_fit,
         east_displacement_mm: east,
         tilt,
         tilt_one_in: if tilt > 0.0 { Some(1.0 / tilt) } else { None },
