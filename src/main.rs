@@ -63,6 +63,7 @@ fn dispatch(cli: &Cli) -> anyhow::Result<()> {
             Ok(())
         }
         Command::Init { dir } => plinth::init::scaffold(dir),
+        Command::Demo { dir } => plinth::synth::demo::write_demo(dir),
         Command::Completions { shell } => {
             let mut cmd = Cli::command();
             clap_complete::generate(*shell, &mut cmd, "plinth", &mut std::io::stdout());

@@ -60,6 +60,11 @@ pub enum Command {
         /// Folder to create (must not exist or be empty).
         dir: PathBuf,
     },
+    /// Write the invented demo portfolio (deterministic) into a folder.
+    Demo {
+        /// Folder to write (created if missing; generated files are replaced).
+        dir: PathBuf,
+    },
     /// Print shell completions to stdout.
     Completions {
         /// Shell.

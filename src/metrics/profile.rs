@@ -261,6 +261,10 @@ pub enum ProfileError {
     DegenerateExtent { length_m: f64 },
     #[error("non-finite input")]
     NonFinite,
+    #[error(
+        "points sit at only {distinct} distinct positions along the axis; a curved profile needs at least 3"
+    )]
+    TooFewPositions { distinct: usize },
     #[error("profile fit failed: {0}")]
     Solve(String),
 }
@@ -335,6 +339,23 @@ pub fn fit_profile(
             needed: cfg.min_axis_coverage,
         });
     }
+    // Distinct positions along the axis (to 0.25 m): a quadratic needs 3, a cubic 4 (with 2 in
+    // each third). Points in a few rows across a narrow axis would otherwise make the fit
+    // unidentifiable and the curvature meaningless (Plinth choice; found on a 3-row layout).
+    let positions: Vec<f64> = {
+        let mut v: Vec<i64> = samples
+            .iter()
+            .map(|p| (p.s_m / 0.25).round() as i64)
+            .collect();
+        v.sort_unstable();
+        v.dedup();
+        v.into_iter().map(|k| k as f64 * 0.25).collect()
+    };
+    if positions.len() < 3 {
+        return Err(ProfileError::TooFewPositions {
+            distinct: positions.len(),
+        });
+    }
     let centre = 0.5 * (s_min_m + s_max_m);
     let half = 0.5 * length_m;
     let across_sd = {
@@ -372,7 +393,14 @@ pub fn fit_profile(
         let c1 = samples.iter().filter(|p| p.s_m < s_min_m + third).count();
         let c3 = samples.iter().filter(|p| p.s_m > s_max_m - third).count();
         let c2 = n - c1 - c3;
-        c1 >= 2 && c2 >= 2 && c3 >= 2
+        let third_positions =
+            |lo: f64, hi: f64| positions.iter().filter(|&&x| x >= lo && x < hi).count();
+        c1 >= 2
+            && c2 >= 2
+            && c3 >= 2
+            && positions.len() >= 4
+            && third_positions(f64::NEG_INFINITY, s_min_m + third) >= 1
+            && third_positions(s_max_m - third, f64::INFINITY) >= 1
     };
     let cubic_eligible = effective >= cfg.min_points_cubic && thirds_ok && n > g + 3 + extra;
     let cubic = if (cubic_eligible && cfg.force_degree.is_none()) || cfg.force_degree == Some(3) {

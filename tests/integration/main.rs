@@ -2,3 +2,4 @@
 
 mod fixture;
 mod foundation;
+mod metrics;
