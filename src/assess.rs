@@ -206,7 +206,16 @@ pub fn assess_structure(
         });
         let cos_inc = m.point.incidence_deg.to_radians().cos();
         let vv = vel.map(|v| v / cos_inc);
-        if rejected.is_none() && m.role == Role::Structure {
+        // Points whose series shows an unwrapping-jump candidate are left out of the velocity
+        // outlier screen: the time-series stage decides on them (and names the reason).
+        let jump_candidate = rejected.is_none()
+            && !crate::series::jumps::detect_jumps(
+                &v,
+                ctx.portfolio.datasets[m.dataset].wavelength_mm,
+            )
+            .flags
+            .is_empty();
+        if rejected.is_none() && m.role == Role::Structure && !jump_candidate {
             if let Some(vl) = vel {
                 kept_by_ds
                     .entry(m.dataset)

@@ -70,7 +70,11 @@ pub struct JumpScan {
 /// 2. Candidate where |Δd| > λ/4 and, with k = round(Δd/(λ/2)) ≠ 0,
 ///    |Δd − k·λ/2| < max(3σ_Δ, 0.15·λ/2).
 ///
-/// The notes' step 3 (confirmation by neighbouring points) is done per structure by the caller.
+/// 3. Persistence (the step model of §5.8, reduced): the level change between the median of up
+///    to 3 valid epochs after the step and the median of up to 3 before it must also lie within
+///    the tolerance of k·λ/2. A single-epoch noise spike (up, then back down) is not a jump.
+///
+/// The notes' confirmation by neighbouring points is done per structure by the caller.
 ///
 /// # Units
 /// mm LOS (positive towards the satellite); `wavelength_mm` in mm.
@@ -131,7 +135,19 @@ pub fn detect_jumps(values_mm: &[f64], wavelength_mm: f64) -> JumpScan {
             }
             let cycle_jump_mm = k * half;
             let misfit_mm = (step_mm - cycle_jump_mm).abs();
-            (misfit_mm < tolerance).then_some(JumpFlag {
+            let pos = valid.iter().position(|v| v.0 == after_index)?;
+            let before: Vec<f64> = valid[pos.saturating_sub(3)..pos]
+                .iter()
+                .map(|v| v.1)
+                .collect();
+            let after: Vec<f64> = valid[pos..(pos + 3).min(valid.len())]
+                .iter()
+                .map(|v| v.1)
+                .collect();
+            let level_change =
+                median(&after).unwrap_or(f64::NAN) - median(&before).unwrap_or(f64::NAN);
+            let persists = (level_change - cycle_jump_mm).abs() < tolerance;
+            (misfit_mm < tolerance && persists).then_some(JumpFlag {
                 before_index,
                 after_index,
                 step_mm,
@@ -229,5 +245,26 @@ mod tests {
         let smooth: Vec<f64> = (0..30).map(|i| -10.0 * i as f64).collect();
         assert!(detect_jumps(&smooth, lambda).flags.is_empty());
         assert!(detect_jumps(&[1.0], lambda).flags.is_empty());
+    }
+}
+
+#[cfg(test)]
+mod persistence_tests {
+    use super::*;
+
+    #[test]
+    fn single_epoch_spike_is_not_a_jump() {
+        // A +15 mm spike at one epoch that returns to the trend is noise, not a λ/2 step
+        // (persistence rule, insar-methods §5.10 step 3 / §5.8 step model).
+        let lambda = wavelength_mm(C_BAND_FREQUENCY_HZ);
+        let mut d: Vec<f64> = (0..30).map(|i| -0.1 * i as f64).collect();
+        d[15] += 15.0;
+        assert!(detect_jumps(&d, lambda).flags.is_empty());
+        // The same series with a real step of λ/2 at epoch 15 is flagged once.
+        let mut e: Vec<f64> = (0..30).map(|i| -0.1 * i as f64).collect();
+        for v in e.iter_mut().skip(15) {
+            *v -= lambda / 2.0;
+        }
+        assert_eq!(detect_jumps(&e, lambda).flags.len(), 1);
     }
 }
