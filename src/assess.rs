@@ -231,13 +231,26 @@ pub fn assess_structure(
             vertical_velocity_mm_per_yr: vv,
         });
     }
-    // MAD outliers on LOS velocity per geometry (insar-methods §7.3): robust z > outlier_z;
-    // no rejection when MAD = 0 or fewer than 5 points.
+    // MAD outliers on LOS velocity per geometry (insar-methods §7.3): robust z > outlier_z; no
+    // rejection when MAD = 0 or fewer than 5 points. With 6 or more points the screen runs on the
+    // residuals of a least-squares plane through the velocities (the §7.3 second pass [D]): a
+    // genuinely tilting or bending building spreads raw velocities, and its extreme but correct
+    // points must not be rejected as outliers.
     for list in kept_by_ds.values() {
         if list.len() < 5 {
             continue;
         }
-        let mut vals: Vec<f64> = list.iter().map(|x| x.1).collect();
+        let xy: Vec<(f64, f64)> = list
+            .iter()
+            .map(|(vi, _)| s.frame.to_local(members[*vi].point.x, members[*vi].point.y))
+            .collect();
+        let raw: Vec<f64> = list.iter().map(|x| x.1).collect();
+        let resid = if list.len() >= 6 {
+            plane_residuals(&xy, &raw).unwrap_or_else(|| raw.clone())
+        } else {
+            raw.clone()
+        };
+        let mut vals = resid.clone();
         vals.sort_by(f64::total_cmp);
         let med = median_sorted(&vals);
         let mut dev: Vec<f64> = vals.iter().map(|v| (v - med).abs()).collect();
@@ -247,8 +260,8 @@ pub fn assess_structure(
             continue;
         }
         let sigma = 1.4826 * mad;
-        for (vi, v) in list {
-            if ((v - med) / sigma).abs() > a.outlier_z {
+        for ((vi, _), r) in list.iter().zip(&resid) {
+            if ((r - med) / sigma).abs() > a.outlier_z {
                 verdicts[*vi].rejected = Some(reason::OUTLIER_VELOCITY);
             }
         }
@@ -667,6 +680,27 @@ pub fn fnv(text: &str) -> u64 {
         h = h.wrapping_mul(0x0100_0000_01b3);
     }
     h
+}
+
+/// Residuals of the least-squares plane v = a + b·x + c·y (x, y in m); None when the points are
+/// (nearly) collinear and the plane is not determined.
+fn plane_residuals(xy: &[(f64, f64)], v: &[f64]) -> Option<Vec<f64>> {
+    let n = v.len();
+    let a = nalgebra::DMatrix::from_fn(n, 3, |i, j| match j {
+        0 => 1.0,
+        1 => xy[i].0,
+        _ => xy[i].1,
+    });
+    let b = nalgebra::DVector::from_column_slice(v);
+    let svd = a.clone().svd(true, true);
+    let smax = svd.singular_values.max();
+    let smin = svd.singular_values.min();
+    if !(smin > 1e-9 * smax.max(1.0)) || smin < 1.0 {
+        return None; // collinear (spread along one direction below ~1 m)
+    }
+    let coef = svd.solve(&b, 1e-12).ok()?;
+    let fit = a * coef;
+    Some((0..n).map(|i| v[i] - fit[i]).collect())
 }
 
 fn median_sorted(v: &[f64]) -> f64 {
