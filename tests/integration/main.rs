@@ -3,3 +3,5 @@
 mod fixture;
 mod foundation;
 mod metrics;
+mod demo;
+mod series;
