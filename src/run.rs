@@ -121,11 +121,25 @@ pub fn window_for(
         last
     });
     if end <= start {
+        let (key, hint) = match (pf.start, pf.end) {
+            (None, None) => (
+                "key datasets",
+                "the datasets share only one acquisition date: at least two (normally 20 or more over a year) are needed",
+            ),
+            (Some(_), _) => (
+                "key portfolio.start",
+                "set start before end, inside the data's common span",
+            ),
+            (None, Some(_)) => (
+                "key portfolio.end",
+                "set end after the first common acquisition",
+            ),
+        };
         return Err(InputError::new(
             &pf.file,
-            "key portfolio.start",
+            key,
             format!("the window {start} to {end} is empty"),
-            "set start before end, inside the data's common span",
+            hint,
         ));
     }
     for (d, spec) in datasets.iter().zip(&pf.datasets) {

@@ -355,7 +355,26 @@ pub fn parse_footprints(
                 ));
             }
         };
-        if footprint.unsigned_area() <= 0.0 {
+        // A ring whose vertices are all collinear has zero area; a crossed ("bow-tie") ring can
+        // also have zero net signed area, so the zero-area message is given only when the ring
+        // is otherwise valid or degenerate, and self-intersection is reported first.
+        let collinear = footprint.0.iter().all(|p| {
+            let c = &p.exterior().0;
+            let (mut minx, mut miny, mut maxx, mut maxy) = (f64::MAX, f64::MAX, f64::MIN, f64::MIN);
+            for q in c {
+                minx = minx.min(q.x);
+                miny = miny.min(q.y);
+                maxx = maxx.max(q.x);
+                maxy = maxy.max(q.y);
+            }
+            let scale2 = ((maxx - minx).powi(2) + (maxy - miny).powi(2)).max(f64::MIN_POSITIVE);
+            c.windows(3).all(|w| {
+                ((w[1].x - w[0].x) * (w[2].y - w[0].y) - (w[1].y - w[0].y) * (w[2].x - w[0].x))
+                    .abs()
+                    <= 1e-9 * scale2
+            })
+        });
+        if collinear {
             return Err(InputError::new(
                 path,
                 &loc,
@@ -369,6 +388,14 @@ pub fn parse_footprints(
                 &loc,
                 format!("the footprint is not a valid polygon: {e}"),
                 "fix self-intersections and overlapping parts in a GIS (e.g. a 'make valid' tool)",
+            ));
+        }
+        if footprint.unsigned_area() <= 0.0 {
+            return Err(InputError::new(
+                path,
+                &loc,
+                "the footprint has zero area",
+                "a footprint must enclose an area; check for repeated or collinear vertices",
             ));
         }
         let mut fallbacks = Vec::new();

@@ -343,7 +343,7 @@ def _(f):
                                        'crs = "EPSG:32650"\nstart = "2022-01-01"\nend = "2022-02-01"\n')
 
 
-@case("csv-single-epoch-default-window", 2, ["portfolio.toml", "key portfolio.start", "2022-01-05 to 2022-01-05 is empty"],
+@case("csv-single-epoch-default-window", 2, ["portfolio.toml", "key datasets", "only one acquisition"],
       note="current behaviour: one acquisition and no explicit window gives an empty default window (an error blaming portfolio.start, which the file does not set; listed as a defect)")
 def _(f):
     rows = [r[:5] for r in points_rows()]
@@ -460,7 +460,7 @@ def _(f):
     f["structures.geojson"] = geojson([feature("H-1", r)])
 
 
-@case("geo-self-intersecting-symmetric", 2, ["structures.geojson", "feature 0", "zero area"],
+@case("geo-self-intersecting-symmetric", 2, ["structures.geojson", "feature 0", "not a valid polygon"],
       note="a symmetric bow-tie (two corners of the rectangle swapped); current behaviour: the lobes' signed "
            "areas cancel and it is reported as zero area, not as self-intersecting (listed as a defect)")
 def _(f):
