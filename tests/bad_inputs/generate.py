@@ -344,7 +344,7 @@ def _(f):
 
 
 @case("csv-single-epoch-default-window", 2, ["portfolio.toml", "key datasets", "only one acquisition"],
-      note="current behaviour: one acquisition and no explicit window gives an empty default window (an error blaming portfolio.start, which the file does not set; listed as a defect)")
+      note="one acquisition and no explicit window: no assessment window can be formed; the error says the datasets share only one date")
 def _(f):
     rows = [r[:5] for r in points_rows()]
     f["points.csv"] = csv_text(rows)
@@ -461,8 +461,8 @@ def _(f):
 
 
 @case("geo-self-intersecting-symmetric", 2, ["structures.geojson", "feature 0", "not a valid polygon"],
-      note="a symmetric bow-tie (two corners of the rectangle swapped); current behaviour: the lobes' signed "
-           "areas cancel and it is reported as zero area, not as self-intersecting (listed as a defect)")
+      note="a symmetric bow-tie (two corners of the rectangle swapped): the lobes' signed areas cancel, "
+           "but it is reported as self-intersecting, not as zero area")
 def _(f):
     r = footprint_ring()
     r[1], r[2] = r[2], r[1]
