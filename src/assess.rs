@@ -695,7 +695,7 @@ fn plane_residuals(xy: &[(f64, f64)], v: &[f64]) -> Option<Vec<f64>> {
     let svd = a.clone().svd(true, true);
     let smax = svd.singular_values.max();
     let smin = svd.singular_values.min();
-    if !(smin > 1e-9 * smax.max(1.0)) || smin < 1.0 {
+    if smin.is_nan() || smin <= 1e-9 * smax.max(1.0) || smin < 1.0 {
         return None; // collinear (spread along one direction below ~1 m)
     }
     let coef = svd.solve(&b, 1e-12).ok()?;

@@ -1,7 +1,7 @@
 //! End-to-end tests of the `plinth` binary on small fixture portfolios, one module per topic.
 
+mod demo;
 mod fixture;
 mod foundation;
 mod metrics;
-mod demo;
 mod series;
