@@ -284,12 +284,25 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
     };
     let ids: Vec<&str> = structures.iter().map(|s| s.raw.id.as_str()).collect();
     let stems = output::safe_names::assign(&ids);
+    let bar = if opts.progress {
+        indicatif::ProgressBar::new(structures.len() as u64).with_style(
+            indicatif::ProgressStyle::with_template("assessing {bar:30} {pos}/{len} structures ({eta})")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+        )
+    } else {
+        indicatif::ProgressBar::hidden()
+    };
     let assessed: Vec<(StructureResult, Vec<assess::PointVerdict>)> = structures
         .par_iter()
         .zip(members.par_iter())
         .zip(stems.par_iter())
-        .map(|((s, m), stem)| assess::assess_structure(&ctx, s, m, Some(stem.clone())))
+        .map(|((s, m), stem)| {
+            let r = assess::assess_structure(&ctx, s, m, Some(stem.clone()));
+            bar.inc(1);
+            r
+        })
         .collect();
+    bar.finish_and_clear();
 
     // points.csv rows: one per (point, structure link), plus ties.
     let mut verdict_map: BTreeMap<VerdictKey, VerdictValue> = BTreeMap::new();
@@ -619,6 +632,10 @@ pub fn write(a: &Analysis, opts: &RunOptions, out: &Path) -> Result<()> {
             "manifest.json",
             (serde_json::to_string_pretty(&m)? + "\n").as_bytes(),
         )?;
+        // PDF reports (report::pipeline); a failure abandons the staging folder below.
+        if !opts.no_reports {
+            crate::report::pipeline::render_reports(a, &staging.dir, opts.jobs, opts.progress)?;
+        }
         Ok(())
     })();
     match res {
