@@ -286,8 +286,10 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
     let stems = output::safe_names::assign(&ids);
     let bar = if opts.progress {
         indicatif::ProgressBar::new(structures.len() as u64).with_style(
-            indicatif::ProgressStyle::with_template("assessing {bar:30} {pos}/{len} structures ({eta})")
-                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+            indicatif::ProgressStyle::with_template(
+                "assessing {bar:30} {pos}/{len} structures ({eta})",
+            )
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
         )
     } else {
         indicatif::ProgressBar::hidden()

@@ -15,6 +15,7 @@
 //! - [`text`]: minijinja text blocks rendered to plain text.
 //! - [`world`]: the typst `World` (fonts, templates, virtual files, file-access rules).
 //! - [`render`]: `render_pdf`, `render_batch`, diagnostics with file:line:col.
+//! - [`pipeline`]: from a finished analysis to the PDFs and model JSON in the output folder.
 //! - [`references`]: full citations for the provenance section.
 //! - [`sample`]: invented sample data for tests and template previews.
 //!
@@ -25,6 +26,7 @@ pub mod build;
 pub mod charts;
 pub mod format;
 pub mod model;
+pub mod pipeline;
 pub mod references;
 pub mod render;
 pub mod sample;
