@@ -457,6 +457,16 @@ pub fn assess_structure(
         }
         out.tilt = met.tilt;
         out.tilt_se = met.tilt_se;
+        out.deflection_ratio_se = met
+            .uncertainty
+            .as_ref()
+            .and_then(|u| u.deflection_ratio.as_ref())
+            .map(|sp| sp.se);
+        out.angular_distortion_se = met
+            .uncertainty
+            .as_ref()
+            .and_then(|u| u.angular_distortion.as_ref())
+            .map(|sp| sp.se);
         out.tilt_azimuth_deg = met.tilt_azimuth_deg;
         out.angular_distortion = met.angular_distortion;
         out.deflection_ratio = met.deflection_ratio;
@@ -588,6 +598,8 @@ pub fn assess_structure(
         vertical_velocity_se_mm_per_yr: out.vertical_velocity_se_mm_per_yr,
         east_velocity_se_mm_per_yr: out.east_velocity_se_mm_per_yr,
         tilt_se: out.tilt_se,
+        deflection_ratio_se: out.deflection_ratio_se,
+        angular_distortion_se: out.angular_distortion_se,
         damage_category_name: out.damage_category_name,
         criteria_set: out.criteria_set,
         height_m: s.raw.height_m,
@@ -617,6 +629,8 @@ struct Filled {
     mean_vertical_mm: Option<f64>,
     tilt: Option<f64>,
     tilt_se: Option<f64>,
+    deflection_ratio_se: Option<f64>,
+    angular_distortion_se: Option<f64>,
     tilt_azimuth_deg: Option<f64>,
     angular_distortion: Option<f64>,
     deflection_ratio: Option<f64>,

@@ -117,6 +117,12 @@ pub struct StructureResult {
     pub east_velocity_se_mm_per_yr: Option<f64>,
     /// Standard error of the tilt, m/m.
     pub tilt_se: Option<f64>,
+    /// Standard error of the deflection ratio (Monte Carlo over the points' noise), dimensionless.
+    #[serde(default)]
+    pub deflection_ratio_se: Option<f64>,
+    /// Standard error of the angular distortion (Monte Carlo over the points' noise), dimensionless.
+    #[serde(default)]
+    pub angular_distortion_se: Option<f64>,
     /// Name of the damage category.
     pub damage_category_name: Option<String>,
     /// Criteria set used.
@@ -179,6 +185,8 @@ pub const SCALAR_FIELDS: &[&str] = &[
     "vertical_velocity_se_mm_per_yr",
     "east_velocity_se_mm_per_yr",
     "tilt_se",
+    "deflection_ratio_se",
+    "angular_distortion_se",
     "damage_category_name",
     "criteria_set",
     "height_m",
