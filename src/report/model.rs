@@ -938,7 +938,11 @@ impl AssetCharts {
                 Some(p) => slot(
                     p,
                     *file,
-                    "Settlement along the principal axis (mm, positive down, plotted downward).",
+                    if i == 0 {
+                        "Settlement along the principal (long) axis (mm, positive down, plotted downward)."
+                    } else {
+                        "Settlement along the secondary (short) axis (mm, positive down, plotted downward)."
+                    },
                 ),
                 None => FigureSlot::missing(*file, "no profile along this axis"),
             })

@@ -35,6 +35,7 @@
 //! - Evidence-grade counts of the overview use the pipeline's grade names (robust, adequate,
 //!   indicative, insufficient, then any other label), not the generic order of the model.
 
+use std::borrow::Cow;
 use std::collections::BTreeMap;
 use std::path::Path;
 use std::sync::Mutex;
@@ -1053,6 +1054,19 @@ fn interaction_chart(
 // Asset job
 // ---------------------------------------------------------------------------------------------
 
+/// The record as the report adapter should read it: the run's "no level exceeded" status
+/// (`triggers::NONE_EXCEEDED`) becomes `None`, which the adapter words as "no trigger level
+/// exceeded" (it would otherwise print the status code followed by "exceeded").
+fn for_display(r: &StructureResult) -> Cow<'_, StructureResult> {
+    if r.trigger_status.as_deref() == Some(crate::triggers::NONE_EXCEEDED) {
+        let mut c = r.clone();
+        c.trigger_status = None;
+        Cow::Owned(c)
+    } else {
+        Cow::Borrowed(r)
+    }
+}
+
 /// The structure report model and its chart data.
 fn asset_job(
     a: &Analysis,
@@ -1063,7 +1077,7 @@ fn asset_job(
     criteria: &crate::criteria::CriteriaRegistry,
     lookup: &PointLookup,
 ) -> Result<ReportJob> {
-    let mut model = build::asset_report(r, ctx, blocks)
+    let mut model = build::asset_report(&for_display(r), ctx, blocks)
         .with_context(|| format!("report model for `{}`", r.id))?;
     let metrics: Result<MetricsJson, String> = match r.status {
         Status::Assessed => mirror(&r.metrics, "metrics"),
@@ -1203,7 +1217,12 @@ fn category_text(c: Option<u8>, status: Option<Status>) -> String {
 /// The overview model and its map.
 fn portfolio_job(a: &Analysis, ctx: &ReportContext, blocks: &TextBlocks) -> Result<ReportJob> {
     let res = &a.results;
-    let rows = rank_rows(res.structures.iter().map(build::rank_input).collect());
+    let rows = rank_rows(
+        res.structures
+            .iter()
+            .map(|r| build::rank_input(&for_display(r)))
+            .collect(),
+    );
     let n_not = rows.iter().filter(|r| r.rank.is_none()).count();
     let text_ctx = TextContext::new()
         .text("portfolio_name", one_line(&res.portfolio.name))
@@ -1377,4 +1396,3 @@ fn portfolio_map(a: &Analysis) -> Result<PortfolioMapChart, String> {
         structures,
     })
 }
-
