@@ -142,7 +142,7 @@ pub fn render_reports(
     let all_jobs = asset_jobs.chain(std::iter::once(portfolio_job));
 
     let mut files: Vec<String> = Vec::new();
-    let mut failures: Vec<String> = Vec::new();
+    let mut failures: Vec<(usize, String)> = Vec::new();
     let mut write_error: Option<anyhow::Error> = None;
     let summary = render_batch(&shared, all_jobs, n_threads, progress, |out| {
         let stem = stems.get(out.index);
@@ -172,7 +172,7 @@ pub fn render_reports(
                     write_error.get_or_insert(e);
                 }
             }
-            Err(e) => failures.push(format!("report for `{}` failed: {e}", out.ident)),
+            Err(e) => failures.push((out.index, format!("report for `{}` failed: {e}", out.ident))),
         }
     });
     if let Ok(mut slot) = build_error.lock() {
@@ -184,9 +184,11 @@ pub fn render_reports(
         return Err(e);
     }
     if !failures.is_empty() {
-        // Every document of a broken template fails the same way: show the first in full.
+        // Every document of a broken template fails the same way: show the first (in input
+        // order, so the message does not depend on thread timing) in full.
+        failures.sort();
         let n = failures.len();
-        let mut msg = failures.swap_remove(0);
+        let mut msg = failures.swap_remove(0).1;
         if n > 1 {
             msg.push_str(&format!("\n({} more report(s) failed)", n - 1));
         }

@@ -2,6 +2,8 @@
 
 mod demo;
 mod fixture;
+mod limits;
 mod foundation;
 mod metrics;
+mod reports;
 mod series;
