@@ -1398,3 +1398,179 @@ fn portfolio_map(a: &Analysis) -> Result<PortfolioMapChart, String> {
         structures,
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use serde_json::json;
+
+    /// A sagging parabola S(s) = 20 − 0.1·s² mm over s ∈ [−10, 10] m, sampled every 1 m.
+    /// Hand-derived: S(0) = 20 mm, S(±10) = 10 mm, so Δ = 10 mm at s = 0 and Δ/L = 10 mm / 20 m
+    /// = 5e-4.
+    fn sagging_axis() -> AxisJson {
+        let curve: Vec<serde_json::Value> = (-10..=10)
+            .map(|i| {
+                let s = f64::from(i);
+                json!({"s_m": s, "settlement_mm": 20.0 - 0.1 * s * s, "chord_mm": 10.0})
+            })
+            .collect();
+        serde_json::from_value(json!({
+            "kind": "principal", "azimuth_deg": 240.0, "length_m": 20.0, "point_count": 3,
+            "profile": {
+                "s_min_m": -10.0, "s_max_m": 10.0, "degree": 2,
+                "zones": [{"mode": "sagging", "start_s_m": -10.0, "end_s_m": 10.0,
+                           "relative_deflection_mm": 10.0, "max_deflection_at_s_m": 0.0,
+                           "deflection_ratio": 5e-4}],
+                "curve": curve,
+                "points": [{"s_m": -9.0, "aligned_settlement_mm": 11.5},
+                           {"s_m": 0.5, "aligned_settlement_mm": 19.0},
+                           {"s_m": 9.0, "aligned_settlement_mm": 12.0}]
+            },
+            "horizontal_strain": null
+        }))
+        .expect("axis json")
+    }
+
+    #[test]
+    fn curve_interpolates_linearly_and_clamps() {
+        let axis = sagging_axis();
+        let curve = &axis.profile.as_ref().expect("profile").curve;
+        // Between s = 2 (19.6 mm) and s = 3 (19.1 mm): halfway is 19.35 mm (hand-checked).
+        assert!((curve_at(curve, 2.5).expect("value") - 19.35).abs() < 1e-12);
+        assert_eq!(curve_at(curve, -50.0), Some(10.0));
+        assert_eq!(curve_at(curve, 50.0), Some(10.0));
+        assert_eq!(curve_at(&[], 0.0), None);
+    }
+
+    #[test]
+    fn profile_chart_marks_delta_of_the_governing_zone() {
+        let chart = profile_chart(&sagging_axis()).expect("chart");
+        let delta = chart.delta.expect("delta");
+        // Hand-derived above: chord at s = 0 is 10 mm, the profile 20 mm, Δ = 10 mm.
+        assert!((delta.chord_mm - 10.0).abs() < 1e-12);
+        assert!((delta.profile_mm - 20.0).abs() < 1e-12);
+        assert!(delta.label.contains("10.00 mm") && delta.label.contains("sagging"));
+        let chord = chart.chord.expect("chord");
+        assert_eq!((chord[0].chainage_m, chord[1].chainage_m), (-10.0, 10.0));
+        assert_eq!(chart.zones[0].mode, BendingMode::Sagging);
+        // Points are drawn as aligned to the plotted curve; azimuth shown modulo 180°.
+        assert_eq!(chart.points[1].settlement_mm, 19.0);
+        assert!(chart.title.contains("azimuth 60°"), "{}", chart.title);
+    }
+
+    #[test]
+    fn missing_profile_and_metrics_are_reasons_not_zeros() {
+        let mut axis = sagging_axis();
+        axis.profile = None;
+        let e = profile_chart(&axis).expect_err("no profile");
+        assert!(e.contains("3 points"), "{e}");
+        let both = profile_charts(&Err("structure not assessable".into()));
+        assert_eq!(both.len(), 2);
+        assert!(both.iter().all(|p| p.is_err()));
+    }
+
+    fn series_json(fits: serde_json::Value) -> serde_json::Value {
+        json!({
+            "time_origin": "2023-01-01", "window_start": "2023-01-01", "window_end": "2024-01-01",
+            "geometries": [{
+                "name": "asc", "mean_unit_enu": [-0.6, 0.1, 0.8], "points_aggregated": 7,
+                "dates": ["2023-01-01", "2024-01-01"],
+                "aggregate": {"median_mm": [0.0, -4.0], "band_lower_mm": [-1.0, -6.0],
+                              "band_upper_mm": [2.0, -3.0]}
+            }],
+            "vertical": {
+                "method": {"kind": "projected", "geometry": "asc"},
+                "dates": ["2023-01-01", "2024-01-01"],
+                "vertical_mm": [0.0, null],
+                "fits": fits
+            },
+            "relative_to_surroundings": {"surroundings_vertical_velocity_mm_per_yr": -1.0}
+        })
+    }
+
+    #[test]
+    fn timeseries_from_series_detail() {
+        let fits = json!({
+            "linear": {"intercept_mm": 0.5, "velocity_mm_per_yr": -5.0,
+                       "se_velocity_adjusted_mm_per_yr": 0.4},
+            "annual": null, "quadratic": null,
+            "model_comparison": {"selected": "linear"}, "breakpoint_date": null
+        });
+        let c = timeseries_chart("T-1", &series_json(fits)).expect("chart");
+        // Only the finite epoch is drawn; the null epoch is left out, not drawn as 0.
+        assert_eq!(c.aggregate.len(), 1);
+        // Spread at 2023-01-01: centre 0 + (−1 − 0)/0.8 = −1.25 and (2 − 0)/0.8 = 2.5 mm.
+        assert_eq!(c.spread.len(), 1);
+        assert!((c.spread[0].lower_mm + 1.25).abs() < 1e-12);
+        assert!((c.spread[0].upper_mm - 2.5).abs() < 1e-12);
+        assert!(c.spread_label.contains("7 asc points"));
+        let trend = c.trend.expect("trend");
+        assert!((trend.values[0].value_mm - 0.5).abs() < 1e-12);
+        assert!(trend.label.contains("-5.0 ± 0.4 mm/yr"), "{}", trend.label);
+        assert!(c.model.is_none(), "linear selected: no extra model curve");
+        assert!(
+            c.surroundings
+                .expect("surroundings")
+                .label
+                .contains("-1.0 mm/yr")
+        );
+        assert_eq!(c.window.map(|w| w.0.to_string()), Some("2023-01-01".into()));
+    }
+
+    #[test]
+    fn timeseries_without_vertical_series_is_not_computed() {
+        let mut v = series_json(serde_json::Value::Null);
+        v["vertical"] = serde_json::Value::Null;
+        let e = timeseries_chart("T-1", &v).expect_err("no vertical");
+        assert!(e.contains("no vertical series"), "{e}");
+        let e = timeseries_chart("T-1", &serde_json::Value::Null).expect_err("no detail");
+        assert!(e.contains("no time series detail"), "{e}");
+    }
+
+    #[test]
+    fn interaction_uses_governing_zone_and_criteria_set() {
+        let criteria =
+            crate::criteria::CriteriaRegistry::with_user_sets(&BTreeMap::new()).expect("builtin");
+        let masonry = criteria.get("masonry").expect("masonry set");
+        let mut r: StructureResult = serde_json::from_str(
+            r#"{
+            "id": "T-1", "name": "n", "status": "assessed", "status_reasons": [],
+            "n_points": 10, "n_rejected": {}, "n_surroundings": 0, "datasets": ["asc"],
+            "settlement_mm": null, "differential_settlement_mm": null, "mean_vertical_mm": null,
+            "mean_east_mm": null, "vertical_velocity_mm_per_yr": null,
+            "east_velocity_mm_per_yr": null, "tilt": null, "tilt_azimuth_deg": null,
+            "angular_distortion": null, "deflection_ratio": -2e-4, "horizontal_strain": null,
+            "governing_strain": null, "damage_category": 0, "damage_route": null,
+            "evidence_grade": null, "vertical_velocity_se_mm_per_yr": null,
+            "east_velocity_se_mm_per_yr": null, "tilt_se": null, "damage_category_name": null,
+            "criteria_set": "masonry", "height_m": 8.0, "structure_type": "masonry",
+            "trigger_status": null, "triggers": [], "report_file": null, "fallbacks": [],
+            "assumptions": [], "change": null,
+            "damage": {"governing": {"route": "limiting-tensile-strain", "zone_index": 0},
+                       "zones": [{"mode": "hogging", "l_over_h": 2.5, "deflection_ratio": -2e-4,
+                                  "horizontal_strain_used": 0.0,
+                                  "horizontal_strain_signed": null,
+                                  "horizontal_strain_unavailable": true}]}
+        }"#,
+        )
+        .expect("result");
+        let metrics: Result<MetricsJson, String> = serde_json::from_value(json!({
+            "axes": null, "axis_metrics": [], "horizontal_strain": null,
+            "uncertainty": {"deflection_ratio": {"se": 1e-5}}
+        }))
+        .map_err(|e| e.to_string());
+        let c = interaction_chart(&r, &metrics, &criteria).expect("chart");
+        assert_eq!(c.mode, BendingMode::Hogging);
+        assert_eq!(
+            (c.l_over_h, c.e_over_g, c.poisson),
+            (2.5, masonry.e_over_g, masonry.poisson)
+        );
+        // |Δ/L| = 2e-4 with ±1.645·1e-5 (90 % normal interval).
+        assert!((c.deflection_ratio.value - 2e-4).abs() < 1e-15);
+        assert!((c.deflection_ratio.upper - (2e-4 + 1.645e-5)).abs() < 1e-15);
+        assert_eq!(c.horizontal_strain.lower, c.horizontal_strain.upper);
+        assert!(c.note.contains("not measured"));
+        r.damage["governing"]["route"] = json!("son-cording");
+        assert!(interaction_chart(&r, &metrics, &criteria).is_err());
+    }
+}
