@@ -139,6 +139,8 @@ pub struct RunContext<'a> {
     pub scene_unit: Vec<Option<[f64; 3]>>,
     /// Criteria sets available (built-in + user-defined).
     pub criteria: crate::criteria::CriteriaRegistry,
+    /// The portfolio's `[works]` converted to the analysis CRS once per run (None without works).
+    pub works: Option<crate::works::WorksGeometry>,
 }
 
 /// Period displacement of one point over the window: mean of the 3 valid epochs nearest the window
@@ -571,6 +573,56 @@ pub fn assess_structure(
         out.grade = serde_json::json!({"grade": g.name(), "reasons": why, "inputs": gi});
         out.metrics = serde_json::to_value(&met).unwrap_or_default();
     }
+    // ---- Screening near planned works (src/works) -------------------------------------------
+    // Predictions never change the measured fields above; they fill only the works fields.
+    let mut works_out = WorksOut::default();
+    if let Some(w) = &ctx.works {
+        let observed = crate::works::Observed {
+            settlement_mm: out.settlement_mm,
+            tilt: out.tilt,
+            max_slope: match (out.tilt, out.angular_distortion) {
+                (Some(t), Some(b)) => Some(t + b),
+                (Some(t), None) => Some(t),
+                _ => None,
+            },
+            deflection_ratio: out.deflection_ratio,
+            damage_category: out.damage_category,
+            series: ser
+                .as_ref()
+                .and_then(|x| x.vertical.as_ref())
+                .map(|v| {
+                    v.dates
+                        .iter()
+                        .zip(&v.vertical_mm)
+                        .map(|(d, x)| (*d, x.map(|up| -up)))
+                        .collect()
+                })
+                .unwrap_or_default(),
+            unavailable_because: (status != Status::Assessed).then(|| reasons.join("; ")),
+        };
+        let input = crate::works::StructureInput {
+            id: &s.raw.id,
+            footprint: &s.footprint,
+            height_m: s.raw.height_m,
+            window_start: ctx.window.start,
+            window_end: ctx.window.end,
+            observed,
+        };
+        match ctx.criteria.get(&criteria_name) {
+            Ok(set) => match crate::works::screen_structure(w, &input, set) {
+                Ok(sc) => {
+                    works_out.predicted_settlement_mm = Some(sc.predicted_settlement_mm);
+                    works_out.predicted_category = sc.predicted_category;
+                    works_out.observed_to_predicted_settlement =
+                        sc.comparison.observed_to_predicted_settlement;
+                    works_out.detail = serde_json::to_value(&sc).unwrap_or_default();
+                }
+                Err(e) => assumptions.push(format!("works screening not computed: {e}")),
+            },
+            Err(e) => assumptions.push(format!("works screening not computed: {e}")),
+        }
+    }
+
     let result = StructureResult {
         id: s.raw.id.clone(),
         name: s.raw.name.clone(),
@@ -617,8 +669,21 @@ pub fn assess_structure(
         metrics: out.metrics,
         damage: out.damage,
         grade: out.grade,
+        predicted_settlement_mm: works_out.predicted_settlement_mm,
+        predicted_category: works_out.predicted_category,
+        observed_to_predicted_settlement: works_out.observed_to_predicted_settlement,
+        works: works_out.detail,
     };
     (result, verdicts)
+}
+
+/// Values filled by the works screening (`src/works`).
+#[derive(Default)]
+struct WorksOut {
+    predicted_settlement_mm: Option<f64>,
+    predicted_category: Option<u8>,
+    observed_to_predicted_settlement: Option<f64>,
+    detail: serde_json::Value,
 }
 
 /// Values filled by the metrics and damage stages.

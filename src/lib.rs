@@ -24,3 +24,4 @@ pub mod run;
 pub mod series;
 pub mod synth;
 pub mod triggers;
+pub mod works;

@@ -35,6 +35,8 @@ struct RawFile {
     criteria: BTreeMap<String, toml::Table>,
     #[serde(default)]
     triggers: Vec<TriggerLevel>,
+    #[serde(default)]
+    works: Option<crate::works::RawWorks>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -318,6 +320,8 @@ pub struct Portfolio {
     pub triggers: Vec<TriggerLevel>,
     /// Defaults applied.
     pub defaults_applied: Vec<AppliedDefault>,
+    /// Planned or ongoing works (`[works]`, validated by `works::model`); None without the section.
+    pub works: Option<crate::works::WorksSpec>,
 }
 
 /// Parse a date given as a TOML string `"2023-01-03"` or a TOML date literal.
@@ -775,6 +779,13 @@ impl Portfolio {
             }
         }
 
+        // [works] (optional): validated by its own module; errors name the key.
+        let works = raw
+            .works
+            .as_ref()
+            .map(|w| crate::works::model::validate(w, path))
+            .transpose()?;
+
         Ok(Portfolio {
             file: path.to_path_buf(),
             name: raw.portfolio.name.trim().to_string(),
@@ -788,6 +799,7 @@ impl Portfolio {
             criteria: raw.criteria,
             triggers: raw.triggers,
             defaults_applied: defaults,
+            works,
         })
     }
 }

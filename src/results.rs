@@ -155,6 +155,22 @@ pub struct StructureResult {
     /// Evidence-grade detail.
     #[serde(default)]
     pub grade: serde_json::Value,
+    /// Largest predicted greenfield settlement on the footprint from the `[works]`, all works
+    /// complete, mm (+ down); null without works.
+    #[serde(default)]
+    pub predicted_settlement_mm: Option<f64>,
+    /// Predicted ("possible", upper-bound) damage category 0–5 from the stage-2 screening of the
+    /// works; null without works or when not computable.
+    #[serde(default)]
+    pub predicted_category: Option<u8>,
+    /// Observed over predicted largest settlement for the comparison period; null when either is
+    /// missing or the prediction is below 0.1 mm.
+    #[serde(default)]
+    pub observed_to_predicted_settlement: Option<f64>,
+    /// Works screening detail (stages, sections, predicted against observed, face history);
+    /// null without works.
+    #[serde(default)]
+    pub works: serde_json::Value,
 }
 
 /// Names of the scalar fields written to results.csv and results.geojson, in order.
@@ -193,6 +209,9 @@ pub const SCALAR_FIELDS: &[&str] = &[
     "structure_type",
     "trigger_status",
     "report_file",
+    "predicted_settlement_mm",
+    "predicted_category",
+    "observed_to_predicted_settlement",
 ];
 
 impl StructureResult {

@@ -274,6 +274,11 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
     }
 
     let criteria = build_criteria(&pf)?;
+    let works = pf
+        .works
+        .as_ref()
+        .map(|w| crate::works::WorksGeometry::project(w, &analysis_crs, &pf.file))
+        .transpose()?;
     let ctx = RunContext {
         portfolio: &pf,
         datasets: &datasets,
@@ -281,6 +286,7 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         window_idx,
         scene_unit,
         criteria,
+        works,
     };
     let ids: Vec<&str> = structures.iter().map(|s| s.raw.id.as_str()).collect();
     let stems = output::safe_names::assign(&ids);
