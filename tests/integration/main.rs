@@ -7,3 +7,4 @@ mod foundation;
 mod metrics;
 mod reports;
 mod series;
+mod works;
