@@ -358,21 +358,27 @@ pub fn parse_footprints(
         // A ring whose vertices are all collinear has zero area; a crossed ("bow-tie") ring can
         // also have zero net signed area, so the zero-area message is given only when the ring
         // is otherwise valid or degenerate, and self-intersection is reported first.
+        // All vertices of every exterior ring on one straight line (through the first vertex and
+        // the vertex farthest from it): zero area.
         let collinear = footprint.0.iter().all(|p| {
             let c = &p.exterior().0;
-            let (mut minx, mut miny, mut maxx, mut maxy) = (f64::MAX, f64::MAX, f64::MIN, f64::MIN);
-            for q in c {
-                minx = minx.min(q.x);
-                miny = miny.min(q.y);
-                maxx = maxx.max(q.x);
-                maxy = maxy.max(q.y);
-            }
-            let scale2 = ((maxx - minx).powi(2) + (maxy - miny).powi(2)).max(f64::MIN_POSITIVE);
-            c.windows(3).all(|w| {
-                ((w[1].x - w[0].x) * (w[2].y - w[0].y) - (w[1].y - w[0].y) * (w[2].x - w[0].x))
-                    .abs()
-                    <= 1e-9 * scale2
-            })
+            let p0 = c[0];
+            let far = c
+                .iter()
+                .copied()
+                .max_by(|a, b| {
+                    let da = (a.x - p0.x).powi(2) + (a.y - p0.y).powi(2);
+                    let db = (b.x - p0.x).powi(2) + (b.y - p0.y).powi(2);
+                    da.total_cmp(&db)
+                })
+                .unwrap_or(p0);
+            let (ux, uy) = (far.x - p0.x, far.y - p0.y);
+            let len2 = ux * ux + uy * uy;
+            len2 == 0.0
+                || c.iter().all(|q| {
+                    let cross = ux * (q.y - p0.y) - uy * (q.x - p0.x);
+                    cross * cross <= 1e-18 * len2 * len2
+                })
         });
         if collinear {
             return Err(InputError::new(

@@ -416,6 +416,9 @@ pub(crate) fn distinct_geometries(points: &[MetricPoint]) -> Vec<usize> {
     g
 }
 
+/// Largest point count for the O(n²) pairwise angular-distortion search (thinned above).
+pub const PAIRWISE_MAX_POINTS: usize = 2000;
+
 /// Compute all movement metrics of one structure (see the module docs for the pipeline).
 ///
 /// # Units
@@ -888,6 +891,17 @@ fn axis_result(
         let x: Vec<f64> = samples.iter().map(|s| s.s_m).collect();
         // Use geometry-aligned settlements so dataset offsets do not enter the pairs.
         let s: Vec<f64> = p.points.iter().map(|q| q.aligned_settlement_mm).collect();
+        // The pairwise search is O(n²): above PAIRWISE_MAX_POINTS points it runs on every k-th
+        // point in axis order (deterministic thinning; Plinth choice, keeps 100 000-point
+        // structures tractable). The smooth-fit β above is unaffected.
+        if x.len() > PAIRWISE_MAX_POINTS {
+            let mut order: Vec<usize> = (0..x.len()).collect();
+            order.sort_by(|a, b| x[*a].total_cmp(&x[*b]));
+            let k = x.len().div_ceil(PAIRWISE_MAX_POINTS);
+            let xs: Vec<f64> = order.iter().step_by(k).map(|i| x[*i]).collect();
+            let ss: Vec<f64> = order.iter().step_by(k).map(|i| s[*i]).collect();
+            return direct::pairwise_beta_max(&xs, &ss, p.chord_tilt, cfg.min_pair_spacing_m);
+        }
         direct::pairwise_beta_max(&x, &s, p.chord_tilt, cfg.min_pair_spacing_m)
     });
     let horizontal_strain = match strain::axis_strain(

@@ -723,6 +723,9 @@ pub struct TheilSen {
     pub pairs: usize,
 }
 
+/// Largest series length for which Theil–Sen uses every pair of epochs.
+pub const THEIL_SEN_MAX_EPOCHS: usize = 1000;
+
 /// Theil–Sen robust slope (breakdown point ≈ 29 %).
 ///
 /// # Units
@@ -736,9 +739,17 @@ pub struct TheilSen {
 pub fn theil_sen(t_yr: &[f64], d_mm: &[f64]) -> Result<TheilSen, FitError> {
     check_inputs(t_yr, d_mm, "Theil-Sen", 2)?;
     let n = t_yr.len();
-    let mut slopes = Vec::with_capacity(n * (n - 1) / 2);
-    for i in 0..n {
-        for j in (i + 1)..n {
+    // All n(n−1)/2 pairs up to THEIL_SEN_MAX_EPOCHS epochs; above that, all pairs of every
+    // stride-th epoch (deterministic thinning of the series), so memory stays bounded
+    // (10 000 epochs would otherwise need 50 million slopes, 400 MB). Plinth choice.
+    let stride = if n > THEIL_SEN_MAX_EPOCHS {
+        (n / THEIL_SEN_MAX_EPOCHS).max(1)
+    } else {
+        1
+    };
+    let mut slopes = Vec::with_capacity((n * (n - 1) / 2 / (stride * stride)).min(1 << 22));
+    for i in (0..n).step_by(stride) {
+        for j in ((i + stride)..n).step_by(stride) {
             let dt = t_yr[j] - t_yr[i];
             if dt != 0.0 {
                 slopes.push((d_mm[j] - d_mm[i]) / dt);

@@ -2,9 +2,10 @@
 
 mod demo;
 mod fixture;
-mod limits;
 mod foundation;
+mod limits;
 mod metrics;
 mod reports;
 mod series;
+mod sharding;
 mod works;
