@@ -7,6 +7,7 @@
 //! command line.
 pub mod assess;
 pub mod association;
+pub mod bench;
 pub mod cli;
 pub mod coords;
 pub mod criteria;
@@ -15,6 +16,7 @@ pub mod error;
 pub mod grade;
 pub mod ingest;
 pub mod init;
+pub mod merge;
 pub mod metrics;
 pub mod output;
 pub mod portfolio;

@@ -69,6 +69,37 @@ fn dispatch(cli: &Cli) -> anyhow::Result<()> {
             clap_complete::generate(*shell, &mut cmd, "plinth", &mut std::io::stdout());
             Ok(())
         }
+        Command::Merge {
+            shards,
+            out,
+            portfolio,
+        } => {
+            plinth::merge::merge(shards, out, portfolio.as_deref())?;
+            if !cli.quiet {
+                eprintln!("{} shard(s) merged into {}", shards.len(), out.display());
+            }
+            Ok(())
+        }
+        Command::Bench {
+            size,
+            dir,
+            runs,
+            phase,
+        } => {
+            let Some(bs) = plinth::bench::parse_size(size) else {
+                anyhow::bail!("unknown --size `{size}`: small, medium, large or custom:S:P:E");
+            };
+            if let Some(ph) = phase {
+                let r = plinth::bench::run_phase(ph, dir, None)?;
+                println!("{}", serde_json::to_string(&r)?);
+                return Ok(());
+            }
+            plinth::bench::ensure_data(dir, bs)?;
+            let exe = std::env::current_exe()?;
+            let s = plinth::bench::run_children(&exe, dir, size, *runs, cli.jobs, false)?;
+            print!("{}", plinth::bench::table(&s, *runs));
+            Ok(())
+        }
         Command::Man => {
             let man = clap_mangen::Man::new(Cli::command());
             man.render(&mut std::io::stdout())?;

@@ -72,6 +72,35 @@ pub enum Command {
     },
     /// Print the man page (roff) to stdout.
     Man,
+    /// Combine the output folders of `assess --shard K/N` runs into one portfolio result.
+    Merge {
+        /// The shard output folders.
+        #[arg(required = true, value_name = "SHARD_DIR")]
+        shards: Vec<PathBuf>,
+        /// Output folder; replaced as a whole only when the merge succeeds.
+        #[arg(long, short, value_name = "DIR")]
+        out: PathBuf,
+        /// The portfolio the shards were run with (default: the path in the first shard's
+        /// manifest.json).
+        #[arg(long, value_name = "FILE")]
+        portfolio: Option<PathBuf>,
+    },
+    /// Benchmark on synthetic data: read-once floor, ingest, analysis, hashing (writes only DIR).
+    #[command(hide = true)]
+    Bench {
+        /// small, medium, large or custom:STRUCTURES:POINTS:EPOCHS.
+        #[arg(long, default_value = "small")]
+        size: String,
+        /// Folder for the generated data and the analysis output.
+        #[arg(long, value_name = "DIR")]
+        dir: PathBuf,
+        /// Runs per phase (the median is reported).
+        #[arg(long, default_value_t = 3)]
+        runs: usize,
+        /// Run one phase in this process and print its measurement as JSON (used internally).
+        #[arg(long, hide = true)]
+        phase: Option<String>,
+    },
 }
 
 /// Parse `K/N` with 1 ≤ K ≤ N.

@@ -1,0 +1,408 @@
+//! `plinth merge`: combine the output folders of `--shard K/N` runs into one portfolio result.
+//!
+//! Owns the order of the merged records (structures in the footprint file's feature order; point
+//! rows by dataset in portfolio order, then line in the points file, a tie row before the point's
+//! links, links by structure input order — the order a single run writes), the recomputation of
+//! the portfolio-level counts, the merged manifest (the first shard's, with the list of shards)
+//! and copying every other file of the shard folders (reports) across.
+//!
+//! The record files are merged at the level of their parsed values and written with the same
+//! serialisers as a single run, so a merge of shards equals a single run byte for byte when every
+//! structure's result is independent of the other shards' structures. Limitation (documented in
+//! docs/performance.md): a point within reach of structures in two different shards is associated
+//! in each shard without the other shard's structures, so its tie/owner decision can differ from
+//! a single run's.
+//!
+//! It does not analyse anything and never reads the points files.
+
+use std::collections::{BTreeMap, BTreeSet, HashMap};
+use std::path::{Path, PathBuf};
+
+use anyhow::{Context, Result, bail};
+use serde_json::Value;
+
+use crate::output;
+
+/// The files of an output folder that are merged rather than copied.
+pub const MERGED_FILES: [&str; 6] = [
+    "results.json",
+    "results.csv",
+    "results.geojson",
+    "points.csv",
+    "points.geojson",
+    "manifest.json",
+];
+
+fn read_json(path: &Path) -> Result<Value> {
+    let text =
+        std::fs::read_to_string(path).with_context(|| format!("cannot read {}", path.display()))?;
+    serde_json::from_str(&text).with_context(|| format!("{} is not valid JSON", path.display()))
+}
+
+/// Structure ids in footprint-file order, from the portfolio the shards were run with.
+fn input_order(portfolio: &Path) -> Result<HashMap<String, usize>> {
+    let pf = crate::portfolio::Portfolio::load(portfolio)?;
+    let mut w = crate::error::Warnings::default();
+    let (structures, _, _) = crate::ingest::load_structures(&pf, &mut w)?;
+    Ok(structures
+        .into_iter()
+        .enumerate()
+        .map(|(i, s)| (s.raw.id, i))
+        .collect())
+}
+
+/// The portfolio path recorded in a shard's manifest.
+fn manifest_portfolio(manifest: &Value) -> Option<PathBuf> {
+    manifest
+        .get("inputs")?
+        .as_array()?
+        .iter()
+        .find(|i| i.get("role").and_then(Value::as_str) == Some("portfolio"))?
+        .get("path")?
+        .as_str()
+        .map(PathBuf::from)
+}
+
+fn as_map(v: Option<&Value>) -> BTreeMap<String, u64> {
+    v.and_then(Value::as_object)
+        .map(|m| {
+            m.iter()
+                .map(|(k, v)| (k.clone(), v.as_u64().unwrap_or(0)))
+                .collect()
+        })
+        .unwrap_or_default()
+}
+
+fn map_value(m: &BTreeMap<String, u64>) -> Value {
+    Value::Object(
+        m.iter()
+            .map(|(k, v)| (k.clone(), Value::from(*v)))
+            .collect(),
+    )
+}
+
+fn add_maps(into: &mut BTreeMap<String, u64>, from: &BTreeMap<String, u64>) {
+    for (k, v) in from {
+        *into.entry(k.clone()).or_default() += v;
+    }
+}
+
+/// A CSV file as header + records.
+fn read_csv(path: &Path) -> Result<(csv::StringRecord, Vec<csv::StringRecord>)> {
+    let mut r = csv::ReaderBuilder::new()
+        .has_headers(true)
+        .from_path(path)
+        .with_context(|| format!("cannot read {}", path.display()))?;
+    let header = r.headers()?.clone();
+    let rows = r
+        .records()
+        .collect::<Result<Vec<_>, _>>()
+        .with_context(|| format!("cannot parse {}", path.display()))?;
+    Ok((header, rows))
+}
+
+fn write_csv(header: &csv::StringRecord, rows: &[csv::StringRecord]) -> Result<Vec<u8>> {
+    let mut w = csv::Writer::from_writer(Vec::new());
+    w.write_record(header)?;
+    for r in rows {
+        w.write_record(r)?;
+    }
+    Ok(w.into_inner()?)
+}
+
+/// Sort key of a point row: (dataset order, line, tie first, structure input order).
+type PointKey = (usize, u64, u8, usize);
+
+/// Merge shard output folders into `out` (written atomically). `portfolio` overrides the portfolio
+/// path recorded in the first shard's manifest (needed when the merge runs from another folder).
+pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result<()> {
+    if shards.is_empty() {
+        bail!("merge needs at least one shard folder");
+    }
+    let manifests: Vec<Value> = shards
+        .iter()
+        .map(|d| read_json(&d.join("manifest.json")))
+        .collect::<Result<_>>()?;
+    let pf_path = match portfolio {
+        Some(p) => p.to_path_buf(),
+        None => manifest_portfolio(&manifests[0])
+            .context("the first shard's manifest.json names no portfolio; pass --portfolio")?,
+    };
+    let order = input_order(&pf_path)?;
+    let pf = crate::portfolio::Portfolio::load(&pf_path)?;
+    let dataset_order: HashMap<String, usize> = pf
+        .datasets
+        .iter()
+        .enumerate()
+        .map(|(i, d)| (d.name.clone(), i))
+        .collect();
+    let idx = |id: &str| -> Result<usize> {
+        order
+            .get(id)
+            .copied()
+            .with_context(|| format!("structure `{id}` is not in the portfolio's footprints"))
+    };
+    let mut shard_labels = Vec::new();
+    for (d, m) in shards.iter().zip(&manifests) {
+        shard_labels.push(serde_json::json!({
+            "dir": d.display().to_string(),
+            "shard": m.pointer("/options/shard").cloned().unwrap_or(Value::Null),
+        }));
+    }
+
+    // Points rows (needed for the coverage counts too).
+    let mut p_header = None;
+    let mut p_rows: Vec<(PointKey, csv::StringRecord)> = Vec::new();
+    let mut p_feats: Vec<(PointKey, Value)> = Vec::new();
+    for d in shards {
+        let (h, rows) = read_csv(&d.join("points.csv"))?;
+        let col = |name: &str| {
+            h.iter()
+                .position(|c| c == name)
+                .with_context(|| format!("points.csv of {} has no `{name}` column", d.display()))
+        };
+        let (c_ds, c_line, c_sid, c_role) = (
+            col("dataset")?,
+            col("line")?,
+            col("structure_id")?,
+            col("role")?,
+        );
+        for r in rows {
+            let key = point_key(
+                &dataset_order,
+                &idx,
+                &r[c_ds],
+                r[c_line].parse().unwrap_or(0),
+                &r[c_role],
+                &r[c_sid],
+            )?;
+            p_rows.push((key, r));
+        }
+        p_header.get_or_insert(h);
+        let g = read_json(&d.join("points.geojson"))?;
+        for f in g["features"].as_array().into_iter().flatten() {
+            let pr = &f["properties"];
+            let key = point_key(
+                &dataset_order,
+                &idx,
+                pr["dataset"].as_str().unwrap_or(""),
+                pr["line"].as_u64().unwrap_or(0),
+                pr["role"].as_str().unwrap_or(""),
+                pr["structure_id"].as_str().unwrap_or(""),
+            )?;
+            p_feats.push((key, f.clone()));
+        }
+    }
+    p_rows.sort_by_key(|(k, _)| *k);
+    p_feats.sort_by_key(|(k, _)| *k);
+    let p_header = p_header.context("no points.csv")?;
+
+    // results.json.
+    let mut structures: Vec<(usize, Value)> = Vec::new();
+    let mut first_portfolio = None;
+    let mut by_status = BTreeMap::new();
+    let mut by_category = BTreeMap::new();
+    let mut by_grade = BTreeMap::new();
+    let mut rejected = BTreeMap::new();
+    let mut points_read = BTreeMap::new();
+    let mut kept = 0u64;
+    let mut gone: Option<Vec<Value>> = None;
+    for d in shards {
+        let r = read_json(&d.join("results.json"))?;
+        let p = r
+            .get("portfolio")
+            .context("results.json has no portfolio")?;
+        let c = &p["coverage"];
+        add_maps(&mut by_status, &as_map(c.get("by_status")));
+        add_maps(&mut by_category, &as_map(p.get("by_category")));
+        add_maps(&mut by_grade, &as_map(p.get("by_grade")));
+        let mut rej = as_map(c.get("points_rejected"));
+        rej.remove(crate::assess::reason::TIE);
+        add_maps(&mut rejected, &rej);
+        points_read = as_map(c.get("points_read"));
+        kept += c["points_kept"].as_u64().unwrap_or(0);
+        // A structure is gone since the previous run only if no shard has it.
+        let g: Vec<Value> = p["gone_since_previous"]
+            .as_array()
+            .cloned()
+            .unwrap_or_default();
+        gone = Some(match gone {
+            None => g,
+            Some(prev) => prev.into_iter().filter(|x| g.contains(x)).collect(),
+        });
+        for s in r["structures"].as_array().into_iter().flatten() {
+            let id = s["id"].as_str().context("a structure without id")?;
+            structures.push((idx(id)?, s.clone()));
+        }
+        first_portfolio.get_or_insert(p.clone());
+    }
+    structures.sort_by_key(|(i, _)| *i);
+    if structures.windows(2).any(|w| w[0].0 == w[1].0) {
+        bail!("a structure appears in more than one shard: merge the shards of one run only");
+    }
+    // Point-level counts from the merged rows (a point may appear in several shards).
+    let (c_ds, c_pid, c_role) = {
+        let col = |n: &str| p_header.iter().position(|c| c == n).unwrap_or(0);
+        (col("dataset"), col("point_id"), col("role"))
+    };
+    let mut roles: BTreeMap<(String, String), Vec<String>> = BTreeMap::new();
+    for (_, r) in &p_rows {
+        roles
+            .entry((r[c_ds].to_string(), r[c_pid].to_string()))
+            .or_default()
+            .push(r[c_role].to_string());
+    }
+    let ties = roles
+        .values()
+        .filter(|v| v.iter().any(|r| r == "tie"))
+        .count() as u64;
+    let surroundings_only = roles
+        .values()
+        .filter(|v| v.iter().all(|r| r == "surroundings"))
+        .count() as u64;
+    let read_total: u64 = points_read.values().sum();
+    let out_of_reach = read_total.saturating_sub(roles.len() as u64);
+    if ties > 0 {
+        rejected.insert(crate::assess::reason::TIE.to_string(), ties);
+    }
+    let mut portfolio_v = first_portfolio.context("no results.json")?;
+    // Overwrite the counts in the first shard's coverage object, keeping its key order.
+    let cov = &mut portfolio_v["coverage"];
+    cov["structures"] = Value::from(structures.len());
+    cov["by_status"] = map_value(&by_status);
+    cov["points_read"] = map_value(&points_read);
+    cov["points_kept"] = Value::from(kept);
+    cov["points_rejected"] = map_value(&rejected);
+    cov["points_surroundings_only"] = Value::from(surroundings_only);
+    cov["points_out_of_reach"] = Value::from(out_of_reach);
+    cov["ties"] = Value::from(ties);
+    portfolio_v["by_category"] = map_value(&by_category);
+    portfolio_v["by_grade"] = map_value(&by_grade);
+    portfolio_v["gone_since_previous"] = Value::Array(gone.unwrap_or_default());
+    portfolio_v["shard"] = Value::Null;
+    let results = serde_json::json!({
+        "portfolio": portfolio_v,
+        "structures": structures.iter().map(|(_, s)| s.clone()).collect::<Vec<_>>(),
+    });
+
+    // results.csv and results.geojson.
+    let mut r_header = None;
+    let mut r_rows = Vec::new();
+    let mut r_feats = Vec::new();
+    for d in shards {
+        let (h, rows) = read_csv(&d.join("results.csv"))?;
+        let c_id = h
+            .iter()
+            .position(|c| c == "id")
+            .context("results.csv has no id")?;
+        for r in rows {
+            r_rows.push((idx(&r[c_id])?, r));
+        }
+        r_header.get_or_insert(h);
+        let g = read_json(&d.join("results.geojson"))?;
+        for f in g["features"].as_array().into_iter().flatten() {
+            let id = f["properties"]["id"].as_str().unwrap_or("");
+            r_feats.push((idx(id)?, f.clone()));
+        }
+    }
+    r_rows.sort_by_key(|(i, _)| *i);
+    r_feats.sort_by_key(|(i, _)| *i);
+
+    let mut manifest = manifests[0].clone();
+    if let Some(o) = manifest.get_mut("options") {
+        o["shard"] = Value::Null;
+    }
+    manifest["shards"] = Value::Array(shard_labels);
+
+    let collection =
+        |feats: Vec<Value>| serde_json::json!({"type": "FeatureCollection", "features": feats});
+    let staging = output::Staging::new(out)?;
+    let res = (|| -> Result<()> {
+        let d = &staging.dir;
+        output::write_file(
+            d,
+            "results.json",
+            (serde_json::to_string_pretty(&results)? + "\n").as_bytes(),
+        )?;
+        let rh = r_header.context("no results.csv")?;
+        let rr: Vec<csv::StringRecord> = r_rows.into_iter().map(|(_, r)| r).collect();
+        output::write_file(d, "results.csv", &write_csv(&rh, &rr)?)?;
+        let rf = collection(r_feats.into_iter().map(|(_, f)| f).collect());
+        output::write_file(
+            d,
+            "results.geojson",
+            (serde_json::to_string(&rf)? + "\n").as_bytes(),
+        )?;
+        let pr: Vec<csv::StringRecord> = p_rows.into_iter().map(|(_, r)| r).collect();
+        output::write_file(d, "points.csv", &write_csv(&p_header, &pr)?)?;
+        let pfc = collection(p_feats.into_iter().map(|(_, f)| f).collect());
+        output::write_file(
+            d,
+            "points.geojson",
+            (serde_json::to_string(&pfc)? + "\n").as_bytes(),
+        )?;
+        output::write_file(
+            d,
+            "manifest.json",
+            (serde_json::to_string_pretty(&manifest)? + "\n").as_bytes(),
+        )?;
+        let mut copied = BTreeSet::new();
+        for s in shards {
+            copy_extra(s, d, Path::new(""), &mut copied)?;
+        }
+        Ok(())
+    })();
+    match res {
+        Ok(()) => staging.commit(),
+        Err(e) => {
+            staging.abandon();
+            Err(e)
+        }
+    }
+}
+
+fn point_key(
+    dataset_order: &HashMap<String, usize>,
+    idx: &dyn Fn(&str) -> Result<usize>,
+    dataset: &str,
+    line: u64,
+    role: &str,
+    structure_id: &str,
+) -> Result<PointKey> {
+    let ds = *dataset_order
+        .get(dataset)
+        .with_context(|| format!("dataset `{dataset}` is not in the portfolio"))?;
+    Ok(if role == "tie" {
+        (ds, line, 0, 0)
+    } else {
+        (ds, line, 1, idx(structure_id)?)
+    })
+}
+
+/// Copy every file of `src/rel` except the merged ones into `dst/rel` (reports and the like).
+/// The same relative file in two shards is an error (shards never share a structure).
+fn copy_extra(src: &Path, dst: &Path, rel: &Path, copied: &mut BTreeSet<PathBuf>) -> Result<()> {
+    let dir = src.join(rel);
+    let mut entries: Vec<_> = std::fs::read_dir(&dir)
+        .with_context(|| format!("cannot list {}", dir.display()))?
+        .collect::<Result<_, _>>()?;
+    entries.sort_by_key(|e| e.file_name());
+    for e in entries {
+        let name = e.file_name();
+        let r = rel.join(&name);
+        if rel.as_os_str().is_empty() && MERGED_FILES.iter().any(|m| name == *m) {
+            continue;
+        }
+        if e.file_type()?.is_dir() {
+            std::fs::create_dir_all(dst.join(&r))?;
+            copy_extra(src, dst, &r, copied)?;
+        } else {
+            if !copied.insert(r.clone()) {
+                bail!("{} exists in more than one shard folder", r.display());
+            }
+            std::fs::copy(e.path(), dst.join(&r))
+                .with_context(|| format!("cannot copy {}", e.path().display()))?;
+        }
+    }
+    Ok(())
+}

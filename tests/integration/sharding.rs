@@ -1,0 +1,148 @@
+//! Sharding: `assess --shard K/N` runs merged with `plinth merge` equal a single run byte for byte.
+
+use crate::fixture::*;
+
+/// Ten invented blocks on a 300 m grid (far beyond the surroundings distance, so no point is
+/// within reach of two structures), two geometries, settling at different rates.
+fn portfolio() -> (Fx, std::path::PathBuf) {
+    let geoms = [
+        ("asc", "ascending", 38.0, -12.0),
+        ("desc", "descending", 41.0, 192.0),
+    ];
+    let ds = dates("2023-01-03", 12, 40);
+    let t = years(&ds);
+    let mut structures = Vec::new();
+    let mut datasets = Vec::new();
+    // Input order deliberately not sorted by id, so the merge must use the footprint order.
+    let ids = ["K7", "B2", "Z1", "A9", "M4", "C3", "Q8", "D5", "X6", "E0"];
+    for (g, (name, pass, inc, head)) in geoms.iter().enumerate() {
+        let u = unit(*inc, *head);
+        let mut points = Vec::new();
+        for (s, id) in ids.iter().enumerate() {
+            let (cx, cy) = ((s % 4) as f64 * 300.0, (s / 4) as f64 * 300.0);
+            let v_up = -1.0 - s as f64 * 0.7;
+            // 12 points inside, 2 in the buffer, 1 ground point in the surroundings.
+            let mut spots: Vec<(f64, f64)> = (0..12)
+                .map(|k| (-8.0 + (k % 4) as f64 * 5.3, -3.5 + (k / 4) as f64 * 3.4))
+                .collect();
+            spots.push((12.0, 0.0));
+            spots.push((-12.5, 1.0));
+            spots.push((0.0, 25.0));
+            for (k, (e, n)) in spots.into_iter().enumerate() {
+                let values = t
+                    .iter()
+                    .enumerate()
+                    .map(|(i, ti)| u[2] * v_up * ti + 0.8 * wiggle(i + 7 * g, k + 20 * s))
+                    .collect();
+                points.push(FxPoint {
+                    id: format!("{name}-{id}-{k}"),
+                    e: cx + e,
+                    n: cy + n,
+                    coherence: 0.8 + 0.01 * k as f64,
+                    values,
+                });
+            }
+        }
+        datasets.push(FxDataset {
+            name: (*name).into(),
+            pass: (*pass).into(),
+            incidence_deg: *inc,
+            heading_deg: *head,
+            dates: ds.clone(),
+            points,
+        });
+        if g == 0 {
+            for (s, id) in ids.iter().enumerate() {
+                let (cx, cy) = ((s % 4) as f64 * 300.0, (s / 4) as f64 * 300.0);
+                structures.push(FxStructure {
+                    id: (*id).into(),
+                    name: format!("Block {id}"),
+                    height_m: Some(9.0),
+                    structure: Some("masonry".into()),
+                    rings: vec![rect(cx, cy, 20.0, 10.0, 0.0)],
+                });
+            }
+        }
+    }
+    let fx = Fx::new();
+    let p = fx.write_portfolio(&structures, &datasets, "");
+    (fx, p)
+}
+
+#[test]
+fn merged_shards_equal_a_single_run() {
+    let (fx, pf) = portfolio();
+    let single = fx.path("single");
+    assess(&pf, &single, &["--no-reports"]);
+    let mut shard_dirs = Vec::new();
+    let mut nonempty = 0;
+    for k in 1..=3 {
+        let d = fx.path(&format!("shard-{k}"));
+        let r = assess(&pf, &d, &["--no-reports", "--shard", &format!("{k}/3")]);
+        if !r["structures"].as_array().unwrap().is_empty() {
+            nonempty += 1;
+        }
+        shard_dirs.push(d);
+    }
+    assert!(nonempty >= 2, "the fixture must spread over several shards");
+    let merged = fx.path("merged");
+    let mut args = vec!["merge".to_string()];
+    args.extend(shard_dirs.iter().map(|d| d.display().to_string()));
+    args.extend(["--out".to_string(), merged.display().to_string()]);
+    let argv: Vec<&str> = args.iter().map(String::as_str).collect();
+    let o = plinth(&argv);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    for f in [
+        "results.json",
+        "results.csv",
+        "results.geojson",
+        "points.csv",
+        "points.geojson",
+    ] {
+        let a = std::fs::read(single.join(f)).unwrap();
+        let b = std::fs::read(merged.join(f)).unwrap();
+        if a != b {
+            let (ta, tb) = (String::from_utf8_lossy(&a), String::from_utf8_lossy(&b));
+            let first = ta
+                .lines()
+                .zip(tb.lines())
+                .enumerate()
+                .find(|(_, (x, y))| x != y)
+                .map(|(i, (x, y))| format!("line {}: single `{x}` merged `{y}`", i + 1));
+            panic!("{f} differs between the single run and the merged shards: {first:?}");
+        }
+    }
+    // The manifest lists the shards; apart from that it is the single run's.
+    let m: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(merged.join("manifest.json")).unwrap())
+            .unwrap();
+    let shards = m["shards"].as_array().unwrap();
+    assert_eq!(shards.len(), 3);
+    assert_eq!(shards[1]["shard"], "2/3");
+    let mut s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(single.join("manifest.json")).unwrap())
+            .unwrap();
+    let mut m = m;
+    m.as_object_mut().unwrap().remove("shards");
+    // Warnings name per-shard counts (points outside every buffer), so they are not compared.
+    s.as_object_mut().unwrap().remove("warnings");
+    m.as_object_mut().unwrap().remove("warnings");
+    assert_eq!(m, s);
+}
+
+#[test]
+fn merge_refuses_overlapping_shards() {
+    let (fx, pf) = portfolio();
+    let d = fx.path("one");
+    assess(&pf, &d, &["--no-reports", "--shard", "1/2"]);
+    let out = fx.path("merged");
+    let o = plinth(&[
+        "merge",
+        d.to_str().unwrap(),
+        d.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(!o.status.success());
+    assert!(!out.exists(), "a failed merge writes nothing");
+}
