@@ -298,3 +298,66 @@ fn init_output_passes_check_once_data_is_filled() {
     let o = plinth(&["check", dir.join("portfolio.toml").to_str().unwrap()]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
 }
+
+#[test]
+fn killed_run_leaves_previous_outputs_untouched() {
+    // A run killed while it writes (during PDF rendering) must leave DIR exactly as it was: all
+    // new files go to a hidden staging folder beside DIR, swapped in only on success.
+    let fx = Fx::new();
+    let src = std::path::Path::new(concat!(env!("CARGO_MANIFEST_DIR"), "/demo-portfolio"));
+    let demo = fx.path("demo");
+    std::fs::create_dir_all(&demo).unwrap();
+    for e in std::fs::read_dir(src).unwrap() {
+        let e = e.unwrap();
+        std::fs::copy(e.path(), demo.join(e.file_name())).unwrap();
+    }
+    let p = demo.join("portfolio.toml");
+    let out = fx.path("out");
+    assess(&p, &out, &["--no-reports"]);
+    let snapshot = |d: &std::path::Path| -> Vec<(String, Vec<u8>)> {
+        let mut v: Vec<(String, Vec<u8>)> = std::fs::read_dir(d)
+            .unwrap()
+            .map(|e| {
+                let e = e.unwrap();
+                (
+                    e.file_name().to_string_lossy().to_string(),
+                    std::fs::read(e.path()).unwrap_or_default(),
+                )
+            })
+            .collect();
+        v.sort();
+        v
+    };
+    let before = snapshot(&out);
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_plinth"))
+        .args([
+            "assess",
+            p.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "--quiet",
+        ])
+        .spawn()
+        .unwrap();
+    let staging = fx.path(&format!(".out.partial-{}", child.id()));
+    // Wait until the run has started writing into its staging folder (reports are being rendered).
+    let t0 = std::time::Instant::now();
+    while !staging.join("results.json").exists() {
+        assert!(
+            t0.elapsed().as_secs() < 300,
+            "the run never reached the writing stage"
+        );
+        assert!(
+            child.try_wait().unwrap().is_none(),
+            "the run finished before it could be killed"
+        );
+        std::thread::sleep(std::time::Duration::from_millis(20));
+    }
+    child.kill().unwrap();
+    child.wait().unwrap();
+    assert_eq!(snapshot(&out), before, "DIR changed after a killed run");
+    assert!(
+        !out.join("reports").exists(),
+        "no report folder may appear inside DIR"
+    );
+}
