@@ -56,6 +56,43 @@ pub struct Member<'a> {
     pub point: &'a Point,
     /// Role for this structure.
     pub role: Role,
+    /// Index of the point in its dataset (for the per-point statistics).
+    pub point_index: usize,
+}
+
+/// Per-point window statistics, computed once per point and shared by every structure the point
+/// is linked to.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PointStats {
+    /// Valid (finite) epochs inside the window.
+    pub valid_epochs: usize,
+    /// OLS LOS velocity over the window, mm/yr.
+    pub los_velocity_mm_per_yr: Option<f64>,
+    /// Period LOS displacement and its σ, mm (see [`period_displacement`]).
+    pub period: Option<(f64, f64)>,
+    /// The series has an unwrapping-jump candidate (series::jumps).
+    pub jump_candidate: bool,
+}
+
+impl PointStats {
+    /// Statistics of one point over the window.
+    pub fn of(
+        p: &Point,
+        epochs: &[NaiveDate],
+        idx: &[usize],
+        w: &Window,
+        wavelength_mm: f64,
+    ) -> Self {
+        let (t, v) = window_series(p, epochs, idx, w);
+        PointStats {
+            valid_epochs: t.len(),
+            los_velocity_mm_per_yr: ols_velocity_mm_per_yr(&t, &v),
+            period: period_displacement(&t, &v),
+            jump_candidate: !crate::series::jumps::detect_jumps(&v, wavelength_mm)
+                .flags
+                .is_empty(),
+        }
+    }
 }
 
 /// Outcome of screening one member point.
@@ -139,6 +176,8 @@ pub struct RunContext<'a> {
     pub scene_unit: Vec<Option<[f64; 3]>>,
     /// Criteria sets available (built-in + user-defined).
     pub criteria: crate::criteria::CriteriaRegistry,
+    /// Per-point window statistics, `[dataset][point]`.
+    pub point_stats: Vec<Vec<PointStats>>,
     /// The portfolio's `[works]` converted to the analysis CRS once per run (None without works).
     pub works: Option<crate::works::WorksGeometry>,
 }
@@ -192,31 +231,24 @@ pub fn assess_structure(
                 rejected = Some(reason::LOW_COHERENCE);
             }
         }
-        let (t, v) = window_series(m.point, &ds.epochs, idx, &ctx.window);
-        if rejected.is_none() && t.len() < a.min_epochs {
+        // Per-point quantities are computed once per point for the whole run (a point is in the
+        // surroundings of many structures), see `PointStats::of`.
+        let st = &ctx.point_stats[m.dataset][m.point_index];
+        let _ = (ds, idx);
+        if rejected.is_none() && st.valid_epochs < a.min_epochs {
             rejected = Some(reason::TOO_FEW_EPOCHS);
         }
         let vel = if rejected.is_none() {
-            ols_velocity_mm_per_yr(&t, &v)
+            st.los_velocity_mm_per_yr
         } else {
             None
         };
-        period.push(if rejected.is_none() {
-            period_displacement(&t, &v)
-        } else {
-            None
-        });
+        period.push(if rejected.is_none() { st.period } else { None });
         let cos_inc = m.point.incidence_deg.to_radians().cos();
         let vv = vel.map(|v| v / cos_inc);
         // Points whose series shows an unwrapping-jump candidate are left out of the velocity
         // outlier screen: the time-series stage decides on them (and names the reason).
-        let jump_candidate = rejected.is_none()
-            && !crate::series::jumps::detect_jumps(
-                &v,
-                ctx.portfolio.datasets[m.dataset].wavelength_mm,
-            )
-            .flags
-            .is_empty();
+        let jump_candidate = rejected.is_none() && st.jump_candidate;
         if rejected.is_none() && m.role == Role::Structure && !jump_candidate {
             if let Some(vl) = vel {
                 kept_by_ds

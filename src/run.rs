@@ -264,6 +264,7 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
             }
             for k in &l.links {
                 members[k.structure].push(Member {
+                    point_index: pi,
                     dataset: di,
                     point: &d.points[pi],
                     role: k.role,
@@ -279,6 +280,17 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         .as_ref()
         .map(|w| crate::works::WorksGeometry::project(w, &analysis_crs, &pf.file))
         .transpose()?;
+    let point_stats: Vec<Vec<assess::PointStats>> = datasets
+        .iter()
+        .zip(&window_idx)
+        .zip(&pf.datasets)
+        .map(|((d, idx), spec)| {
+            d.points
+                .par_iter()
+                .map(|p| assess::PointStats::of(p, &d.epochs, idx, &window, spec.wavelength_mm))
+                .collect()
+        })
+        .collect();
     let ctx = RunContext {
         portfolio: &pf,
         datasets: &datasets,
@@ -287,6 +299,7 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         scene_unit,
         criteria,
         works,
+        point_stats,
     };
     let ids: Vec<&str> = structures.iter().map(|s| s.raw.id.as_str()).collect();
     let stems = output::safe_names::assign(&ids);
@@ -312,7 +325,7 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         .collect();
     bar.finish_and_clear();
 
-    // points.csv rows: one per (point, structure link), plus ties.
+    // points.csv rows: one per point within reach (see below), ties included.
     let mut verdict_map: BTreeMap<VerdictKey, VerdictValue> = BTreeMap::new();
     for (si, (_, vs)) in assessed.iter().enumerate() {
         for v in vs {
@@ -339,9 +352,28 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
                 status: "rejected".into(),
                 reason: assess::reason::TIE.into(),
                 vertical_velocity_mm_per_yr: None,
+                surroundings_of: l.links.len(),
             });
         }
-        for k in &l.links {
+        // One row per point: its owning structure, or — for a point only in surroundings rings —
+        // the nearest structure whose ring holds it (and how many rings hold it). Rows per
+        // (point, structure) link would grow with the ring size times the point count.
+        let owner = l.links.iter().find(|k| k.role == Role::Structure);
+        let nearest = l
+            .links
+            .iter()
+            .filter(|k| k.role == Role::Surroundings)
+            .min_by(|a, b| {
+                a.distance_m
+                    .total_cmp(&b.distance_m)
+                    .then(a.structure.cmp(&b.structure))
+            });
+        let rings = l
+            .links
+            .iter()
+            .filter(|k| k.role == Role::Surroundings)
+            .count();
+        if let Some(k) = owner.or(nearest) {
             let (rej, vv) = verdict_map
                 .get(&(k.structure, *di, p.id.as_str()))
                 .copied()
@@ -366,6 +398,7 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
                 },
                 reason: rej.unwrap_or("").into(),
                 vertical_velocity_mm_per_yr: vv.map(|v| (v * 1000.0).round() / 1000.0),
+                surroundings_of: rings,
             });
         }
     }
@@ -611,29 +644,23 @@ pub fn write(a: &Analysis, opts: &RunOptions, out: &Path) -> Result<()> {
     let staging = output::Staging::new(out)?;
     let res = (|| -> Result<()> {
         let d = &staging.dir;
-        output::write_file(
-            d,
-            "results.json",
-            output::results_json(&a.results)?.as_bytes(),
-        )?;
-        output::write_file(d, "results.csv", &output::results_csv(&a.results)?)?;
-        let fps: Vec<geo::MultiPolygon<f64>> = a
+        output::write_with(d, "results.json", |w| {
+            output::results_json_to(&a.results, w)
+        })?;
+        output::write_with(d, "results.csv", |w| output::results_csv_to(&a.results, w))?;
+        let fps: Vec<&geo::MultiPolygon<f64>> = a
             .inputs
             .structures
             .iter()
-            .map(|s| s.footprint_wgs84.clone())
+            .map(|s| &s.footprint_wgs84)
             .collect();
-        output::write_file(
-            d,
-            "results.geojson",
-            output::results_geojson(&a.results, &fps)?.as_bytes(),
-        )?;
-        output::write_file(d, "points.csv", &output::points_csv(&a.point_rows)?)?;
-        output::write_file(
-            d,
-            "points.geojson",
-            output::points_geojson(&a.point_rows)?.as_bytes(),
-        )?;
+        output::write_with(d, "results.geojson", |w| {
+            output::results_geojson_to(&a.results, &fps, w)
+        })?;
+        output::write_with(d, "points.csv", |w| output::points_csv_to(&a.point_rows, w))?;
+        output::write_with(d, "points.geojson", |w| {
+            output::points_geojson_to(&a.point_rows, w)
+        })?;
         let m = manifest(a, opts)?;
         output::write_file(
             d,

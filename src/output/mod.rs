@@ -31,6 +31,28 @@ pub fn write_file(dir: &Path, rel: &str, bytes: &[u8]) -> Result<()> {
     Ok(())
 }
 
+/// Stream a file inside the staging folder through a buffered writer.
+pub fn write_with(
+    dir: &Path,
+    rel: &str,
+    f: impl FnOnce(&mut dyn Write) -> Result<()>,
+) -> Result<()> {
+    let p = dir.join(rel);
+    if let Some(parent) = p.parent() {
+        std::fs::create_dir_all(parent)
+            .with_context(|| format!("cannot create {}", parent.display()))?;
+    }
+    let file =
+        std::fs::File::create(&p).with_context(|| format!("cannot write {}", p.display()))?;
+    let mut w = std::io::BufWriter::with_capacity(1 << 20, file);
+    f(&mut w).with_context(|| format!("cannot write {}", p.display()))?;
+    let file = w
+        .into_inner()
+        .map_err(|e| anyhow::anyhow!("cannot write {}: {}", p.display(), e.error()))?;
+    file.sync_all().ok();
+    Ok(())
+}
+
 /// A staging folder next to the final output folder.
 pub struct Staging {
     /// Where files are written during the run.
@@ -124,17 +146,34 @@ pub fn hex(b: &[u8]) -> String {
 
 /// results.json text (pretty, stable field order).
 pub fn results_json(r: &Results) -> Result<String> {
-    Ok(serde_json::to_string_pretty(r)? + "\n")
+    let mut v = Vec::new();
+    results_json_to(r, &mut v)?;
+    Ok(String::from_utf8(v)?)
+}
+
+/// Stream results.json.
+pub fn results_json_to(r: &Results, w: &mut dyn Write) -> Result<()> {
+    serde_json::to_writer_pretty(&mut *w, r)?;
+    w.write_all(b"\n")?;
+    Ok(())
 }
 
 /// results.csv text: one row per structure, the scalar fields.
 pub fn results_csv(r: &Results) -> Result<Vec<u8>> {
-    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut v = Vec::new();
+    results_csv_to(r, &mut v)?;
+    Ok(v)
+}
+
+/// Stream results.csv.
+pub fn results_csv_to(r: &Results, out: &mut dyn Write) -> Result<()> {
+    let mut w = csv::Writer::from_writer(out);
     w.write_record(SCALAR_FIELDS)?;
     for s in &r.structures {
         w.write_record(s.csv_cells())?;
     }
-    Ok(w.into_inner()?)
+    w.flush()?;
+    Ok(())
 }
 
 fn ring_json(ls: &geo::LineString<f64>) -> serde_json::Value {
@@ -164,8 +203,20 @@ pub fn multipolygon_json(mp: &geo::MultiPolygon<f64>) -> serde_json::Value {
 
 /// results.geojson text: footprints (WGS84, RFC 7946) with the scalar fields as properties.
 pub fn results_geojson(r: &Results, footprints_wgs84: &[geo::MultiPolygon<f64>]) -> Result<String> {
-    let mut feats = Vec::with_capacity(r.structures.len());
-    for (s, fp) in r.structures.iter().zip(footprints_wgs84) {
+    let fps: Vec<&geo::MultiPolygon<f64>> = footprints_wgs84.iter().collect();
+    let mut v = Vec::new();
+    results_geojson_to(r, &fps, &mut v)?;
+    Ok(String::from_utf8(v)?)
+}
+
+/// Stream results.geojson, one feature at a time.
+pub fn results_geojson_to(
+    r: &Results,
+    footprints_wgs84: &[&geo::MultiPolygon<f64>],
+    w: &mut dyn Write,
+) -> Result<()> {
+    w.write_all(b"{\"type\":\"FeatureCollection\",\"features\":[")?;
+    for (i, (s, fp)) in r.structures.iter().zip(footprints_wgs84).enumerate() {
         let full = serde_json::to_value(s)?;
         let mut props = serde_json::Map::new();
         for f in SCALAR_FIELDS {
@@ -179,14 +230,18 @@ pub fn results_geojson(r: &Results, footprints_wgs84: &[geo::MultiPolygon<f64>])
             };
             props.insert((*f).to_string(), v);
         }
-        feats.push(serde_json::json!({
+        let feat = serde_json::json!({
             "type": "Feature",
             "properties": props,
             "geometry": multipolygon_json(fp),
-        }));
+        });
+        if i > 0 {
+            w.write_all(b",")?;
+        }
+        serde_json::to_writer(&mut *w, &feat)?;
     }
-    let doc = serde_json::json!({"type": "FeatureCollection", "features": feats});
-    Ok(serde_json::to_string(&doc)? + "\n")
+    w.write_all(b"]}\n")?;
+    Ok(())
 }
 
 /// One row of points.csv.
@@ -216,11 +271,20 @@ pub struct PointRow {
     pub reason: String,
     /// Vertical velocity of the point, mm/yr (+ up), when computed.
     pub vertical_velocity_mm_per_yr: Option<f64>,
+    /// Number of structures whose surroundings ring holds the point.
+    pub surroundings_of: usize,
 }
 
 /// points.csv text.
 pub fn points_csv(rows: &[PointRow]) -> Result<Vec<u8>> {
-    let mut w = csv::Writer::from_writer(Vec::new());
+    let mut v = Vec::new();
+    points_csv_to(rows, &mut v)?;
+    Ok(v)
+}
+
+/// Stream points.csv.
+pub fn points_csv_to(rows: &[PointRow], out: &mut dyn Write) -> Result<()> {
+    let mut w = csv::Writer::from_writer(out);
     for r in rows {
         w.serialize(r)?;
     }
@@ -238,26 +302,34 @@ pub fn points_csv(rows: &[PointRow]) -> Result<Vec<u8>> {
             "status",
             "reason",
             "vertical_velocity_mm_per_yr",
+            "surroundings_of",
         ])?;
     }
-    Ok(w.into_inner()?)
+    w.flush()?;
+    Ok(())
 }
 
 /// points.geojson text.
 pub fn points_geojson(rows: &[PointRow]) -> Result<String> {
-    let feats: Vec<serde_json::Value> = rows
-        .iter()
-        .map(|r| {
-            serde_json::json!({
-                "type": "Feature",
-                "properties": r,
-                "geometry": {"type": "Point", "coordinates": [round9(r.lon), round9(r.lat)]},
-            })
-        })
-        .collect();
-    Ok(
-        serde_json::to_string(
-            &serde_json::json!({"type": "FeatureCollection", "features": feats}),
-        )? + "\n",
-    )
+    let mut v = Vec::new();
+    points_geojson_to(rows, &mut v)?;
+    Ok(String::from_utf8(v)?)
+}
+
+/// Stream points.geojson, one feature at a time.
+pub fn points_geojson_to(rows: &[PointRow], w: &mut dyn Write) -> Result<()> {
+    w.write_all(b"{\"type\":\"FeatureCollection\",\"features\":[")?;
+    for (i, r) in rows.iter().enumerate() {
+        let f = serde_json::json!({
+            "type": "Feature",
+            "properties": r,
+            "geometry": {"type": "Point", "coordinates": [round9(r.lon), round9(r.lat)]},
+        });
+        if i > 0 {
+            w.write_all(b",")?;
+        }
+        serde_json::to_writer(&mut *w, &f)?;
+    }
+    w.write_all(b"]}\n")?;
+    Ok(())
 }
