@@ -182,6 +182,7 @@ fn asset_model_fields_from_sample_data() {
             "criteria",
             "data_quality",
             "cautions",
+            "works",
             "provenance"
         ]
     );

@@ -331,6 +331,7 @@ pub fn asset_report(
             assumptions,
         },
         cautions: vec![],
+        works: None,
         provenance: Provenance {
             tool: tool_label(),
             inputs: ctx.inputs.clone(),

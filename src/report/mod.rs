@@ -16,6 +16,7 @@
 //! - [`world`]: the typst `World` (fonts, templates, virtual files, file-access rules).
 //! - [`render`]: `render_pdf`, `render_batch`, diagnostics with file:line:col.
 //! - [`pipeline`]: from a finished analysis to the PDFs and model JSON in the output folder.
+//! - [`works`]: the planned-works section and overview columns from the works screening.
 //! - [`references`]: full citations for the provenance section.
 //! - [`sample`]: invented sample data for tests and template previews.
 //!
@@ -31,6 +32,7 @@ pub mod references;
 pub mod render;
 pub mod sample;
 pub mod text;
+pub mod works;
 pub mod world;
 
 pub use model::{AssetCharts, AssetReport, PortfolioCharts, PortfolioReport};

@@ -647,6 +647,8 @@ pub struct AssetReport {
     pub data_quality: DataQualityView,
     /// Caution paragraphs (plain text from the text blocks).
     pub cautions: Vec<String>,
+    /// Planned works section; `None` (JSON `null`) when the portfolio has no `[works]`.
+    pub works: Option<WorksView>,
     /// Provenance.
     pub provenance: Provenance,
 }
@@ -865,6 +867,12 @@ pub struct InteractionChart {
     pub poisson: f64,
     /// Bending mode of the zone.
     pub mode: BendingMode,
+    /// Name of the criteria set whose boundaries are drawn (shown in the legend).
+    pub criteria_name: String,
+    /// The set's category boundaries 0|1, 1|2, 2|3, 3|4–5 as absolute limiting tensile strain.
+    pub thresholds: [f64; 4],
+    /// The set's neutral-axis positions (sagging, hogging) used for the boundary curves.
+    pub neutral_axis: crate::damage::burland_wroth::NeutralAxisPolicy,
     /// Deflection ratio magnitude |Δ/L| with interval.
     pub deflection_ratio: Interval,
     /// Horizontal strain used (+ tension) with interval.
@@ -908,6 +916,8 @@ pub struct AssetCharts {
     pub profiles: Vec<Result<ProfileChart, String>>,
     /// Interaction chart.
     pub interaction: Result<InteractionChart, String>,
+    /// Planned-works charts; `None` without `[works]`.
+    pub works: Option<WorksCharts>,
 }
 
 impl AssetCharts {
@@ -919,6 +929,7 @@ impl AssetCharts {
             timeseries: Err(reason()),
             profiles: vec![],
             interaction: Err(reason()),
+            works: None,
         }
     }
 
@@ -1008,6 +1019,11 @@ pub struct RankRow {
     pub evidence_grade: String,
     /// Trigger status text.
     pub trigger_status: String,
+    /// Predicted category from the planned works, e.g. "1 — Very slight"; `None` without
+    /// `[works]` (filled by the pipeline after ranking).
+    pub predicted_category: Option<String>,
+    /// Observed / predicted settlement, e.g. "1.02"; `None` without `[works]`.
+    pub observed_to_predicted: Option<String>,
 }
 
 /// Raw inputs for one ranked row, sorted by [`rank_rows`].
@@ -1091,6 +1107,8 @@ pub fn rank_rows(mut inputs: Vec<RankInput>) -> Vec<RankRow> {
                 },
                 evidence_grade: r.evidence_grade,
                 trigger_status: r.trigger_status,
+                predicted_category: None,
+                observed_to_predicted: None,
             }
         })
         .collect()
@@ -1128,6 +1146,9 @@ pub struct PortfolioReport {
     pub grade_counts: Vec<CountRow>,
     /// Ranked table (worst first).
     pub ranked: Vec<RankRow>,
+    /// True when the portfolio has `[works]`: the ranked table then shows the predicted
+    /// category and the observed/predicted settlement.
+    pub has_works: bool,
     /// Changes since the previous period.
     pub changes: Vec<ChangeRow>,
     /// Why there is no change table, when there is none.
@@ -1219,6 +1240,218 @@ impl PortfolioCharts {
             ),
             Err(reason) => FigureSlot::missing(ChartFile::PortfolioMap, reason),
         }
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Planned works (only when the portfolio has `[works]`)
+// ---------------------------------------------------------------------------------------------
+
+/// One predicted-against-observed row of the works section, formatted with units.
+#[derive(Debug, Clone, Serialize)]
+pub struct WorksRow {
+    /// Quantity in words, e.g. "Largest settlement".
+    pub quantity: String,
+    /// Unit or form of the values, e.g. "mm, + down" or "1/n".
+    pub unit: String,
+    /// Predicted for the comparison period, or "not computed".
+    pub predicted: String,
+    /// Observed, or "not observed".
+    pub observed: String,
+    /// Observed / predicted, or "—" with the reason in `note`.
+    pub ratio: String,
+    /// "yes" / "no" / "—": the observation exceeds the prediction.
+    pub exceeds: String,
+    /// Why a value or the ratio is missing, or "—".
+    pub note: String,
+}
+
+/// The "Planned works" section of a structure report (`works` in `/data.json`; `null` without
+/// `[works]`).
+#[derive(Debug, Clone, Serialize)]
+pub struct WorksView {
+    /// Largest predicted greenfield settlement on the footprint, all works complete, e.g.
+    /// "16.9 mm".
+    pub predicted_settlement: String,
+    /// Predicted ("possible") category, e.g. "0 — Negligible", or "not computed: ...".
+    pub predicted_category: String,
+    /// Observed / predicted largest settlement for the comparison period, e.g. "1.02", or
+    /// "not computed: ...".
+    pub observed_to_predicted: String,
+    /// Stage 1 verdict in one sentence.
+    pub stage1: String,
+    /// Stage 2 verdict in one sentence (or why there is none).
+    pub stage2: String,
+    /// Facts about the stages (section, parts, factors).
+    pub facts: Vec<Param>,
+    /// Works near the structure, nearest first ("Drive A (tunnel): 10.0 m, chainage 500 m").
+    pub nearby: Vec<String>,
+    /// What the predicted side of the comparison covers.
+    pub comparison_period: String,
+    /// Predicted against observed.
+    pub comparison: Vec<WorksRow>,
+    /// Plan view of the structure and the works.
+    pub plan: FigureSlot,
+    /// Predicted against observed chart (face history, or bars without history).
+    pub comparison_chart: FigureSlot,
+    /// Assumptions of the screening, in plain sentences.
+    pub assumptions: Vec<String>,
+}
+
+/// A straight line in local metres.
+pub type LocalLine = [[f64; 2]; 2];
+
+/// One tunnel drive on the works plan (local metres of the structure's frame).
+#[derive(Debug, Clone, PartialEq)]
+pub struct WorksPlanTunnel {
+    /// Drive name.
+    pub name: String,
+    /// Alignment vertices.
+    pub centreline: Vec<[f64; 2]>,
+    /// Per segment, the band between the inflection lines (±i from the axis): a closed ring.
+    pub bands: Vec<Vec<[f64; 2]>>,
+    /// Per segment, the two inflection lines (offset ±i).
+    pub inflection_lines: Vec<LocalLine>,
+    /// Trough width parameters i of the segments, m (for the legend).
+    pub i_m: Vec<f64>,
+    /// Face position at the end of the assessment window, when the drive has face records.
+    pub face_at_window_end: Option<[f64; 2]>,
+}
+
+/// One excavation on the works plan.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WorksPlanExcavation {
+    /// Name.
+    pub name: String,
+    /// Outline ring.
+    pub outline: Vec<[f64; 2]>,
+    /// Outline grown by the settlement envelope's reach (rings).
+    pub influence: Vec<Vec<[f64; 2]>>,
+    /// The reach, m.
+    pub influence_m: f64,
+}
+
+/// Data for the works plan view, in the structure's local frame (origin `origin_m`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct WorksPlanChart {
+    /// Chart title.
+    pub title: String,
+    /// Analysis CRS label.
+    pub crs_label: String,
+    /// Easting and northing of the local origin in the analysis CRS, m.
+    pub origin_m: [f64; 2],
+    /// Footprint rings.
+    pub footprint: Vec<Vec<[f64; 2]>>,
+    /// Tunnels.
+    pub tunnels: Vec<WorksPlanTunnel>,
+    /// Excavations.
+    pub excavations: Vec<WorksPlanExcavation>,
+    /// The stage-2 section line drawn across the structure (extended beyond it).
+    pub section: Option<LocalLine>,
+    /// The part of the section covered by the structure (the assessed extent).
+    pub section_extent: Option<LocalLine>,
+    /// Where the largest predicted settlement on the footprint is, and its label.
+    pub max_settlement: Option<([f64; 2], String)>,
+    /// View box to draw (min x, max x, min y, max y), local m; geometry beyond it is cut.
+    pub view_m: [f64; 4],
+    /// Works beyond the view, named in the legend ("Drive B 320 m away").
+    pub outside_view: Vec<String>,
+}
+
+/// One epoch of the settlement history next to a dated drive.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct WorksEpoch {
+    /// Date.
+    pub date: NaiveDate,
+    /// Observed settlement since the reference date, mm, **+ down**; `None` without data.
+    pub observed_mm: Option<f64>,
+    /// Predicted settlement since the reference date, mm, **+ down**.
+    pub predicted_mm: f64,
+}
+
+/// Observed and predicted settlement over time as a drive passes the structure.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WorksHistoryChart {
+    /// Chart title.
+    pub title: String,
+    /// Drive name.
+    pub tunnel: String,
+    /// Reference date of both series.
+    pub reference_date: NaiveDate,
+    /// Epochs in date order.
+    pub epochs: Vec<WorksEpoch>,
+    /// First epoch at which the face has passed the structure's chainage, if any.
+    pub face_passes: Option<NaiveDate>,
+}
+
+/// A pair of bars (predicted, observed) for one quantity.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WorksBarPair {
+    /// Panel title, e.g. "Largest settlement".
+    pub quantity: String,
+    /// Axis title with unit, e.g. "mm, + down".
+    pub unit: String,
+    /// Predicted value in the axis unit.
+    pub predicted: Option<f64>,
+    /// Observed value in the axis unit.
+    pub observed: Option<f64>,
+}
+
+/// Predicted against observed as bars, one panel per quantity (used without a face history).
+#[derive(Debug, Clone, PartialEq)]
+pub struct WorksBarChart {
+    /// Chart title.
+    pub title: String,
+    /// Panels.
+    pub pairs: Vec<WorksBarPair>,
+}
+
+/// The predicted-against-observed chart of the works section.
+#[derive(Debug, Clone, PartialEq)]
+pub enum WorksComparisonChart {
+    /// Settlement history against date with the face passing.
+    History(WorksHistoryChart),
+    /// Bars per quantity.
+    Bars(WorksBarChart),
+}
+
+/// Chart data of the works section; `Err(reason)` where a chart is not computed.
+#[derive(Debug, Clone)]
+pub struct WorksCharts {
+    /// Plan view.
+    pub plan: Result<WorksPlanChart, String>,
+    /// Predicted against observed.
+    pub comparison: Result<WorksComparisonChart, String>,
+}
+
+impl WorksCharts {
+    /// Caption of the plan view.
+    pub const PLAN_CAPTION: &'static str = "Plan: the structure and the planned works near it; \
+        shaded band between the tunnel trough's inflection lines (±i), and the section line \
+        of the stage-2 assessment.";
+    /// Caption of the history chart.
+    pub const HISTORY_CAPTION: &'static str = "Settlement of the structure (mm, positive down, \
+        plotted downward) as the drive passes: observed against the greenfield prediction.";
+    /// Caption of the bar chart.
+    pub const BARS_CAPTION: &'static str = "Predicted against observed over the comparison \
+        period: settlement, slope and deflection ratio.";
+
+    /// The two figure slots matching this chart data.
+    pub fn figure_slots(&self) -> (FigureSlot, FigureSlot) {
+        let plan = match &self.plan {
+            Ok(_) => FigureSlot::present(ChartFile::WorksPlan, Self::PLAN_CAPTION),
+            Err(r) => FigureSlot::missing(ChartFile::WorksPlan, r),
+        };
+        let cmp = match &self.comparison {
+            Ok(WorksComparisonChart::History(_)) => {
+                FigureSlot::present(ChartFile::WorksComparison, Self::HISTORY_CAPTION)
+            }
+            Ok(WorksComparisonChart::Bars(_)) => {
+                FigureSlot::present(ChartFile::WorksComparison, Self::BARS_CAPTION)
+            }
+            Err(r) => FigureSlot::missing(ChartFile::WorksComparison, r),
+        };
+        (plan, cmp)
     }
 }
 

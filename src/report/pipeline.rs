@@ -29,9 +29,9 @@
 //! - The surroundings appear on the time series as a straight line at their vertical velocity
 //!   from the reference epoch (the series stage keeps their velocity, not their series).
 //! - The interaction chart uses the governing zone of the damage assessment: its L/H and mode,
-//!   the criteria set's E/G and ν; Δ/L with a 90 % interval of ±1.645 Monte Carlo SE and ε_h
-//!   (as used, i.e. after the compressive-strain policy) with ±1.645 formal SE of the axis
-//!   strain. Without a limiting-tensile-strain route or a zone the chart is "not computed".
+//!   the criteria set's E/G, ν, thresholds and neutral-axis positions (the legend names the
+//!   set); Δ/L with a 90 % interval of ±1.645 Monte Carlo SE and ε_h (as used, i.e. after the
+//!   compressive-strain policy) with ±1.645 formal SE of the axis strain. Without a limiting-tensile-strain route or a zone the chart is "not computed".
 //! - Evidence-grade counts of the overview use the pipeline's grade names (robust, adequate,
 //!   indicative, insufficient, then any other label), not the generic order of the model.
 
@@ -100,6 +100,14 @@ pub fn render_reports(
     let ctx = report_context(a)?;
     let criteria = crate::run::build_criteria(&a.portfolio)?;
     let lookup = PointLookup::new(a);
+    // The works geometry is not in results.json: rebuilt once from `[works]` (see super::works).
+    let works_geometry = match &a.portfolio.works {
+        Some(w) => Some(
+            crate::works::WorksGeometry::project(w, &a.inputs.analysis_crs, &a.portfolio.file)
+                .context("planned works for the reports")?,
+        ),
+        None => None,
+    };
     let n_threads = jobs
         .or_else(|| std::thread::available_parallelism().ok().map(|n| n.get()))
         .unwrap_or(1)
@@ -129,7 +137,16 @@ pub fn render_reports(
     let build_error: Mutex<Option<anyhow::Error>> = Mutex::new(None);
     let portfolio_job = portfolio_job(a, &ctx, &blocks)?;
     let asset_jobs = items.iter().map_while(|(r, s, _)| {
-        match asset_job(a, r, s, &ctx, &blocks, &criteria, &lookup) {
+        match asset_job(
+            a,
+            r,
+            s,
+            &ctx,
+            &blocks,
+            &criteria,
+            &lookup,
+            works_geometry.as_ref(),
+        ) {
             Ok(job) => Some(job),
             Err(e) => {
                 if let Ok(mut slot) = build_error.lock() {
@@ -1034,6 +1051,9 @@ fn interaction_chart(
         e_over_g: set.e_over_g,
         poisson: set.poisson,
         mode,
+        criteria_name: set.name.clone(),
+        thresholds: set.thresholds,
+        neutral_axis: set.neutral_axis,
         deflection_ratio: Interval {
             value: dr,
             lower: (dr - Z90 * dr_se).max(0.0),
@@ -1070,6 +1090,7 @@ fn for_display(r: &StructureResult) -> Cow<'_, StructureResult> {
 }
 
 /// The structure report model and its chart data.
+#[allow(clippy::too_many_arguments)]
 fn asset_job(
     a: &Analysis,
     r: &StructureResult,
@@ -1078,6 +1099,7 @@ fn asset_job(
     blocks: &TextBlocks,
     criteria: &crate::criteria::CriteriaRegistry,
     lookup: &PointLookup,
+    works_geometry: Option<&crate::works::WorksGeometry>,
 ) -> Result<ReportJob> {
     let mut model = build::asset_report(&for_display(r), ctx, blocks)
         .with_context(|| format!("report model for `{}`", r.id))?;
@@ -1092,7 +1114,7 @@ fn asset_job(
         // trend would read as a finding.
         Status::InsufficientData => Err("structure not assessable (see status reasons)".into()),
     };
-    let charts = AssetCharts {
+    let mut charts = AssetCharts {
         map: map_chart(a, s, lookup),
         timeseries,
         profiles: profile_charts(&metrics),
@@ -1100,7 +1122,12 @@ fn asset_job(
             Status::Assessed => interaction_chart(r, &metrics, criteria),
             Status::InsufficientData => Err("structure not assessable".into()),
         },
+        works: None,
     };
+    if let Some((view, works_charts)) = super::works::works_section(a, r, s, works_geometry) {
+        model.works = Some(view);
+        charts.works = Some(works_charts);
+    }
     Ok(ReportJob::asset(model, charts))
 }
 
@@ -1219,12 +1246,28 @@ fn category_text(c: Option<u8>, status: Option<Status>) -> String {
 /// The overview model and its map.
 fn portfolio_job(a: &Analysis, ctx: &ReportContext, blocks: &TextBlocks) -> Result<ReportJob> {
     let res = &a.results;
-    let rows = rank_rows(
+    let mut rows = rank_rows(
         res.structures
             .iter()
             .map(|r| build::rank_input(&for_display(r)))
             .collect(),
     );
+    let has_works = a.portfolio.works.is_some();
+    if has_works {
+        // Ranking sorts the rows; match them back by their (one-line) id, unique in the inputs.
+        let by_id: BTreeMap<String, &StructureResult> = res
+            .structures
+            .iter()
+            .map(|r| (one_line(&r.id), r))
+            .collect();
+        for row in &mut rows {
+            if let Some(r) = by_id.get(&row.id) {
+                let (cat, ratio) = super::works::overview_columns(r);
+                row.predicted_category = Some(cat);
+                row.observed_to_predicted = Some(ratio);
+            }
+        }
+    }
     let n_not = rows.iter().filter(|r| r.rank.is_none()).count();
     let text_ctx = TextContext::new()
         .text("portfolio_name", one_line(&res.portfolio.name))
@@ -1341,6 +1384,7 @@ fn portfolio_job(a: &Analysis, ctx: &ReportContext, blocks: &TextBlocks) -> Resu
         ],
         category_counts: category_counts(&rows),
         grade_counts: pipeline_grade_counts(&rows),
+        has_works,
         changes,
         changes_note,
         coverage,
@@ -1565,6 +1609,9 @@ mod tests {
             (c.l_over_h, c.e_over_g, c.poisson),
             (2.5, masonry.e_over_g, masonry.poisson)
         );
+        assert_eq!(c.criteria_name, "masonry");
+        assert_eq!(c.thresholds, masonry.thresholds);
+        assert_eq!(c.neutral_axis, masonry.neutral_axis);
         // |Δ/L| = 2e-4 with ±1.645·1e-5 (90 % normal interval).
         assert!((c.deflection_ratio.value - 2e-4).abs() < 1e-15);
         assert!((c.deflection_ratio.upper - (2e-4 + 1.645e-5)).abs() < 1e-15);

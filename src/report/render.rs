@@ -274,6 +274,24 @@ impl ReportJob {
                     );
                 }
                 model.figures = figures;
+                if let (Some(view), Some(w)) = (model.works.as_mut(), &charts.works) {
+                    if let Ok(c) = &w.plan {
+                        take(
+                            &mut svgs,
+                            &mut view.plan,
+                            ChartFile::WorksPlan,
+                            charts::works::draw_plan(c),
+                        );
+                    }
+                    if let Ok(c) = &w.comparison {
+                        take(
+                            &mut svgs,
+                            &mut view.comparison_chart,
+                            ChartFile::WorksComparison,
+                            charts::works::draw_comparison(c),
+                        );
+                    }
+                }
                 Ok(RenderJob {
                     template,
                     ident: model.structure.id.clone(),

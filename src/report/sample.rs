@@ -188,6 +188,7 @@ pub fn assessed_asset(name: &str) -> Result<(AssetReport, AssetCharts), ReportEr
             ],
         },
         cautions: vec![],
+        works: None,
         provenance: provenance(&[Method::BrouwerHanssen2023, Method::Muggeo2003]),
     };
     let ctx = asset_text_context(&model, "the processing reference area", false);
@@ -319,6 +320,9 @@ pub fn assessed_asset(name: &str) -> Result<(AssetReport, AssetCharts), ReportEr
             e_over_g: 2.6,
             poisson: 0.3,
             mode: BendingMode::Hogging,
+            criteria_name: "masonry".into(),
+            thresholds: [5.0e-4, 7.5e-4, 1.5e-3, 3.0e-3],
+            neutral_axis: crate::damage::burland_wroth::NeutralAxisPolicy::BURLAND_WROTH,
             deflection_ratio: Interval {
                 value: 8.43e-5,
                 lower: 3.5e-5,
@@ -331,6 +335,7 @@ pub fn assessed_asset(name: &str) -> Result<(AssetReport, AssetCharts), ReportEr
             },
             note: "ε_h clamped at 0 (compression not credited)".into(),
         }),
+        works: None,
     };
     Ok((model, charts))
 }
@@ -531,6 +536,7 @@ pub fn portfolio() -> Result<(PortfolioReport, PortfolioCharts), ReportError> {
         ],
         category_counts: category_counts(&rows),
         grade_counts: grade_counts(&rows),
+        has_works: false,
         changes: vec![ChangeRow {
             id: "NF-0051".into(),
             previous: "1 — Very slight".into(),

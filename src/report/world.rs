@@ -68,6 +68,10 @@ pub enum ChartFile {
     Interaction,
     /// Portfolio overview map.
     PortfolioMap,
+    /// Planned works: plan view.
+    WorksPlan,
+    /// Planned works: predicted against observed.
+    WorksComparison,
 }
 
 impl ChartFile {
@@ -80,6 +84,8 @@ impl ChartFile {
             Self::ProfileB => "/chart-profile-b.svg",
             Self::Interaction => "/chart-interaction.svg",
             Self::PortfolioMap => "/chart-portfolio-map.svg",
+            Self::WorksPlan => "/chart-works-plan.svg",
+            Self::WorksComparison => "/chart-works-comparison.svg",
         }
     }
 }

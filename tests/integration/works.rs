@@ -188,3 +188,99 @@ fn bad_works_input_names_the_key() {
         assert!(err.contains(key) && err.contains("hint:"), "{key}: {err}");
     }
 }
+
+/// `pdftotext` is available (the PDF text checks are skipped with a note otherwise).
+fn have_pdftotext() -> bool {
+    let ok = tool_ok("pdftotext");
+    if !ok {
+        println!(
+            "note: `pdftotext` not found; works report text checks skipped (install poppler-utils)"
+        );
+    }
+    ok
+}
+
+fn tool_ok(tool: &str) -> bool {
+    std::process::Command::new(tool)
+        .arg("-v")
+        .output()
+        .map(|o| o.status.success() || !o.stderr.is_empty())
+        .unwrap_or(false)
+}
+
+fn pdf_text(pdf: &std::path::Path) -> String {
+    let o = std::process::Command::new("pdftotext")
+        .args([pdf.to_str().unwrap(), "-"])
+        .output()
+        .unwrap();
+    assert!(o.status.success(), "pdftotext failed on {}", pdf.display());
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+#[test]
+fn reports_show_the_planned_works_section_and_overview_column() {
+    let (fx, p) = portfolio(&works_toml(""));
+    let out = fx.path("out");
+    let r = assess(&p, &out, &[]);
+    let s = structure(&r, "OVER");
+    // The model JSON carries the section; the values are those of results.json, formatted.
+    let model: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("reports/OVER.json")).unwrap())
+            .unwrap();
+    let w = &model["works"];
+    let pred = s["predicted_settlement_mm"].as_f64().unwrap();
+    let ratio = s["observed_to_predicted_settlement"].as_f64().unwrap();
+    let pred_text = format!("{pred:.1} mm");
+    let ratio_text = format!("{ratio:.2}");
+    assert_eq!(w["predicted_settlement"], pred_text.as_str());
+    assert_eq!(w["observed_to_predicted"], ratio_text.as_str());
+    assert_eq!(w["plan"]["available"], true, "{:#}", w["plan"]);
+    assert_eq!(w["comparison_chart"]["available"], true);
+    assert!(w["assumptions"].as_array().unwrap().iter().any(|a| {
+        a.as_str()
+            .unwrap()
+            .contains("applied to predicted movement only")
+    }));
+    let pf: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("portfolio.json")).unwrap())
+            .unwrap();
+    assert_eq!(pf["has_works"], true);
+    if !have_pdftotext() {
+        return;
+    }
+    // pdftotext may break a table cell across lines; compare without line breaks.
+    let text = pdf_text(&out.join("reports/OVER.pdf")).replace('\n', " ");
+    assert!(text.contains("Planned works"), "no works section");
+    assert!(
+        text.contains(&pred_text),
+        "predicted settlement {pred_text} missing"
+    );
+    assert!(text.contains(&ratio_text), "ratio {ratio_text} missing");
+    assert!(text.contains("Predicted against observed"));
+    let overview = pdf_text(&out.join("portfolio.pdf")).replace('\n', " ");
+    assert!(
+        overview.contains("Predicted category (works)"),
+        "no predicted-category column in the overview"
+    );
+}
+
+#[test]
+fn reports_without_works_omit_the_section() {
+    let (fx, p) = portfolio("");
+    let out = fx.path("out");
+    assess(&p, &out, &[]);
+    let model: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("reports/OVER.json")).unwrap())
+            .unwrap();
+    assert!(model["works"].is_null());
+    let pf: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("portfolio.json")).unwrap())
+            .unwrap();
+    assert_eq!(pf["has_works"], false);
+    assert!(pf["ranked"][0]["predicted_category"].is_null());
+    if have_pdftotext() {
+        let text = pdf_text(&out.join("reports/OVER.pdf"));
+        assert!(!text.contains("Planned works"));
+        assert!(!pdf_text(&out.join("portfolio.pdf")).contains("Predicted category"));
+    }
+}

@@ -8,6 +8,7 @@
 //! - [`profile`]: settlement profile along a principal axis.
 //! - [`interaction`]: deflection ratio against horizontal strain with category zones.
 //! - [`portfolio_map`]: all structures coloured by damage category.
+//! - [`works`]: planned works plan view and predicted against observed.
 //! - [`palette`]: the colour scales and their documentation.
 //!
 //! Does not own: any computation of the plotted quantities (only geometry for drawing, such as
@@ -24,6 +25,7 @@ pub mod palette;
 pub mod portfolio_map;
 pub mod profile;
 pub mod timeseries;
+pub mod works;
 
 use plotters::style::RGBColor;
 
