@@ -1,6 +1,8 @@
 //! Damage interaction chart: deflection ratio Δ/L against horizontal strain ε_h, with the
-//! category zones redrawn for the structure's own L/H, E/G, ν and bending mode (the method of
-//! Burland 1995), and the structure plotted with its uncertainty as error bars.
+//! category zones redrawn for the structure's own L/H and bending mode and for the criteria set
+//! actually used (its limiting-strain thresholds, E/G, ν and neutral-axis positions; the method
+//! of Burland 1995), and the structure plotted with its uncertainty as error bars. The legend
+//! names the set and its thresholds, so a user set is never shown with Burland's boundaries.
 //!
 //! Owns: drawing. The boundary curves come from
 //! [`crate::damage::burland_1995::interaction_curves`] (the inverted limiting-tensile-strain
@@ -17,7 +19,7 @@ use super::{DESC_SIZE, LABEL_SIZE, TITLE_SIZE};
 use super::{
     FONT, GRID_BOLD, GRID_LIGHT, INK, Swatch, WHITE, chart_error, draw_legend, finite_range, tint,
 };
-use crate::damage::burland_1995::interaction_curves;
+use crate::damage::burland_1995::interaction_curves_with_policy;
 use crate::damage::{Mode, StrainThresholds};
 use crate::report::ReportError;
 use crate::report::format::fixed;
@@ -29,8 +31,9 @@ const LEGEND_H: u32 = 96;
 
 /// Draws the interaction chart as an SVG string.
 ///
-/// Degenerate input: invalid L/H, E/G or ν (rejected by the damage relations) is an error; a
-/// non-finite structure value is drawn without the structure marker and the legend says so.
+/// Degenerate input: invalid L/H, E/G, ν or thresholds (rejected by the damage relations) is an
+/// error; a non-finite structure value is drawn without the structure marker and the legend
+/// says so.
 pub fn draw(data: &InteractionChart) -> Result<String, ReportError> {
     let first_guess = 60;
     let (svg, legend) = draw_with(data, first_guess)?;
@@ -53,17 +56,20 @@ fn draw_with(
         BendingMode::Hogging => Mode::Hogging,
         BendingMode::Sagging => Mode::Sagging,
     };
-    let curves = interaction_curves(
+    let chart_err = |e: crate::damage::DamageError| ReportError::Chart {
+        chart: NAME,
+        reason: e.to_string(),
+    };
+    let thresholds = StrainThresholds::new(data.thresholds).map_err(chart_err)?;
+    let curves = interaction_curves_with_policy(
         data.l_over_h,
         data.e_over_g,
         data.poisson,
         mode,
-        &StrainThresholds::BURLAND,
+        &thresholds,
+        &data.neutral_axis,
     )
-    .map_err(|e| ReportError::Chart {
-        chart: NAME,
-        reason: e.to_string(),
-    })?;
+    .map_err(chart_err)?;
     // Percent scaling for display.
     let pct = |v: f64| v * 100.0;
     let top_curve = curves
@@ -218,10 +224,13 @@ fn draw_with(
                 "structure value not computed".to_string(),
             ));
         }
+        let limits: Vec<String> = data.thresholds.iter().map(|t| fixed(pct(*t), 3)).collect();
         legend.push((
             Swatch::Line(INK, 1),
             format!(
-                "boundaries for L/H = {}, E/G = {}, ν = {}, {}",
+                "boundaries of criteria set `{}` (ε_lim {} %) for L/H = {}, E/G = {}, ν = {}, {}",
+                data.criteria_name,
+                limits.join(" / "),
                 fixed(data.l_over_h, 2),
                 fixed(data.e_over_g, 1),
                 fixed(data.poisson, 2),
@@ -249,6 +258,9 @@ mod tests {
             e_over_g: 2.6,
             poisson: 0.3,
             mode: BendingMode::Hogging,
+            criteria_name: "masonry".into(),
+            thresholds: [5.0e-4, 7.5e-4, 1.5e-3, 3.0e-3],
+            neutral_axis: crate::damage::burland_wroth::NeutralAxisPolicy::BURLAND_WROTH,
             deflection_ratio: Interval {
                 value: 8.43e-5,
                 lower: 5.0e-5,
@@ -270,7 +282,36 @@ mod tests {
         assert!(svg.contains("Deflection ratio |Δ/L| (%)"));
         assert!(svg.contains("4–5 Severe to very severe"));
         assert!(svg.contains("L/H = 1.00, E/G = 2.6"));
+        assert!(svg.contains("criteria set `masonry` (ε_lim 0.050 / 0.075 / 0.150 / 0.300 %)"));
         assert!(!svg.contains("opacity=\"0."));
+    }
+
+    /// The 0|1 boundary meets the ε_h axis at the set's first threshold: with a user set of
+    /// 0.1 % the zone-0 polygon must close at ε_h = 0.1 % (plotted in %), not at Burland's
+    /// 0.05 %. Hand check: at Δ/L = 0 the curves end at ε_h = ε_lim (damage-relations.md §3.4).
+    #[test]
+    fn draws_the_boundaries_of_the_set_used() {
+        let mut s = sample();
+        s.criteria_name = "stiff-frame".into();
+        s.thresholds = [1.0e-3, 2.0e-3, 4.0e-3, 8.0e-3];
+        let own = draw(&s).unwrap();
+        let burland = draw(&sample()).unwrap();
+        assert_ne!(own, burland);
+        assert!(own.contains("criteria set `stiff-frame` (ε_lim 0.100 / 0.200 / 0.400 / 0.800 %)"));
+        // The x axis reaches past the last threshold (0.8 % × 1.15 = 0.92 %), so it carries a
+        // 0.80 % tick; Burland's axis ends at 0.3 % × 1.15 = 0.345 %.
+        assert!(
+            own.contains("\n0.80\n"),
+            "x axis does not extend to the set's last threshold"
+        );
+        assert!(!burland.contains("\n0.80\n"));
+    }
+
+    #[test]
+    fn invalid_thresholds_are_an_error() {
+        let mut s = sample();
+        s.thresholds = [1.0e-3, 5.0e-4, 4.0e-3, 8.0e-3];
+        assert!(draw(&s).is_err());
     }
 
     #[test]
