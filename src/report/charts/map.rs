@@ -7,8 +7,13 @@
 //! frame, scale bar, north arrow, hatching). Does not own: coordinate transformation (points
 //! arrive in local metres with the frame origin given in the analysis CRS).
 //!
-//! Choice: the local frame's +y is taken as grid north of the analysis CRS (the coords module
-//! builds the frame that way), so the arrow is labelled "N (grid)".
+//! Choice: the local frame's +y is TRUE north (`coords::LocalFrame` rotates grid vectors by the
+//! meridian convergence), so the arrow is labelled "N (true)".
+//!
+//! Known limitation (open): the axis tick labels are printed as origin + local coordinate, which
+//! ignores the frame's rotation and scale factor (an error of about γ·distance, typically below
+//! 1 m within 50 m of the origin). Correct analysis-CRS corner coordinates need the frame's
+//! north bearing and scale in [`MapChart`] and `LocalFrame::to_analysis`; not done yet.
 
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -163,7 +168,7 @@ pub(crate) fn scale_and_north<DB: DrawingBackend>(
         .map_err(&err)?;
     chart
         .draw_series(std::iter::once(Text::new(
-            "N (grid)".to_string(),
+            "N (true)".to_string(),
             (nx - 0.04 * w, ny + 0.08 * h + head + 0.05 * h),
             (FONT, LABEL_SIZE).into_font().color(&INK),
         )))
@@ -476,7 +481,8 @@ mod tests {
         let svg = draw(&sample()).unwrap();
         assert!(svg.contains("Easting, EPSG:32631 (m)"));
         assert!(svg.contains("Vertical velocity (mm/yr, + up)"));
-        assert!(svg.contains("N (grid)"));
+        assert!(svg.contains("N (true)"));
+        assert!(!svg.contains("N (grid)"));
         assert!(svg.contains("rejected points (1)"));
         // An easting near the origin is printed as a CRS coordinate, not a local one.
         assert!(
