@@ -199,14 +199,9 @@ fn draw_with(
                         ORANGE.stroke_width(3),
                     )))
                     .map_err(&err)?;
-                let y_mid = -(d.chord_mm + d.profile_mm) / 2.0;
-                chart
-                    .draw_series(std::iter::once(Text::new(
-                        d.label.clone(),
-                        (d.chainage_m + (x1 - x0) * 0.01, y_mid),
-                        (FONT, DESC_SIZE).into_font().color(&ORANGE),
-                    )))
-                    .map_err(&err)?;
+                // The value goes into the legend only: a label beside the bar sat on the
+                // points and the fitted curve (the bar is drawn where Δ is largest, i.e. in
+                // the middle of the data).
                 legend.push((
                     Swatch::Line(ORANGE, 3),
                     format!("relative deflection ({})", d.label),
@@ -276,6 +271,8 @@ mod tests {
         assert!(svg.contains("Settlement (mm, + down, plotted downward)"));
         assert!(svg.contains("hogging zone"));
         assert!(svg.contains("Δ = 2.5 mm"));
+        // Only in the legend, never as a label over the data.
+        assert_eq!(svg.matches("Δ = 2.5 mm").count(), 1);
         assert!(!svg.contains("opacity=\"0."));
     }
 
