@@ -518,8 +518,9 @@ fn assess_zone(
         && set.compressive_strain == CompressivePolicy::ClampToZero
     {
         notes.push(format!(
-            "zone {index} ({}): compressive horizontal strain {s:e} clamped to 0",
-            z.mode.label()
+            "zone {index} ({}): compressive horizontal strain {:.3} ×10⁻³ clamped to 0",
+            z.mode.label(),
+            s * 1e3
         ));
     }
     let r = resultant_strains(&beam, used, set.poisson).map_err(|e| e.to_string())?;
