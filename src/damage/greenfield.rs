@@ -311,8 +311,8 @@ impl GaussianTrough {
 }
 
 /// Maximise a smooth function on \[a, b\]: dense sampling then golden-section refinement in the
-/// bracket around the best sample. Returns (x, f(x)).
-fn maximise(f: &dyn Fn(f64) -> f64, a: f64, b: f64) -> (f64, f64) {
+/// bracket around the best sample. Returns (x, f(x)). Shared with the works screening.
+pub(crate) fn maximise(f: &dyn Fn(f64) -> f64, a: f64, b: f64) -> (f64, f64) {
     const N: usize = 20_000;
     let step = (b - a) / N as f64;
     let mut best_k = 0usize;

@@ -336,37 +336,9 @@ pub struct Stage2 {
     pub deflection_ratio: Option<f64>,
 }
 
-/// Maximise a smooth function on [a, b]: dense sampling then golden-section refinement.
+/// Maximise a smooth function on [a, b] (see [`crate::damage::greenfield::maximise`]).
 fn maximise(f: &dyn Fn(f64) -> f64, a: f64, b: f64) -> (f64, f64) {
-    const N: usize = 20_000;
-    let step = (b - a) / N as f64;
-    let (mut best_k, mut best) = (0usize, f(a));
-    for k in 1..=N {
-        let v = f(a + step * k as f64);
-        if v > best {
-            best = v;
-            best_k = k;
-        }
-    }
-    let mut lo = a + step * best_k.saturating_sub(1) as f64;
-    let mut hi = (a + step * (best_k + 1) as f64).min(b);
-    let g = (5f64.sqrt() - 1.0) / 2.0;
-    for _ in 0..60 {
-        let x1 = hi - g * (hi - lo);
-        let x2 = lo + g * (hi - lo);
-        if f(x1) >= f(x2) {
-            hi = x2;
-        } else {
-            lo = x1;
-        }
-    }
-    let x = 0.5 * (lo + hi);
-    let v = f(x);
-    if v >= best {
-        (x, v)
-    } else {
-        (a + step * best_k as f64, best)
-    }
+    crate::damage::greenfield::maximise(f, a, b)
 }
 
 /// Inflection points of s on [a, b]: sign changes of the numerical curvature.

@@ -35,14 +35,7 @@ const LEGEND_H: u32 = 96;
 /// error; a non-finite structure value is drawn without the structure marker and the legend
 /// says so.
 pub fn draw(data: &InteractionChart) -> Result<String, ReportError> {
-    let first_guess = 60;
-    let (svg, legend) = draw_with(data, first_guess)?;
-    let needed = super::legend_height(&legend, SIZE.0);
-    if needed == first_guess {
-        Ok(svg)
-    } else {
-        draw_with(data, needed).map(|(svg, _)| svg)
-    }
+    super::with_fitted_legend(SIZE.0, |h| draw_with(data, h))
 }
 
 /// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries

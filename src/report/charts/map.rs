@@ -240,14 +240,7 @@ fn velocity_limit(data: &MapChart) -> f64 {
 /// Degenerate input: a footprint with fewer than three finite vertices is an error; no kept
 /// points is allowed (the legend says "no kept points").
 pub fn draw(data: &MapChart) -> Result<String, ReportError> {
-    let first_guess = 60;
-    let (svg, legend) = draw_with(data, first_guess)?;
-    let needed = super::legend_height(&legend, SIZE.0);
-    if needed == first_guess {
-        Ok(svg)
-    } else {
-        draw_with(data, needed).map(|(svg, _)| svg)
-    }
+    super::with_fitted_legend(SIZE.0, |h| draw_with(data, h))
 }
 
 /// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries

@@ -253,6 +253,22 @@ fn legend_layout(entries: &[(Swatch, String)], width: u32) -> Vec<(i32, i32)> {
 const LEGEND_ROW_H: i32 = 22;
 
 /// Pixel height a legend of `entries` needs at `width` (rows × row height + padding).
+/// Draw a chart whose legend strip must fit its entries: draw once with a first guess of the
+/// strip height, and again with the height the entries need when the guess was wrong.
+pub(crate) fn with_fitted_legend(
+    width: u32,
+    draw: impl Fn(u32) -> Result<(String, Vec<(Swatch, String)>), ReportError>,
+) -> Result<String, ReportError> {
+    let first_guess = 60;
+    let (svg, legend) = draw(first_guess)?;
+    let needed = legend_height(&legend, width);
+    if needed == first_guess {
+        Ok(svg)
+    } else {
+        draw(needed).map(|(svg, _)| svg)
+    }
+}
+
 pub(crate) fn legend_height(entries: &[(Swatch, String)], width: u32) -> u32 {
     let last_y = legend_layout(entries, width)
         .last()

@@ -27,14 +27,7 @@ type Item<'a> = (Vec<(f64, f64)>, Option<u8>, &'a str);
 ///
 /// Degenerate input: no structure with a drawable footprint is an error.
 pub fn draw(data: &PortfolioMapChart) -> Result<String, ReportError> {
-    let first_guess = 60;
-    let (svg, legend) = draw_with(data, first_guess)?;
-    let needed = super::legend_height(&legend, SIZE.0);
-    if needed == first_guess {
-        Ok(svg)
-    } else {
-        draw_with(data, needed).map(|(svg, _)| svg)
-    }
+    super::with_fitted_legend(SIZE.0, |h| draw_with(data, h))
 }
 
 /// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries

@@ -37,14 +37,7 @@ fn zone_fill(mode: BendingMode) -> RGBColor {
 /// Degenerate input: no finite point settlement is an error; an empty or reversed extent is
 /// replaced by the points' own chainage range.
 pub fn draw(data: &ProfileChart) -> Result<String, ReportError> {
-    let first_guess = 60;
-    let (svg, legend) = draw_with(data, first_guess)?;
-    let needed = super::legend_height(&legend, SIZE.0);
-    if needed == first_guess {
-        Ok(svg)
-    } else {
-        draw_with(data, needed).map(|(svg, _)| svg)
-    }
+    super::with_fitted_legend(SIZE.0, |h| draw_with(data, h))
 }
 
 /// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries

@@ -39,14 +39,7 @@ fn date_label(x: f64) -> String {
 /// Degenerate input: an empty aggregate series is an error (the caller shows "not computed");
 /// a single epoch is drawn as one point with a ±1 mm axis.
 pub fn draw(data: &TimeSeriesChart) -> Result<String, ReportError> {
-    let first_guess = 60;
-    let (svg, legend) = draw_with(data, first_guess)?;
-    let needed = super::legend_height(&legend, SIZE.0);
-    if needed == first_guess {
-        Ok(svg)
-    } else {
-        draw_with(data, needed).map(|(svg, _)| svg)
-    }
+    super::with_fitted_legend(SIZE.0, |h| draw_with(data, h))
 }
 
 /// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries
