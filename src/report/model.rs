@@ -1197,10 +1197,10 @@ pub fn category_counts(rows: &[RankRow]) -> Vec<CountRow> {
     out
 }
 
-/// Counts per evidence grade in the fixed order high, medium, low, insufficient, then any other
-/// label alphabetically.
+/// Counts per evidence grade in the fixed order of `crate::grade` (robust, adequate, indicative,
+/// insufficient), then any other label alphabetically.
 pub fn grade_counts(rows: &[RankRow]) -> Vec<CountRow> {
-    let mut labels: Vec<String> = ["high", "medium", "low", "insufficient"]
+    let mut labels: Vec<String> = ["robust", "adequate", "indicative", "insufficient"]
         .iter()
         .map(|s| s.to_string())
         .collect();

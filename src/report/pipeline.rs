@@ -1211,27 +1211,7 @@ fn enrich_model(
 
 /// Grade counts in the pipeline's order (robust, adequate, indicative, insufficient, others).
 fn pipeline_grade_counts(rows: &[RankRow]) -> Vec<CountRow> {
-    let mut labels: Vec<String> = ["robust", "adequate", "indicative", "insufficient"]
-        .iter()
-        .map(|s| s.to_string())
-        .collect();
-    let mut others: Vec<String> = rows
-        .iter()
-        .map(|r| r.evidence_grade.clone())
-        .filter(|g| !labels.contains(g))
-        .collect();
-    others.sort();
-    others.dedup();
-    labels.extend(others);
-    labels
-        .into_iter()
-        .map(|g| CountRow {
-            count: rows.iter().filter(|r| r.evidence_grade == g).count(),
-            key: g.clone(),
-            colour: None,
-            label: g,
-        })
-        .collect()
+    super::model::grade_counts(rows)
 }
 
 fn category_text(c: Option<u8>, status: Option<Status>) -> String {
