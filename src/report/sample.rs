@@ -126,7 +126,7 @@ pub fn assessed_asset(name: &str) -> Result<(AssetReport, AssetCharts), ReportEr
             category_probability: Some(0.94),
             category_distribution: vec![0.94, 0.05, 0.01, 0.0, 0.0],
             governing_route: Some("limiting tensile strain (Burland 1995), hogging zone, bending".into()),
-            evidence_grade: "medium".into(),
+            evidence_grade: "adequate".into(),
             trigger: Some(("below alert level (alert at 5.0 mm/yr)".into(), "none".into())),
             change_since_previous: Some("no change of category; velocity -2.1 → -2.4 mm/yr".into()),
         }),
@@ -453,7 +453,7 @@ pub fn portfolio() -> Result<(PortfolioReport, PortfolioCharts), ReportError> {
             Some(0),
             Some(1.234e-4),
             Some((-2.4, Some(0.4))),
-            "medium",
+            "adequate",
         ),
         (
             "NF-0051",
@@ -462,7 +462,7 @@ pub fn portfolio() -> Result<(PortfolioReport, PortfolioCharts), ReportError> {
             Some(2),
             Some(9.1e-4),
             Some((-6.8, Some(0.6))),
-            "high",
+            "robust",
         ),
         (
             "NF-0063",
@@ -471,7 +471,7 @@ pub fn portfolio() -> Result<(PortfolioReport, PortfolioCharts), ReportError> {
             Some(1),
             Some(6.2e-4),
             Some((-4.1, Some(0.5))),
-            "medium",
+            "adequate",
         ),
         (
             "NF-0107",
@@ -489,7 +489,7 @@ pub fn portfolio() -> Result<(PortfolioReport, PortfolioCharts), ReportError> {
             Some(0),
             Some(2.0e-5),
             Some((-0.4, Some(0.3))),
-            "low",
+            "indicative",
         ),
     ];
     let rows = rank_rows(
