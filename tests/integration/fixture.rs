@@ -3,7 +3,7 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
-/// Town origin of the fixtures (invented location in the Po-plain latitude band; no real site).
+/// Origin of the fixtures: an arbitrary longitude/latitude for invented test sites.
 pub const ORIGIN: (f64, f64) = (9.0, 45.0);
 
 /// Local east/north metres → lon/lat, tangent-plane radii at the origin latitude
