@@ -415,6 +415,20 @@ impl RowParser<'_> {
                     .max(last_line + 1)
             };
             last_line = line;
+            let inner_breaks = memchr::memchr_iter(b'\n', rec.as_slice()).count();
+            if inner_breaks > 0 && rec.len() != self.n_cols {
+                return Err(InputError::new(
+                    self.file,
+                    format!("line {line}"),
+                    format!(
+                        "a quoted field is never closed: the row runs over {} more lines and has {} fields, the header has {}",
+                        inner_breaks,
+                        rec.len(),
+                        self.n_cols
+                    ),
+                    "close the quote (\"...\") or remove the stray quote character",
+                ));
+            }
             ranges.clear();
             ranges.extend((0..rec.len()).filter_map(|i| rec.range(i)));
             let mut acc = Acc::default();

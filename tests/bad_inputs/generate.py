@@ -310,8 +310,8 @@ def _(f):
     f["points.csv"] = f["points.csv"].replace("\nP003", "\n\nP003").replace("\nP007", "\n\n\nP007")
 
 
-@case("csv-unterminated-quote", 2, ["points.csv", "line 4", "the row has 1 fields"],
-      note="an opening quote that never closes swallows the rest of the file; current behaviour: reported as a short row (the message does not mention the quote; listed as a defect)")
+@case("csv-unterminated-quote", 2, ["points.csv", "line 4", "quoted field is never closed"],
+      note="an opening quote that never closes swallows the rest of the file; the error names the line where the quoted field starts and says the quote is not closed")
 def _(f):
     set_cell(f, 3, 0, '"P003')
 
