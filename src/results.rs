@@ -230,6 +230,9 @@ impl StructureResult {
             "horizontal_strain" => self.horizontal_strain,
             "governing_strain" => self.governing_strain,
             "damage_category" => self.damage_category.map(f64::from),
+            "predicted_settlement_mm" => self.predicted_settlement_mm,
+            "predicted_category" => self.predicted_category.map(f64::from),
+            "observed_to_predicted_settlement" => self.observed_to_predicted_settlement,
             _ => None,
         }
     }

@@ -21,6 +21,9 @@ pub const FIELDS: &[&str] = &[
     "horizontal_strain",
     "governing_strain",
     "damage_category",
+    "predicted_settlement_mm",
+    "predicted_category",
+    "observed_to_predicted_settlement",
 ];
 
 /// Status text when no level is exceeded.
@@ -80,4 +83,32 @@ pub fn evaluate(
         .map(|(_, h)| h.level.clone())
         .unwrap_or_else(|| NONE_EXCEEDED.into());
     (status, hits, unevaluated)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn every_trigger_field_is_a_numeric_result_field() {
+        // A field listed here but unknown to StructureResult::numeric would never trigger.
+        let r: StructureResult = serde_json::from_value(serde_json::json!({
+            "id": "x", "name": "x", "status": "assessed", "status_reasons": [], "n_points": 5,
+            "n_rejected": {}, "n_surroundings": 0, "datasets": [], "settlement_mm": 1.0,
+            "differential_settlement_mm": 1.0, "mean_vertical_mm": 1.0, "mean_east_mm": 1.0,
+            "vertical_velocity_mm_per_yr": 1.0, "east_velocity_mm_per_yr": 1.0, "tilt": 1.0,
+            "tilt_azimuth_deg": 1.0, "angular_distortion": 1.0, "deflection_ratio": 1.0,
+            "horizontal_strain": 1.0, "governing_strain": 1.0, "damage_category": 1,
+            "damage_route": null, "evidence_grade": null, "vertical_velocity_se_mm_per_yr": null,
+            "east_velocity_se_mm_per_yr": null, "tilt_se": null, "damage_category_name": null,
+            "criteria_set": null, "height_m": 6.0, "structure_type": "masonry",
+            "trigger_status": null, "triggers": [], "report_file": null, "fallbacks": [],
+            "assumptions": [], "change": null, "predicted_settlement_mm": 1.0,
+            "predicted_category": 1, "observed_to_predicted_settlement": 1.0
+        }))
+        .unwrap();
+        for f in FIELDS {
+            assert!(r.numeric(f).is_some(), "{f}");
+        }
+    }
 }
