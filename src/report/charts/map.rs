@@ -18,12 +18,12 @@
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
+use super::LABEL_SIZE;
 use super::palette::velocity_color;
 use super::{
     FONT, GREY, GREY_FILL, GRID_BOLD, GRID_LIGHT, INK, Swatch, WHITE, chart_error, draw_legend,
     equal_aspect, finite_range, nice_step,
 };
-use super::{LABEL_SIZE, TITLE_SIZE};
 use crate::report::ReportError;
 use crate::report::format::{fixed, with_unit};
 use crate::report::model::MapChart;
@@ -292,18 +292,7 @@ fn draw_with(
         let (title_area, rest) = root.split_vertically(TITLE_H);
         let (body, legend_area) = rest.split_vertically(SIZE.1 - TITLE_H - LEGEND_H);
         let (map_area, bar_area) = body.split_horizontally(SIZE.0 - BAR_W);
-        title_area
-            .draw(&Text::new(
-                data.title.clone(),
-                (SIZE.0 as i32 / 2, 10),
-                (FONT, TITLE_SIZE).into_font().color(&INK).pos(
-                    plotters::style::text_anchor::Pos::new(
-                        plotters::style::text_anchor::HPos::Center,
-                        plotters::style::text_anchor::VPos::Top,
-                    ),
-                ),
-            ))
-            .map_err(&err)?;
+        super::draw_centred_title(&title_area, &data.title, SIZE.0, 10, NAME)?;
 
         let mut chart = plan_chart(&map_area, frame, data.origin_m, &data.crs_label)?;
         for n in &neighbours {

@@ -277,6 +277,43 @@ pub(crate) fn legend_height(entries: &[(Swatch, String)], width: u32) -> u32 {
     u32::try_from(last_y + LEGEND_ROW_H + 8).unwrap_or(40)
 }
 
+/// A date as a chart x coordinate: days from the common era (chrono's day count).
+pub(crate) fn day(d: chrono::NaiveDate) -> f64 {
+    use chrono::Datelike;
+    f64::from(d.num_days_from_ce())
+}
+
+/// Axis label `YYYY-MM` of a [`day`] coordinate; empty for non-finite values.
+pub(crate) fn date_label(x: f64) -> String {
+    if !x.is_finite() {
+        return String::new();
+    }
+    chrono::NaiveDate::from_num_days_from_ce_opt(x.round() as i32)
+        .map(|d| d.format("%Y-%m").to_string())
+        .unwrap_or_default()
+}
+
+/// Draw a chart title centred at the top of `area` (`width` px wide, `top` px from its top edge).
+pub(crate) fn draw_centred_title(
+    area: &plotters::drawing::DrawingArea<plotters::backend::SVGBackend, plotters::coord::Shift>,
+    title: &str,
+    width: u32,
+    top: i32,
+    chart: &'static str,
+) -> Result<(), ReportError> {
+    use plotters::prelude::*;
+    use plotters::style::text_anchor::{HPos, Pos, VPos};
+    area.draw(&Text::new(
+        title.to_string(),
+        (width as i32 / 2, top),
+        (FONT, TITLE_SIZE)
+            .into_font()
+            .color(&INK)
+            .pos(Pos::new(HPos::Center, VPos::Top)),
+    ))
+    .map_err(chart_error(chart))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

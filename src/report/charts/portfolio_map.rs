@@ -6,10 +6,10 @@
 
 use plotters::prelude::*;
 
+use super::SMALL_SIZE;
 use super::map::{bounds, hatch_segments, plan_chart, ring, scale_and_north};
 use super::palette::category_color;
 use super::{FONT, GREY, INK, Swatch, WHITE, chart_error, draw_legend};
-use super::{SMALL_SIZE, TITLE_SIZE};
 use crate::report::ReportError;
 use crate::report::model::{CategoryView, PortfolioMapChart};
 
@@ -58,18 +58,7 @@ fn draw_with(
         root.fill(&WHITE).map_err(&err)?;
         let (title_area, rest) = root.split_vertically(TITLE_H);
         let (map_area, legend_area) = rest.split_vertically(SIZE.1 - TITLE_H - LEGEND_H);
-        title_area
-            .draw(&Text::new(
-                data.title.clone(),
-                (SIZE.0 as i32 / 2, 10),
-                (FONT, TITLE_SIZE).into_font().color(&INK).pos(
-                    plotters::style::text_anchor::Pos::new(
-                        plotters::style::text_anchor::HPos::Center,
-                        plotters::style::text_anchor::VPos::Top,
-                    ),
-                ),
-            ))
-            .map_err(&err)?;
+        super::draw_centred_title(&title_area, &data.title, SIZE.0, 10, NAME)?;
         let mut chart = plan_chart(&map_area, frame, data.origin_m, &data.crs_label)?;
         let xr = chart.x_range();
         let global_spacing = (xr.end - xr.start) / 150.0;

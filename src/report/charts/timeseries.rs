@@ -5,12 +5,11 @@
 //! Owns: drawing only. Does not own: fitting (the curves arrive sampled in
 //! [`TimeSeriesChart`]). x is the calendar date (labels `YYYY-MM`), y is mm, positive up.
 
-use chrono::{Datelike, NaiveDate};
 use plotters::prelude::*;
 
 use super::{
-    BLUE, FONT, GREY, GRID_BOLD, GRID_LIGHT, INK, ORANGE, Swatch, WHITE, chart_error, draw_legend,
-    finite_range, pad_range, tint,
+    BLUE, FONT, GREY, GRID_BOLD, GRID_LIGHT, INK, ORANGE, Swatch, WHITE, chart_error, date_label,
+    day, draw_legend, finite_range, pad_range, tint,
 };
 use super::{DESC_SIZE, LABEL_SIZE, TITLE_SIZE};
 use crate::report::ReportError;
@@ -20,19 +19,6 @@ use crate::report::model::TimeSeriesChart;
 const NAME: &str = "time series";
 const SIZE: (u32, u32) = (820, 440);
 const LEGEND_H: u32 = 52;
-
-fn day(d: NaiveDate) -> f64 {
-    f64::from(d.num_days_from_ce())
-}
-
-fn date_label(x: f64) -> String {
-    if !x.is_finite() {
-        return String::new();
-    }
-    NaiveDate::from_num_days_from_ce_opt(x.round() as i32)
-        .map(|d| d.format("%Y-%m").to_string())
-        .unwrap_or_default()
-}
 
 /// Draws the time-series chart as an SVG string.
 ///
@@ -248,6 +234,7 @@ fn draw_with(
 mod tests {
     use super::*;
     use crate::report::model::{DatedValue, LabelledCurve};
+    use chrono::NaiveDate;
 
     fn d(y: i32, m: u32, day: u32) -> NaiveDate {
         NaiveDate::from_ymd_opt(y, m, day).unwrap()

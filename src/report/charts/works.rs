@@ -9,13 +9,12 @@
 //! Sign convention: settlement is **+ down** and plotted downward (larger settlement lower), as
 //! in the settlement profiles; the axis title says so. Δ/L bars are + sagging, − hogging.
 
-use chrono::{Datelike, NaiveDate};
 use plotters::prelude::*;
 
 use super::map::{plan_chart, scale_and_north};
 use super::{
     BLUE, DESC_SIZE, FONT, GREY, GRID_BOLD, GRID_LIGHT, INK, LABEL_SIZE, ORANGE, Swatch,
-    TITLE_SIZE, WHITE, chart_error, draw_legend, finite_range, pad_range, tint,
+    TITLE_SIZE, WHITE, chart_error, date_label, day, draw_legend, finite_range, pad_range, tint,
 };
 use crate::report::ReportError;
 use crate::report::format::{fixed, with_unit};
@@ -169,18 +168,7 @@ fn draw_plan_with(
         root.fill(&WHITE).map_err(&err)?;
         let (title_area, rest) = root.split_vertically(TITLE_H);
         let (map_area, legend_area) = rest.split_vertically(PLAN_SIZE.1 - TITLE_H);
-        title_area
-            .draw(&Text::new(
-                data.title.clone(),
-                (PLAN_SIZE.0 as i32 / 2, 10),
-                (FONT, TITLE_SIZE).into_font().color(&INK).pos(
-                    plotters::style::text_anchor::Pos::new(
-                        plotters::style::text_anchor::HPos::Center,
-                        plotters::style::text_anchor::VPos::Top,
-                    ),
-                ),
-            ))
-            .map_err(&err)?;
+        super::draw_centred_title(&title_area, &data.title, PLAN_SIZE.0, 10, PLAN)?;
         let mut chart = plan_chart(
             &map_area,
             ((vx0, vx1), (vy0, vy1)),
@@ -411,19 +399,6 @@ pub fn draw_comparison(data: &WorksComparisonChart) -> Result<String, ReportErro
     }
 }
 
-fn day(d: NaiveDate) -> f64 {
-    f64::from(d.num_days_from_ce())
-}
-
-fn date_label(x: f64) -> String {
-    if !x.is_finite() {
-        return String::new();
-    }
-    NaiveDate::from_num_days_from_ce_opt(x.round() as i32)
-        .map(|d| d.format("%Y-%m").to_string())
-        .unwrap_or_default()
-}
-
 fn draw_history(
     data: &WorksHistoryChart,
     legend_h: u32,
@@ -548,18 +523,7 @@ fn draw_bars(data: &WorksBarChart) -> Result<String, ReportError> {
         root.fill(&WHITE).map_err(&err)?;
         let (title_area, rest) = root.split_vertically(TITLE_H);
         let (plots, legend_area) = rest.split_vertically(CMP_SIZE.1 - TITLE_H);
-        title_area
-            .draw(&Text::new(
-                data.title.clone(),
-                (CMP_SIZE.0 as i32 / 2, 8),
-                (FONT, TITLE_SIZE).into_font().color(&INK).pos(
-                    plotters::style::text_anchor::Pos::new(
-                        plotters::style::text_anchor::HPos::Center,
-                        plotters::style::text_anchor::VPos::Top,
-                    ),
-                ),
-            ))
-            .map_err(&err)?;
+        super::draw_centred_title(&title_area, &data.title, CMP_SIZE.0, 8, CMP)?;
         let panels = plots.split_evenly((1, data.pairs.len()));
         for (pair, area) in data.pairs.iter().zip(panels.iter()) {
             let vals = [pair.predicted, pair.observed];
@@ -625,6 +589,7 @@ fn draw_bars(data: &WorksBarChart) -> Result<String, ReportError> {
 mod tests {
     use super::*;
     use crate::report::model::{WorksBarPair, WorksEpoch, WorksPlanTunnel};
+    use chrono::NaiveDate;
 
     #[test]
     fn segments_are_cut_to_the_view() {
