@@ -11,7 +11,7 @@ use std::collections::BTreeMap;
 use chrono::NaiveDate;
 
 use crate::association::Role;
-use crate::ingest::{Dataset, Point, Structure};
+use crate::ingest::{Dataset, PointRef, SeriesRef, Structure};
 use crate::portfolio::Portfolio;
 use crate::results::{Status, StructureResult};
 
@@ -53,7 +53,7 @@ pub struct Member<'a> {
     /// Dataset index.
     pub dataset: usize,
     /// The point.
-    pub point: &'a Point,
+    pub point: PointRef<'a>,
     /// Role for this structure.
     pub role: Role,
     /// Index of the point in its dataset (for the per-point statistics).
@@ -61,37 +61,136 @@ pub struct Member<'a> {
 }
 
 /// Per-point window statistics, computed once per point and shared by every structure the point
-/// is linked to.
+/// is linked to. Held compactly (16 bytes a point: `f32` values, NaN = not computable), since a
+/// run keeps one per retained point; `f32` keeps 7 significant digits, far below the precision of
+/// any InSAR velocity. Valid epochs saturate at 65 535.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct PointStats {
-    /// Valid (finite) epochs inside the window.
-    pub valid_epochs: usize,
-    /// OLS LOS velocity over the window, mm/yr.
-    pub los_velocity_mm_per_yr: Option<f64>,
-    /// Period LOS displacement and its σ, mm (see [`period_displacement`]).
-    pub period: Option<(f64, f64)>,
-    /// The series has an unwrapping-jump candidate (series::jumps).
-    pub jump_candidate: bool,
+    valid_epochs: u16,
+    los_velocity_mm_per_yr: f32,
+    period_mm: f32,
+    period_sigma_mm: f32,
+    jump_candidate: bool,
 }
 
 impl PointStats {
     /// Statistics of one point over the window.
-    pub fn of(
-        p: &Point,
-        epochs: &[NaiveDate],
-        idx: &[usize],
-        w: &Window,
-        wavelength_mm: f64,
-    ) -> Self {
-        let (t, v) = window_series(p, epochs, idx, w);
-        PointStats {
-            valid_epochs: t.len(),
-            los_velocity_mm_per_yr: ols_velocity_mm_per_yr(&t, &v),
-            period: period_displacement(&t, &v),
-            jump_candidate: !crate::series::jumps::detect_jumps(&v, wavelength_mm)
-                .flags
-                .is_empty(),
+    ///
+    /// `idx` are the window's epoch indices and `t_yr[k]` the time of epoch `idx[k]` in years from
+    /// the window start (see [`window_times`]).
+    ///
+    /// One pass over the series without allocating: shifted sums give the OLS velocity and the
+    /// residual scatter (the same quantities as [`ols_velocity_mm_per_yr`] and
+    /// [`period_displacement`], to rounding; tested against them), the first and last three valid
+    /// values give the period displacement, and a step larger than λ/4 between consecutive valid
+    /// epochs sends the series to the full jump scan ([`crate::series::jumps::has_jump_candidate`]).
+    pub fn of(p: SeriesRef, idx: &[usize], t_yr: &[f64], wavelength_mm: f64) -> Self {
+        let quarter = wavelength_mm / 4.0;
+        // On stored codes the sums run in code units (no per-value division) and are scaled once.
+        let (codes, unit_mm) = match p {
+            SeriesRef::Codes { codes, per_mm } => (Some(codes), 1.0 / f64::from(per_mm)),
+            SeriesRef::Floats(_) => (None, 1.0),
+        };
+        let quarter = quarter / unit_mm;
+        let value = |i: usize| -> Option<f64> {
+            match codes {
+                Some(c) => {
+                    let c = c[i];
+                    (c != crate::ingest::store::MISSING).then_some(f64::from(c))
+                }
+                None => {
+                    let x = p.get(i);
+                    x.is_finite().then_some(f64::from(x))
+                }
+            }
+        };
+        let (mut n, mut st, mut sv, mut stt, mut stv, mut svv) = (0usize, 0.0, 0.0, 0.0, 0.0, 0.0);
+        let (mut t0, mut v0) = (0.0, 0.0);
+        let mut prev = f64::NAN;
+        let mut big_step = false;
+        for (&i, &ti) in idx.iter().zip(t_yr) {
+            let Some(v) = value(i) else {
+                continue;
+            };
+            if n == 0 {
+                t0 = ti;
+                v0 = v;
+                prev = v;
+            }
+            big_step |= (v - prev).abs() > quarter;
+            prev = v;
+            let (dt, dv) = (ti - t0, v - v0);
+            n += 1;
+            st += dt;
+            sv += dv;
+            stt += dt * dt;
+            stv += dt * dv;
+            svv += dv * dv;
         }
+        // The first and last three valid values (period displacement).
+        let mut first3 = [0.0f64; 3];
+        let mut last3 = [0.0f64; 3];
+        if n >= 6 {
+            for (slot, v) in first3.iter_mut().zip(idx.iter().filter_map(|&i| value(i))) {
+                *slot = v;
+            }
+            for (slot, v) in last3
+                .iter_mut()
+                .zip(idx.iter().rev().filter_map(|&i| value(i)))
+            {
+                *slot = v;
+            }
+        }
+        let nf = n as f64;
+        let (tm, vm) = (st / nf, sv / nf);
+        let sxx = stt - nf * tm * tm;
+        let sxy = stv - nf * tm * vm;
+        let syy = svv - nf * vm * vm;
+        let velocity = (n >= 3 && sxx > 0.0).then(|| sxy / sxx);
+        let period = match velocity {
+            Some(slope) if n >= 6 => {
+                let rss = (syy - slope * sxy).max(0.0);
+                let s = (rss / (nf - 2.0)).sqrt();
+                let start = first3.iter().sum::<f64>() / 3.0;
+                let end = last3.iter().sum::<f64>() / 3.0;
+                Some(((end - start) * unit_mm, s * (2.0f64 / 3.0).sqrt() * unit_mm))
+            }
+            _ => None,
+        };
+        let velocity = velocity.map(|v| v * unit_mm);
+        let jump_candidate = big_step && {
+            let v: Vec<f64> = idx
+                .iter()
+                .map(|&i| f64::from(p.get(i)))
+                .filter(|x| x.is_finite())
+                .collect();
+            crate::series::jumps::has_jump_candidate(&v, wavelength_mm)
+        };
+        PointStats {
+            valid_epochs: u16::try_from(n).unwrap_or(u16::MAX),
+            los_velocity_mm_per_yr: velocity.map_or(f32::NAN, |x| x as f32),
+            period_mm: period.map_or(f32::NAN, |x: (f64, f64)| x.0 as f32),
+            period_sigma_mm: period.map_or(f32::NAN, |x| x.1 as f32),
+            jump_candidate,
+        }
+    }
+    /// Valid (finite) epochs inside the window.
+    pub fn valid_epochs(&self) -> usize {
+        self.valid_epochs as usize
+    }
+    /// OLS LOS velocity over the window, mm/yr.
+    pub fn los_velocity_mm_per_yr(&self) -> Option<f64> {
+        let v = self.los_velocity_mm_per_yr;
+        (!v.is_nan()).then_some(f64::from(v))
+    }
+    /// Period LOS displacement and its σ, mm (see [`period_displacement`]).
+    pub fn period(&self) -> Option<(f64, f64)> {
+        (!self.period_mm.is_nan())
+            .then_some((f64::from(self.period_mm), f64::from(self.period_sigma_mm)))
+    }
+    /// The series has an unwrapping-jump candidate (series::jumps).
+    pub fn jump_candidate(&self) -> bool {
+        self.jump_candidate
     }
 }
 
@@ -143,23 +242,11 @@ pub fn ols_velocity_mm_per_yr(t_yr: &[f64], v_mm: &[f64]) -> Option<f64> {
     Some(sxy / sxx)
 }
 
-/// Valid (time in years from the window start, value mm) pairs of a point inside the window.
-pub fn window_series(
-    p: &Point,
-    epochs: &[NaiveDate],
-    idx: &[usize],
-    w: &Window,
-) -> (Vec<f64>, Vec<f64>) {
-    let mut t = Vec::with_capacity(idx.len());
-    let mut v = Vec::with_capacity(idx.len());
-    for &i in idx {
-        let x = p.values_mm[i];
-        if x.is_finite() {
-            t.push((epochs[i] - w.start).num_days() as f64 / 365.25);
-            v.push(x as f64);
-        }
-    }
-    (t, v)
+/// Time of each window epoch `idx[k]` in years (365.25 days) from the window start.
+pub fn window_times(epochs: &[NaiveDate], idx: &[usize], w: &Window) -> Vec<f64> {
+    idx.iter()
+        .map(|&i| (epochs[i] - w.start).num_days() as f64 / 365.25)
+        .collect()
 }
 
 /// Context shared by all structures of a run.
@@ -206,19 +293,19 @@ pub fn period_displacement(t_yr: &[f64], v_mm: &[f64]) -> Option<(f64, f64)> {
     Some((end - start, s * (2.0f64 / 3.0).sqrt()))
 }
 
-/// Assess one structure.
-pub fn assess_structure(
+/// Screen one structure's member points (insar-methods §7): coherence below
+/// `min_coherence`, fewer than `min_epochs` valid epochs in the window, and — per geometry, among
+/// the structure's own points — robust velocity outliers (median absolute deviation, z >
+/// `outlier_z`, on the residuals of a least-squares velocity plane when there are 6 or more
+/// points). Unwrapping jumps are decided later by the time-series stage. Returns one verdict per
+/// member and each member's period LOS displacement (None when rejected or not computable).
+pub fn screen_members(
     ctx: &RunContext,
     s: &Structure,
     members: &[Member],
-    report_file: Option<String>,
-) -> (StructureResult, Vec<PointVerdict>) {
+) -> (Vec<PointVerdict>, Vec<Option<(f64, f64)>>) {
     let a = &ctx.portfolio.assessment;
     let mut verdicts = Vec::with_capacity(members.len());
-    let mut n_rejected: BTreeMap<String, usize> = BTreeMap::new();
-    let mut assumptions: Vec<String> = Vec::new();
-    let mut reasons: Vec<String> = Vec::new();
-
     // Screening, per member point.
     let mut kept_by_ds: BTreeMap<usize, Vec<(usize, f64)>> = BTreeMap::new(); // ds -> (verdict idx, v_los)
     let mut period: Vec<Option<(f64, f64)>> = Vec::with_capacity(members.len());
@@ -226,7 +313,7 @@ pub fn assess_structure(
         let ds = &ctx.datasets[m.dataset];
         let idx = &ctx.window_idx[m.dataset];
         let mut rejected = None;
-        if let (Some(c), true) = (m.point.coherence, ds.has_coherence) {
+        if let (Some(c), true) = (m.point.coherence(), ds.has_coherence) {
             if (c as f64) < a.min_coherence {
                 rejected = Some(reason::LOW_COHERENCE);
             }
@@ -235,20 +322,24 @@ pub fn assess_structure(
         // surroundings of many structures), see `PointStats::of`.
         let st = &ctx.point_stats[m.dataset][m.point_index];
         let _ = (ds, idx);
-        if rejected.is_none() && st.valid_epochs < a.min_epochs {
+        if rejected.is_none() && st.valid_epochs() < a.min_epochs {
             rejected = Some(reason::TOO_FEW_EPOCHS);
         }
         let vel = if rejected.is_none() {
-            st.los_velocity_mm_per_yr
+            st.los_velocity_mm_per_yr()
         } else {
             None
         };
-        period.push(if rejected.is_none() { st.period } else { None });
-        let cos_inc = m.point.incidence_deg.to_radians().cos();
+        period.push(if rejected.is_none() {
+            st.period()
+        } else {
+            None
+        });
+        let cos_inc = m.point.incidence_deg().to_radians().cos();
         let vv = vel.map(|v| v / cos_inc);
         // Points whose series shows an unwrapping-jump candidate are left out of the velocity
         // outlier screen: the time-series stage decides on them (and names the reason).
-        let jump_candidate = rejected.is_none() && st.jump_candidate;
+        let jump_candidate = rejected.is_none() && st.jump_candidate();
         if rejected.is_none() && m.role == Role::Structure && !jump_candidate {
             if let Some(vl) = vel {
                 kept_by_ds
@@ -259,7 +350,7 @@ pub fn assess_structure(
         }
         verdicts.push(PointVerdict {
             dataset: m.dataset,
-            point_id: m.point.id.clone(),
+            point_id: m.point.id().to_string(),
             role: m.role,
             rejected,
             vertical_velocity_mm_per_yr: vv,
@@ -276,7 +367,10 @@ pub fn assess_structure(
         }
         let xy: Vec<(f64, f64)> = list
             .iter()
-            .map(|(vi, _)| s.frame.to_local(members[*vi].point.x, members[*vi].point.y))
+            .map(|(vi, _)| {
+                s.frame
+                    .to_local(members[*vi].point.x(), members[*vi].point.y())
+            })
             .collect();
         let raw: Vec<f64> = list.iter().map(|x| x.1).collect();
         let resid = if list.len() >= 6 {
@@ -300,6 +394,22 @@ pub fn assess_structure(
             }
         }
     }
+    (verdicts, period)
+}
+
+/// Assess one structure.
+pub fn assess_structure(
+    ctx: &RunContext,
+    s: &Structure,
+    members: &[Member],
+    report_file: Option<String>,
+) -> (StructureResult, Vec<PointVerdict>) {
+    let a = &ctx.portfolio.assessment;
+    let mut n_rejected: BTreeMap<String, usize> = BTreeMap::new();
+    let mut assumptions: Vec<String> = Vec::new();
+    let mut reasons: Vec<String> = Vec::new();
+
+    let (mut verdicts, period) = screen_members(ctx, s, members);
     for v in &verdicts {
         if let Some(r) = v.rejected {
             if v.role == Role::Structure {
@@ -332,7 +442,7 @@ pub fn assess_structure(
                         points: idxs
                             .iter()
                             .map(|i| crate::series::PointSeries {
-                                values_mm: &members[*i].point.values_mm,
+                                values_mm: members[*i].point.series(),
                                 unit_enu: point_unit(ctx, &members[*i]),
                             })
                             .collect(),
@@ -457,7 +567,7 @@ pub fn assess_structure(
             if v.role != Role::Structure || v.rejected.is_some() {
                 continue;
             }
-            if let Some(c) = m.point.coherence {
+            if let Some(c) = m.point.coherence() {
                 coh_sum += c as f64;
                 coh_n += 1;
             }
@@ -465,7 +575,7 @@ pub fn assess_structure(
                 continue;
             };
             let u = point_unit(ctx, m);
-            let (x, y) = s.frame.to_local(m.point.x, m.point.y);
+            let (x, y) = s.frame.to_local(m.point.x(), m.point.y());
             let d_v = (d_los - u[0] * east_mm.unwrap_or(0.0)) / u[2];
             mpts.push(crate::metrics::MetricPoint {
                 x_m: x,
@@ -771,8 +881,12 @@ fn point_unit(ctx: &RunContext, m: &Member) -> [f64; 3] {
         crate::portfolio::LookSide::Right => crate::series::los::LookSide::Right,
         crate::portfolio::LookSide::Left => crate::series::los::LookSide::Left,
     };
-    crate::series::los::unit_vector_from_angles(m.point.incidence_deg, m.point.heading_deg, look)
-        .unwrap_or([0.0, 0.0, m.point.incidence_deg.to_radians().cos()])
+    crate::series::los::unit_vector_from_angles(
+        m.point.incidence_deg(),
+        m.point.heading_deg(),
+        look,
+    )
+    .unwrap_or([0.0, 0.0, m.point.incidence_deg().to_radians().cos()])
 }
 
 fn branch_label(b: crate::damage::Branch) -> &'static str {
@@ -823,5 +937,67 @@ fn median_sorted(v: &[f64]) -> f64 {
         v[n / 2]
     } else {
         0.5 * (v[n / 2 - 1] + v[n / 2])
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The one-pass statistics equal the two-pass reference functions on gappy, trending,
+    /// seasonal series, and the jump flag equals the full scan.
+    #[test]
+    fn one_pass_point_statistics_match_the_reference_functions() {
+        let lambda = crate::series::jumps::wavelength_mm(crate::series::jumps::C_BAND_FREQUENCY_HZ);
+        let n = 120;
+        let t_yr: Vec<f64> = (0..n).map(|k| k as f64 * 12.0 / 365.25).collect();
+        let idx: Vec<usize> = (0..n).collect();
+        for case in 0..6 {
+            let v: Vec<f32> = (0..n)
+                .map(|k| {
+                    if (k * 7 + case) % 11 == 0 {
+                        return f32::NAN;
+                    }
+                    let t = t_yr[k];
+                    let mut x = -4.0 * t * case as f64
+                        + 3.0 * (std::f64::consts::TAU * t).sin()
+                        + ((k * 37 % 17) as f64 - 8.0) * 0.3;
+                    if case == 5 && k >= 60 {
+                        x -= lambda / 2.0;
+                    }
+                    x as f32
+                })
+                .collect();
+            let st = PointStats::of(SeriesRef::floats(&v), &idx, &t_yr, lambda);
+            let (t, vv): (Vec<f64>, Vec<f64>) = idx
+                .iter()
+                .filter(|&&i| v[i].is_finite())
+                .map(|&i| (t_yr[i], f64::from(v[i])))
+                .unzip();
+            assert_eq!(st.valid_epochs(), t.len());
+            let vel = ols_velocity_mm_per_yr(&t, &vv).unwrap();
+            assert!((st.los_velocity_mm_per_yr().unwrap() - vel).abs() < 1e-5 * vel.abs().max(1.0));
+            let (d, s) = period_displacement(&t, &vv).unwrap();
+            let (d1, s1) = st.period().unwrap();
+            assert!((d1 - d).abs() < 1e-5 * d.abs().max(1.0), "case {case}");
+            assert!((s1 - s).abs() < 1e-5 * s.max(1.0), "case {case}");
+            let full = !crate::series::jumps::detect_jumps(&vv, lambda)
+                .flags
+                .is_empty();
+            assert_eq!(st.jump_candidate(), full, "case {case}");
+            assert_eq!(full, case == 5);
+        }
+    }
+
+    #[test]
+    fn too_few_epochs_give_no_velocity_or_period() {
+        let v = [0.0f32, 1.0, f32::NAN, 2.0];
+        let t = [0.0, 0.1, 0.2, 0.3];
+        let st = PointStats::of(SeriesRef::floats(&v), &[0, 1, 2, 3], &t, 55.0);
+        assert_eq!(st.valid_epochs(), 3);
+        assert!(st.los_velocity_mm_per_yr().is_some());
+        assert!(st.period().is_none());
+        let st = PointStats::of(SeriesRef::floats(&v[..2]), &[0, 1], &t[..2], 55.0);
+        assert!(st.los_velocity_mm_per_yr().is_none());
     }
 }

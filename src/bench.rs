@@ -233,6 +233,42 @@ pub fn floor_file(path: &Path) -> Result<FloorCount> {
     Ok(total)
 }
 
+/// The `ingest` phase: read footprints and points (reach filter), associate every point, compute
+/// every point's window statistics and screen every structure's own points (coherence, epochs,
+/// velocity outliers) with the same functions `run::analyse` uses. Returns (kept, rejected)
+/// structure-point counts.
+fn read_associate_screen(portfolio: &Path) -> Result<(usize, usize)> {
+    use crate::association::Role;
+    let pf = crate::portfolio::Portfolio::load(portfolio)?;
+    let mut w = crate::error::Warnings::default();
+    let (structures, crs, index) = crate::ingest::load_structures(&pf, &mut w)?;
+
+    let ds = crate::ingest::read_datasets(&pf, &crs, &index, &mut w)?;
+    // The per-point summaries are for the points outputs; screening needs the owners only.
+    let assoc = crate::association::Associated::build(&index, structures.len(), &ds).owners;
+    let window = crate::run::window_for(&pf, &ds, &mut w)?;
+    let ctx = crate::run::run_context(&pf, &ds, window, &crs)?;
+    let counts = structures
+        .par_iter()
+        .enumerate()
+        .map(|(si, s)| {
+            let members: Vec<crate::assess::Member> = assoc
+                .owned(si)
+                .map(|(d, i)| crate::assess::Member {
+                    dataset: d,
+                    point: ds[d].point(i),
+                    role: Role::Structure,
+                    point_index: i,
+                })
+                .collect();
+            let (verdicts, _) = crate::assess::screen_members(&ctx, s, &members);
+            let rejected = verdicts.iter().filter(|v| v.rejected.is_some()).count();
+            (verdicts.len() - rejected, rejected)
+        })
+        .reduce(|| (0, 0), |a, b| (a.0 + b.0, a.1 + b.1));
+    Ok(counts)
+}
+
 /// Run one phase in this process and return its measurement.
 pub fn run_phase(phase: &str, dir: &Path, hook: Option<ReportHook>) -> Result<PhaseRun> {
     let portfolio = dir.join("portfolio.toml");
@@ -258,19 +294,8 @@ pub fn run_phase(phase: &str, dir: &Path, hook: Option<ReportHook>) -> Result<Ph
             csv_bytes
         }
         "ingest" => {
-            let pf = crate::portfolio::Portfolio::load(&portfolio)?;
-            let mut w = crate::error::Warnings::default();
-            let (_s, crs, index) = crate::ingest::load_structures(&pf, &mut w)?;
-            let ds = crate::ingest::read_datasets(&pf, &crs, &index, &mut w)?;
-            let mut links = 0usize;
-            for d in &ds {
-                links += d
-                    .points
-                    .par_iter()
-                    .map(|p| index.associate(p.x, p.y).links.len())
-                    .sum::<usize>();
-            }
-            if links == 0 {
+            let (kept, rejected) = read_associate_screen(&portfolio)?;
+            if kept + rejected == 0 {
                 bail!("no point was associated with a structure");
             }
             all_bytes

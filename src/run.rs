@@ -185,6 +185,61 @@ pub fn shard_of(id: &str, n: usize) -> usize {
     (h % n as u64) as usize + 1
 }
 
+/// The context every structure's assessment shares: window epochs, scene LOS vectors, criteria,
+/// works, and the per-point window statistics of every retained point (computed here, in
+/// parallel, once per point).
+pub fn run_context<'a>(
+    pf: &'a Portfolio,
+    datasets: &'a [ingest::Dataset],
+    window: Window,
+    analysis_crs: &crate::coords::Crs,
+) -> Result<RunContext<'a>, InputError> {
+    let window_idx: Vec<Vec<usize>> = datasets
+        .iter()
+        .map(|d| assess::window_indices(&d.epochs, &window))
+        .collect();
+    let scene_unit = pf
+        .datasets
+        .iter()
+        .map(|d| match (d.incidence_deg, d.heading_deg) {
+            (Some(i), Some(h)) => {
+                crate::series::los::unit_vector_from_angles(i, h, to_series_look(d.look)).ok()
+            }
+            _ => None,
+        })
+        .collect();
+    let criteria = build_criteria(pf)?;
+    let works = pf
+        .works
+        .as_ref()
+        .map(|w| crate::works::WorksGeometry::project(w, analysis_crs, &pf.file))
+        .transpose()?;
+    let point_stats: Vec<Vec<assess::PointStats>> = datasets
+        .iter()
+        .zip(&window_idx)
+        .zip(&pf.datasets)
+        .map(|((d, idx), spec)| {
+            let t_yr = assess::window_times(&d.epochs, idx, &window);
+            (0..d.len())
+                .into_par_iter()
+                .map(|i| {
+                    assess::PointStats::of(d.point(i).series(), idx, &t_yr, spec.wavelength_mm)
+                })
+                .collect()
+        })
+        .collect();
+    Ok(RunContext {
+        portfolio: pf,
+        datasets,
+        window,
+        window_idx,
+        scene_unit,
+        criteria,
+        works,
+        point_stats,
+    })
+}
+
 /// Read, associate and assess. Nothing is written.
 pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
     let mut warnings = Warnings::default();
@@ -229,27 +284,13 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
     }
     let datasets = ingest::read_datasets(&pf, &analysis_crs, &index, &mut warnings)?;
     let window = window_for(&pf, &datasets, &mut warnings)?;
-    let window_idx: Vec<Vec<usize>> = datasets
-        .iter()
-        .map(|d| assess::window_indices(&d.epochs, &window))
-        .collect();
-    let scene_unit = pf
-        .datasets
-        .iter()
-        .map(|d| match (d.incidence_deg, d.heading_deg) {
-            (Some(i), Some(h)) => {
-                crate::series::los::unit_vector_from_angles(i, h, to_series_look(d.look)).ok()
-            }
-            _ => None,
-        })
-        .collect();
 
     // Association.
     let n_s = structures.len();
     let mut members: Vec<Vec<Member>> = vec![Vec::new(); n_s];
     let mut ties = 0usize;
     let mut surroundings_only = 0usize;
-    let mut link_rows: Vec<(usize, usize, crate::association::PointLinks)> = Vec::new();
+    let mut link_rows: Vec<(usize, usize, crate::association::PointAssociation)> = Vec::new();
     for (di, d) in datasets.iter().enumerate() {
         let links: Vec<crate::association::PointLinks> = d
             .points
@@ -266,41 +307,15 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
                 members[k.structure].push(Member {
                     point_index: pi,
                     dataset: di,
-                    point: &d.points[pi],
+                    point: d.point(pi),
                     role: k.role,
                 });
             }
-            link_rows.push((di, pi, l));
+            link_rows.push((di, pi, l.summary()));
         }
     }
 
-    let criteria = build_criteria(&pf)?;
-    let works = pf
-        .works
-        .as_ref()
-        .map(|w| crate::works::WorksGeometry::project(w, &analysis_crs, &pf.file))
-        .transpose()?;
-    let point_stats: Vec<Vec<assess::PointStats>> = datasets
-        .iter()
-        .zip(&window_idx)
-        .zip(&pf.datasets)
-        .map(|((d, idx), spec)| {
-            d.points
-                .par_iter()
-                .map(|p| assess::PointStats::of(p, &d.epochs, idx, &window, spec.wavelength_mm))
-                .collect()
-        })
-        .collect();
-    let ctx = RunContext {
-        portfolio: &pf,
-        datasets: &datasets,
-        window,
-        window_idx,
-        scene_unit,
-        criteria,
-        works,
-        point_stats,
-    };
+    let ctx = run_context(&pf, &datasets, window, &analysis_crs)?;
     let ids: Vec<&str> = structures.iter().map(|s| s.raw.id.as_str()).collect();
     let stems = output::safe_names::assign(&ids);
     let bar = if opts.progress {
@@ -336,15 +351,19 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         }
     }
     let mut point_rows = Vec::new();
+    // Longitude/latitude for the points outputs, from the analysis CRS (the store keeps only the
+    // analysis position).
+    let to_wgs = crate::coords::Transformer::new(&analysis_crs, &crate::coords::Crs::wgs84());
     for (di, pi, l) in &link_rows {
-        let p = &datasets[*di].points[*pi];
-        if l.tie {
+        let p = datasets[*di].point(*pi);
+        let (lon, lat) = to_wgs.apply(p.x(), p.y()).unwrap_or((f64::NAN, f64::NAN));
+        if l.tie() {
             point_rows.push(PointRow {
                 dataset: datasets[*di].name.clone(),
-                point_id: p.id.clone(),
-                line: p.line,
-                lon: p.lon,
-                lat: p.lat,
+                point_id: p.id().to_string(),
+                line: p.line(),
+                lon,
+                lat,
                 structure_id: String::new(),
                 role: "tie".into(),
                 inside: false,
@@ -352,45 +371,30 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
                 status: "rejected".into(),
                 reason: assess::reason::TIE.into(),
                 vertical_velocity_mm_per_yr: None,
-                surroundings_of: l.links.len(),
+                surroundings_of: usize::from(l.rings),
             });
         }
         // One row per point: its owning structure, or — for a point only in surroundings rings —
         // the nearest structure whose ring holds it (and how many rings hold it). Rows per
         // (point, structure) link would grow with the ring size times the point count.
-        let owner = l.links.iter().find(|k| k.role == Role::Structure);
-        let nearest = l
-            .links
-            .iter()
-            .filter(|k| k.role == Role::Surroundings)
-            .min_by(|a, b| {
-                a.distance_m
-                    .total_cmp(&b.distance_m)
-                    .then(a.structure.cmp(&b.structure))
-            });
-        let rings = l
-            .links
-            .iter()
-            .filter(|k| k.role == Role::Surroundings)
-            .count();
-        if let Some(k) = owner.or(nearest) {
+        if let Some(k) = l.structure() {
             let (rej, vv) = verdict_map
-                .get(&(k.structure, *di, p.id.as_str()))
+                .get(&(k, *di, p.id()))
                 .copied()
                 .unwrap_or((None, None));
             point_rows.push(PointRow {
                 dataset: datasets[*di].name.clone(),
-                point_id: p.id.clone(),
-                line: p.line,
-                lon: p.lon,
-                lat: p.lat,
-                structure_id: structures[k.structure].raw.id.clone(),
-                role: match k.role {
+                point_id: p.id().to_string(),
+                line: p.line(),
+                lon,
+                lat,
+                structure_id: structures[k].raw.id.clone(),
+                role: match l.role() {
                     Role::Structure => "structure".into(),
                     Role::Surroundings => "surroundings".into(),
                 },
-                inside: k.inside,
-                distance_m: (k.distance_m * 1000.0).round() / 1000.0,
+                inside: l.inside(),
+                distance_m: (f64::from(l.distance_m) * 1000.0).round() / 1000.0,
                 status: if rej.is_some() {
                     "rejected".into()
                 } else {
@@ -398,7 +402,7 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
                 },
                 reason: rej.unwrap_or("").into(),
                 vertical_velocity_mm_per_yr: vv.map(|v| (v * 1000.0).round() / 1000.0),
-                surroundings_of: rings,
+                surroundings_of: usize::from(l.rings),
             });
         }
     }

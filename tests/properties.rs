@@ -67,14 +67,12 @@ fn read_csv(bytes: &[u8], unit: Unit, delimiter: Option<u8>, keep: bool) -> Resu
     let wgs = Crs::wgs84();
     let utm = Crs::from_epsg(32650).expect("EPSG:32650 is defined");
     let to_a = Transformer::new(&wgs, &utm);
-    let to_w = Transformer::new(&wgs, &wgs);
     let reach = move |_x: f64, _y: f64| keep;
     read_points_from(
         std::io::Cursor::new(bytes.to_vec()),
         Path::new("points.csv"),
         &spec(unit, delimiter),
         &to_a,
-        &to_w,
         true,
         &reach,
         &mut Warnings::default(),

@@ -13,7 +13,7 @@
 //! Owns the R-tree over footprint envelopes expanded by the surroundings radius (so the ingest
 //! stage can keep only points within reach). It does not screen point quality (see `assess`).
 
-use geo::{Contains, Distance, Euclidean, MultiPolygon, Point};
+use geo::MultiPolygon;
 use rstar::{AABB, RTree, primitives::GeomWithData, primitives::Rectangle};
 
 /// Two distances closer than this are a tie, m.
@@ -49,6 +49,181 @@ pub struct PointLinks {
     pub links: Vec<Link>,
     /// True when the point was a tie between structures and excluded from all of them.
     pub tie: bool,
+}
+
+/// One point's association in 12 bytes, kept for every retained point: its owning structure, or
+/// — for a point only in surroundings rings — the nearest structure whose ring holds it, with the
+/// distance and the number of rings that hold it (what the points outputs report).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PointAssociation {
+    structure: u32,
+    /// Distance to that structure's footprint, m (0 inside).
+    pub distance_m: f32,
+    /// Number of surroundings rings holding the point (saturates at 65 535).
+    pub rings: u16,
+    flags: u8,
+}
+
+const OWNED: u8 = 1;
+const INSIDE: u8 = 2;
+const TIE: u8 = 4;
+
+impl PointAssociation {
+    /// The owning structure, or the nearest structure whose ring holds the point; None when the
+    /// point has no link.
+    pub fn structure(&self) -> Option<usize> {
+        (self.structure != u32::MAX).then_some(self.structure as usize)
+    }
+    /// Role for [`Self::structure`]: `Structure` when it owns the point.
+    pub fn role(&self) -> Role {
+        if self.flags & OWNED != 0 {
+            Role::Structure
+        } else {
+            Role::Surroundings
+        }
+    }
+    /// True when the point lies inside that structure's footprint.
+    pub fn inside(&self) -> bool {
+        self.flags & INSIDE != 0
+    }
+    /// True when the point was a tie and is excluded from every structure.
+    pub fn tie(&self) -> bool {
+        self.flags & TIE != 0
+    }
+}
+
+impl PointLinks {
+    /// The compact summary of these links (see [`PointAssociation`]).
+    pub fn summary(&self) -> PointAssociation {
+        let owner = self.links.iter().find(|k| k.role == Role::Structure);
+        let nearest = self
+            .links
+            .iter()
+            .filter(|k| k.role == Role::Surroundings)
+            .min_by(|a, b| {
+                a.distance_m
+                    .total_cmp(&b.distance_m)
+                    .then(a.structure.cmp(&b.structure))
+            });
+        let rings = self
+            .links
+            .iter()
+            .filter(|k| k.role == Role::Surroundings)
+            .count();
+        let chosen = owner.or(nearest);
+        let mut flags = 0;
+        if owner.is_some() {
+            flags |= OWNED;
+        }
+        if chosen.is_some_and(|k| k.inside) {
+            flags |= INSIDE;
+        }
+        if self.tie {
+            flags |= TIE;
+        }
+        PointAssociation {
+            structure: chosen.map_or(u32::MAX, |k| {
+                u32::try_from(k.structure).unwrap_or(u32::MAX - 1)
+            }),
+            distance_m: chosen.map_or(0.0, |k| k.distance_m as f32),
+            rings: u16::try_from(rings).unwrap_or(u16::MAX),
+            flags,
+        }
+    }
+}
+
+/// Every retained point's association (the compact per-point summary) and, per structure, the
+/// points it owns: `owned(s)` lists `(dataset, point)` pairs, stored as one array sorted by
+/// structure (4 bytes a point plus an offset per structure).
+#[derive(Debug, Clone, Default)]
+pub struct Associated {
+    /// `[dataset][point]` summaries.
+    pub points: Vec<Vec<PointAssociation>>,
+    /// The points each structure owns.
+    pub owners: Owners,
+}
+
+/// The points each structure owns, as one array grouped by structure.
+#[derive(Debug, Clone, Default)]
+pub struct Owners {
+    /// First global point index of each dataset (global = offset + index in the dataset).
+    dataset_offsets: Vec<usize>,
+    /// `owner_start[s]..owner_start[s+1]` indexes `owned_points` for structure s.
+    owner_start: Vec<usize>,
+    /// Global indices of owned points, grouped by structure, in point order within a group.
+    owned_points: Vec<u32>,
+}
+
+impl Associated {
+    /// Associate every point of every dataset (in parallel), by the rules in the module doc.
+    pub fn build(
+        index: &SpatialIndex,
+        n_structures: usize,
+        datasets: &[crate::ingest::Dataset],
+    ) -> Self {
+        use rayon::prelude::*;
+        let points: Vec<Vec<PointAssociation>> = datasets
+            .iter()
+            .map(|d| {
+                d.points
+                    .par_iter()
+                    .map(|p| index.associate(p.x, p.y).summary())
+                    .collect()
+            })
+            .collect();
+        Self::from_summaries(points, n_structures)
+    }
+
+    /// Group already computed summaries by owner.
+    pub fn from_summaries(points: Vec<Vec<PointAssociation>>, n_structures: usize) -> Self {
+        let mut dataset_offsets = Vec::with_capacity(points.len());
+        let mut total = 0usize;
+        for d in &points {
+            dataset_offsets.push(total);
+            total += d.len();
+        }
+        let mut counts = vec![0usize; n_structures + 1];
+        for a in points.iter().flatten() {
+            if let (Some(s), Role::Structure) = (a.structure(), a.role()) {
+                counts[s + 1] += 1;
+            }
+        }
+        for i in 1..counts.len() {
+            counts[i] += counts[i - 1];
+        }
+        let owner_start = counts;
+        let mut fill = owner_start.clone();
+        let mut owned_points = vec![0u32; *owner_start.last().unwrap_or(&0)];
+        for (d, ps) in points.iter().enumerate() {
+            for (i, a) in ps.iter().enumerate() {
+                if let (Some(s), Role::Structure) = (a.structure(), a.role()) {
+                    owned_points[fill[s]] = (dataset_offsets[d] + i) as u32;
+                    fill[s] += 1;
+                }
+            }
+        }
+        Associated {
+            points,
+            owners: Owners {
+                dataset_offsets,
+                owner_start,
+                owned_points,
+            },
+        }
+    }
+}
+
+impl Owners {
+    /// `(dataset, point)` pairs owned by structure `s`, in dataset then point order.
+    pub fn owned(&self, s: usize) -> impl Iterator<Item = (usize, usize)> + '_ {
+        let range = self.owner_start.get(s).copied().unwrap_or(0)
+            ..self.owner_start.get(s + 1).copied().unwrap_or(0);
+        self.owned_points[range].iter().map(move |&g| {
+            let g = g as usize;
+            let d = self.dataset_offsets.partition_point(|&o| o <= g) - 1;
+            (d, g - self.dataset_offsets[d])
+        })
+    }
 }
 
 /// The spatial index over structures.
@@ -96,18 +271,11 @@ impl SpatialIndex {
 
     /// Associate one point (analysis CRS) by the rules in the module doc.
     pub fn associate(&self, x: f64, y: f64) -> PointLinks {
-        let p = Point::new(x, y);
         let mut cands: Vec<(usize, f64, bool)> = self
             .tree
             .locate_in_envelope_intersecting(&AABB::from_point([x, y]))
             .map(|g| {
-                let f = &self.footprints[g.data];
-                let inside = f.contains(&p);
-                let d = if inside {
-                    0.0
-                } else {
-                    Euclidean.distance(f, &p)
-                };
+                let (inside, d) = inside_and_distance(&self.footprints[g.data], x, y);
                 (g.data, d, inside)
             })
             .filter(|(_, d, _)| *d <= self.surroundings_m.max(self.buffer_m))
@@ -159,10 +327,123 @@ impl SpatialIndex {
     }
 }
 
+/// Whether (x, y) lies in the interior of `mp`, and its Euclidean distance to `mp` (0 inside), in
+/// one pass over the edges: the crossing-number test (even–odd over every ring of a polygon, so
+/// holes count) and the squared distance to each segment. Same answers as `geo`'s `Contains`
+/// (interior only: a point on the boundary is not inside, distance 0) and `Euclidean` distance,
+/// checked against them in the tests; written out because association runs once per point and
+/// those general routines spend most of their time in `hypot` and ring classification.
+fn inside_and_distance(mp: &MultiPolygon<f64>, x: f64, y: f64) -> (bool, f64) {
+    let mut inside_any = false;
+    let mut best_sq = f64::INFINITY;
+    for poly in &mp.0 {
+        let mut crossings = false;
+        for ring in std::iter::once(poly.exterior()).chain(poly.interiors()) {
+            for seg in ring.0.windows(2) {
+                let (a, b) = (seg[0], seg[1]);
+                // Crossing number: a horizontal ray to +x.
+                if (a.y > y) != (b.y > y) {
+                    let xc = a.x + (y - a.y) * (b.x - a.x) / (b.y - a.y);
+                    if x < xc {
+                        crossings = !crossings;
+                    }
+                }
+                // Squared distance to the segment.
+                let (dx, dy) = (b.x - a.x, b.y - a.y);
+                let len_sq = dx * dx + dy * dy;
+                let u = if len_sq > 0.0 {
+                    (((x - a.x) * dx + (y - a.y) * dy) / len_sq).clamp(0.0, 1.0)
+                } else {
+                    0.0
+                };
+                let (ex, ey) = (a.x + u * dx - x, a.y + u * dy - y);
+                best_sq = best_sq.min(ex * ex + ey * ey);
+            }
+        }
+        inside_any |= crossings;
+    }
+    if best_sq == 0.0 {
+        // On the boundary: not in the interior.
+        return (false, 0.0);
+    }
+    if inside_any {
+        (true, 0.0)
+    } else {
+        (false, best_sq.sqrt())
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
-    use geo::{LineString, Polygon};
+    use geo::{Contains, Distance, Euclidean, LineString, Point, Polygon};
+
+    /// The one-pass kernel against `geo` (a general-purpose reference library): a rotated
+    /// rectangle, an L shape with a hole, and a MultiPolygon, on a grid of points that includes
+    /// vertices and edge points.
+    #[test]
+    fn inside_and_distance_agree_with_geo() {
+        let rot = |x: f64, y: f64| {
+            let (s, c) = 0.5f64.sin_cos();
+            (x * c - y * s + 3.0, x * s + y * c - 2.0)
+        };
+        let ring = |pts: &[(f64, f64)]| LineString::from(pts.to_vec());
+        let rotated = MultiPolygon::new(vec![Polygon::new(
+            ring(&[
+                rot(0.0, 0.0),
+                rot(12.0, 0.0),
+                rot(12.0, 7.0),
+                rot(0.0, 7.0),
+                rot(0.0, 0.0),
+            ]),
+            vec![],
+        )]);
+        let l_with_hole = MultiPolygon::new(vec![Polygon::new(
+            ring(&[
+                (0.0, 0.0),
+                (10.0, 0.0),
+                (10.0, 4.0),
+                (4.0, 4.0),
+                (4.0, 10.0),
+                (0.0, 10.0),
+                (0.0, 0.0),
+            ]),
+            vec![ring(&[
+                (1.0, 1.0),
+                (3.0, 1.0),
+                (3.0, 3.0),
+                (1.0, 3.0),
+                (1.0, 1.0),
+            ])],
+        )]);
+        let multi = MultiPolygon::new(vec![
+            Polygon::new(
+                ring(&[(0.0, 0.0), (2.0, 0.0), (2.0, 2.0), (0.0, 0.0)]),
+                vec![],
+            ),
+            Polygon::new(
+                ring(&[(5.0, 5.0), (8.0, 5.0), (8.0, 9.0), (5.0, 9.0), (5.0, 5.0)]),
+                vec![],
+            ),
+        ]);
+        for mp in [rotated, l_with_hole, multi] {
+            for i in -8..=56 {
+                for j in -8..=56 {
+                    let (x, y) = (i as f64 * 0.25, j as f64 * 0.25);
+                    let p = Point::new(x, y);
+                    let want_inside = mp.contains(&p);
+                    let want_d = if want_inside {
+                        0.0
+                    } else {
+                        Euclidean.distance(&mp, &p)
+                    };
+                    let (inside, d) = inside_and_distance(&mp, x, y);
+                    assert_eq!(inside, want_inside, "({x}, {y})");
+                    assert!((d - want_d).abs() < 1e-9, "({x}, {y}): {d} vs {want_d}");
+                }
+            }
+        }
+    }
 
     fn rect(x0: f64, y0: f64, x1: f64, y1: f64) -> MultiPolygon<f64> {
         MultiPolygon::new(vec![Polygon::new(

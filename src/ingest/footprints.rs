@@ -223,45 +223,10 @@ pub fn parse_footprints(
     warnings: &mut Warnings,
 ) -> Result<Vec<RawStructure>, InputError> {
     let text = text.strip_prefix('\u{feff}').unwrap_or(text);
-    let root: Value = serde_json::from_str(text).map_err(|e| {
-        InputError::new(
-            path,
-            format!("line {}, column {}", e.line(), e.column()),
-            format!("not valid JSON: {e}"),
-            "the footprints file must be GeoJSON (RFC 7946); check it with a GIS or a JSON validator",
-        )
-    })?;
-    if root.get("type").and_then(Value::as_str) != Some("FeatureCollection") {
-        return Err(InputError::new(
-            path,
-            "top level",
-            "not a GeoJSON FeatureCollection",
-            "the file must be {\"type\": \"FeatureCollection\", \"features\": [...]}",
-        ));
-    }
-    let features = root
-        .get("features")
-        .and_then(Value::as_array)
-        .ok_or_else(|| {
-            InputError::new(
-                path,
-                "top level",
-                "the FeatureCollection has no \"features\" array",
-                "add \"features\": [...]",
-            )
-        })?;
-    if features.is_empty() {
-        return Err(InputError::new(
-            path,
-            "top level",
-            "the FeatureCollection has no features",
-            "a portfolio needs at least one structure",
-        ));
-    }
-    let mut out: Vec<RawStructure> = Vec::with_capacity(features.len());
+    let mut out: Vec<RawStructure> = Vec::new();
     let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
     let mut warned_3d = false;
-    for (i, f) in features.iter().enumerate() {
+    let mut handle = |i: usize, f: &Value| -> Result<(), InputError> {
         let props = f.get("properties").and_then(Value::as_object);
         let id = props
             .and_then(|p| p.get(id_property))
@@ -477,8 +442,197 @@ pub fn parse_footprints(
             footprint,
             fallbacks,
         });
+        Ok(())
+    };
+    let mut stream = FeatureStream {
+        handle: &mut handle,
+        kind: None,
+        has_features: false,
+        count: 0,
+        error: None,
+    };
+    let parsed = {
+        let mut de = serde_json::Deserializer::from_str(text);
+        serde::de::DeserializeSeed::deserialize(&mut stream, &mut de).and_then(|()| de.end())
+    };
+    if let Some(e) = stream.error.take() {
+        return Err(e);
+    }
+    if stream
+        .kind
+        .as_deref()
+        .is_some_and(|k| k != "FeatureCollection")
+    {
+        return Err(not_a_collection(path));
+    }
+    if let Err(e) = parsed {
+        return Err(InputError::new(
+            path,
+            format!("line {}, column {}", e.line(), e.column()),
+            format!("not valid JSON: {e}"),
+            "the footprints file must be GeoJSON (RFC 7946); check it with a GIS or a JSON validator",
+        ));
+    }
+    if stream.kind.as_deref() != Some("FeatureCollection") {
+        return Err(not_a_collection(path));
+    }
+    if !stream.has_features {
+        return Err(InputError::new(
+            path,
+            "top level",
+            "the FeatureCollection has no \"features\" array",
+            "add \"features\": [...]",
+        ));
+    }
+    if stream.count == 0 {
+        return Err(InputError::new(
+            path,
+            "top level",
+            "the FeatureCollection has no features",
+            "a portfolio needs at least one structure",
+        ));
     }
     Ok(out)
+}
+
+fn not_a_collection(path: &Path) -> InputError {
+    InputError::new(
+        path,
+        "top level",
+        "not a GeoJSON FeatureCollection",
+        "the file must be {\"type\": \"FeatureCollection\", \"features\": [...]}",
+    )
+}
+
+/// Streams a FeatureCollection: each feature is parsed into a `Value`, handed to `handle` and
+/// dropped, so memory holds one feature at a time (a whole-document `Value` of a large footprints
+/// file costs tens of bytes per coordinate). The first error of `handle` stops the parse and is
+/// kept in `error`. `type` is checked as soon as it is seen (before the features when it comes
+/// first, as in nearly every file) and again at the end.
+struct FeatureStream<'h> {
+    handle: &'h mut dyn FnMut(usize, &Value) -> Result<(), InputError>,
+    kind: Option<String>,
+    has_features: bool,
+    count: usize,
+    error: Option<InputError>,
+}
+
+impl<'de> serde::de::DeserializeSeed<'de> for &mut FeatureStream<'_> {
+    type Value = ();
+    fn deserialize<D: serde::Deserializer<'de>>(self, d: D) -> Result<(), D::Error> {
+        d.deserialize_any(self)
+    }
+}
+
+impl<'de> serde::de::Visitor<'de> for &mut FeatureStream<'_> {
+    type Value = ();
+    fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+        f.write_str("a GeoJSON FeatureCollection object")
+    }
+    fn visit_map<A: serde::de::MapAccess<'de>>(self, mut map: A) -> Result<(), A::Error> {
+        use serde::de::Error;
+        while let Some(key) = map.next_key::<String>()? {
+            match key.as_str() {
+                "type" => {
+                    let v: Value = map.next_value()?;
+                    self.kind = Some(v.as_str().unwrap_or("").to_string());
+                }
+                "features" => {
+                    if self
+                        .kind
+                        .as_deref()
+                        .is_some_and(|k| k != "FeatureCollection")
+                    {
+                        return Err(A::Error::custom("not a FeatureCollection"));
+                    }
+                    map.next_value_seed(FeatureList(&mut *self))?;
+                }
+                _ => {
+                    map.next_value::<serde::de::IgnoredAny>()?;
+                }
+            }
+        }
+        Ok(())
+    }
+    // Anything but an object: not a FeatureCollection (reported after the parse).
+    fn visit_seq<A: serde::de::SeqAccess<'de>>(self, mut seq: A) -> Result<(), A::Error> {
+        while seq.next_element::<serde::de::IgnoredAny>()?.is_some() {}
+        Ok(())
+    }
+    fn visit_str<E: serde::de::Error>(self, _: &str) -> Result<(), E> {
+        Ok(())
+    }
+    fn visit_bool<E: serde::de::Error>(self, _: bool) -> Result<(), E> {
+        Ok(())
+    }
+    fn visit_i64<E: serde::de::Error>(self, _: i64) -> Result<(), E> {
+        Ok(())
+    }
+    fn visit_u64<E: serde::de::Error>(self, _: u64) -> Result<(), E> {
+        Ok(())
+    }
+    fn visit_f64<E: serde::de::Error>(self, _: f64) -> Result<(), E> {
+        Ok(())
+    }
+    fn visit_unit<E: serde::de::Error>(self) -> Result<(), E> {
+        Ok(())
+    }
+}
+
+/// The `features` member: an array streamed element by element (anything else is ignored, so
+/// `has_features` stays false and the caller reports the missing array).
+struct FeatureList<'s, 'h>(&'s mut FeatureStream<'h>);
+
+impl<'de> serde::de::DeserializeSeed<'de> for FeatureList<'_, '_> {
+    type Value = ();
+    fn deserialize<D: serde::Deserializer<'de>>(self, d: D) -> Result<(), D::Error> {
+        d.deserialize_any(self)
+    }
+}
+
+impl<'de> serde::de::Visitor<'de> for FeatureList<'_, '_> {
+    type Value = ();
+    fn expecting(&self, f: &mut std::fmt::Formatter) -> std::fmt::Result {
+        f.write_str("an array of features")
+    }
+    fn visit_seq<A: serde::de::SeqAccess<'de>>(self, mut seq: A) -> Result<(), A::Error> {
+        use serde::de::Error;
+        self.0.has_features = true;
+        while let Some(f) = seq.next_element::<Value>()? {
+            let i = self.0.count;
+            if let Err(e) = (self.0.handle)(i, &f) {
+                self.0.error = Some(e);
+                return Err(A::Error::custom("feature error"));
+            }
+            self.0.count += 1;
+        }
+        Ok(())
+    }
+    fn visit_map<A: serde::de::MapAccess<'de>>(self, mut map: A) -> Result<(), A::Error> {
+        while map
+            .next_entry::<serde::de::IgnoredAny, serde::de::IgnoredAny>()?
+            .is_some()
+        {}
+        Ok(())
+    }
+    fn visit_str<E: serde::de::Error>(self, _: &str) -> Result<(), E> {
+        Ok(())
+    }
+    fn visit_bool<E: serde::de::Error>(self, _: bool) -> Result<(), E> {
+        Ok(())
+    }
+    fn visit_i64<E: serde::de::Error>(self, _: i64) -> Result<(), E> {
+        Ok(())
+    }
+    fn visit_u64<E: serde::de::Error>(self, _: u64) -> Result<(), E> {
+        Ok(())
+    }
+    fn visit_f64<E: serde::de::Error>(self, _: f64) -> Result<(), E> {
+        Ok(())
+    }
+    fn visit_unit<E: serde::de::Error>(self) -> Result<(), E> {
+        Ok(())
+    }
 }
 
 #[cfg(test)]

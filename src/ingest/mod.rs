@@ -3,10 +3,13 @@
 //! Owns the order of reading (footprints first, so the points reader can keep only points within
 //! reach of a structure), the choice of the analysis CRS (the portfolio's, or the UTM zone of the
 //! structures' centroid), reprojection of footprints, and the per-structure local frame.
-//! Submodules: [`footprints`] (GeoJSON), [`points`] (CSV).
+//! Submodules: [`footprints`] (GeoJSON), [`points`] (CSV reader), [`store`] (the compact
+//! in-memory point store), [`decimal`] (fast exact number parsing).
 
+pub mod decimal;
 pub mod footprints;
 pub mod points;
+pub mod store;
 
 use geo::{Centroid, MapCoords, MultiPolygon};
 
@@ -15,7 +18,7 @@ use crate::coords::{Crs, LocalFrame, Transformer, utm_epsg_for};
 use crate::error::{InputError, Warnings};
 use crate::portfolio::Portfolio;
 
-pub use points::{Dataset, Point};
+pub use store::{Dataset, Point, PointRef, SeriesRef};
 
 /// One structure ready for analysis.
 #[derive(Debug, Clone)]
@@ -175,17 +178,14 @@ pub fn read_datasets(
     index: &SpatialIndex,
     warnings: &mut Warnings,
 ) -> Result<Vec<Dataset>, InputError> {
-    let wgs = Crs::wgs84();
     let mut out = Vec::with_capacity(pf.datasets.len());
     for (i, spec) in pf.datasets.iter().enumerate() {
         let dcrs = crs_or_input_error(&spec.crs, &pf.file, &format!("datasets[{i}].crs"))?;
         let to_a = Transformer::new(&dcrs, analysis);
-        let to_w = Transformer::new(&dcrs, &wgs);
         let reach = |x: f64, y: f64| index.within_reach(x, y);
         out.push(points::read_points(
             spec,
             &to_a,
-            &to_w,
             dcrs.is_geographic(),
             &reach,
             warnings,

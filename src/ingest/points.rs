@@ -15,7 +15,6 @@
 //!
 //! It does not associate points with structures or screen them (see `association`).
 
-use std::collections::HashMap;
 use std::hash::{Hash, Hasher};
 use std::io::Read;
 use std::path::Path;
@@ -30,51 +29,8 @@ use crate::portfolio::{DatasetSpec, LosSign};
 /// Largest plausible |LOS displacement| relative to the first epoch, mm. Larger values are errors.
 pub const MAX_ABS_DISPLACEMENT_MM: f64 = 10_000.0;
 
-/// One retained measurement point.
-#[derive(Debug, Clone)]
-pub struct Point {
-    /// Point id as written in the file.
-    pub id: String,
-    /// 1-based line number in the file (for messages and the points output).
-    pub line: u64,
-    /// Easting in the analysis CRS, m.
-    pub x: f64,
-    /// Northing in the analysis CRS, m.
-    pub y: f64,
-    /// Longitude, degrees (WGS84), for GeoJSON output.
-    pub lon: f64,
-    /// Latitude, degrees (WGS84), for GeoJSON output.
-    pub lat: f64,
-    /// Temporal coherence 0–1, when the file has a coherence column.
-    pub coherence: Option<f32>,
-    /// Incidence angle, degrees (per point or the dataset value).
-    pub incidence_deg: f64,
-    /// Heading, degrees clockwise from north (per point or the dataset value).
-    pub heading_deg: f64,
-    /// Height, m, when mapped.
-    pub height_m: Option<f32>,
-    /// LOS displacement per epoch, mm, positive towards the satellite; NaN = missing epoch.
-    pub values_mm: Box<[f32]>,
-}
-
-/// One points file after reading.
-#[derive(Debug, Clone)]
-pub struct Dataset {
-    /// Dataset name from the portfolio.
-    pub name: String,
-    /// Acquisition dates, strictly increasing.
-    pub epochs: Vec<NaiveDate>,
-    /// Retained points (within reach of a structure).
-    pub points: Vec<Point>,
-    /// Data rows read.
-    pub rows_read: u64,
-    /// Rows not within reach of any structure (not kept).
-    pub rows_out_of_reach: u64,
-    /// True when the file has a coherence column (coherence screening applies).
-    pub has_coherence: bool,
-    /// Header columns that were neither mapped nor epochs (ignored).
-    pub ignored_columns: Vec<String>,
-}
+pub use super::store::{Dataset, Point, PointRef, SeriesRef};
+use super::store::{PerPoint, RowMeta, StoreBuilder};
 
 fn detect_delimiter(header: &[u8]) -> u8 {
     let count = |d: u8| header.iter().filter(|&&b| b == d).count();
@@ -91,6 +47,9 @@ fn detect_delimiter(header: &[u8]) -> u8 {
 /// Parse a number cell. Empty, `NaN`, `NA` and `null` are missing (None). Errors on anything else
 /// that is not a finite number.
 fn parse_cell(raw: &[u8]) -> Result<Option<f64>, String> {
+    if let Some(v) = super::decimal::parse_plain(raw) {
+        return Ok(Some(v));
+    }
     let t = trim(raw);
     if t.is_empty()
         || t.eq_ignore_ascii_case(b"nan")
@@ -129,12 +88,11 @@ fn id_hash(id: &[u8]) -> u64 {
 
 /// Read a points file.
 ///
-/// `to_analysis` maps the file's coordinates to the analysis CRS, `to_wgs84` to lon/lat;
+/// `to_analysis` maps the file's coordinates to the analysis CRS;
 /// `within_reach(x, y)` (analysis CRS) decides whether a row is kept.
 pub fn read_points(
     spec: &DatasetSpec,
     to_analysis: &Transformer,
-    to_wgs84: &Transformer,
     geographic: bool,
     within_reach: &(dyn Fn(f64, f64) -> bool + Sync),
     warnings: &mut Warnings,
@@ -153,7 +111,6 @@ pub fn read_points(
         file,
         spec,
         to_analysis,
-        to_wgs84,
         geographic,
         within_reach,
         warnings,
@@ -161,7 +118,35 @@ pub fn read_points(
 }
 
 /// Bytes read per block of the points body (each block is parsed in parallel).
-pub const BLOCK_BYTES: usize = 8 << 20;
+pub const BLOCK_BYTES: usize = 4 << 20;
+
+/// Read the next block of whole lines: `carry` (the partial line left by the previous block) and
+/// then at least [`BLOCK_BYTES`] more, cut after the last line end; the part after it becomes the
+/// new `carry`. At the end of the file the block is everything left and `eof` is set. `buf` is a
+/// recycled buffer (its contents are discarded).
+fn read_block<R: std::io::Read>(
+    reader: &mut R,
+    carry: &mut Vec<u8>,
+    eof: &mut bool,
+    mut buf: Vec<u8>,
+) -> std::io::Result<Vec<u8>> {
+    buf.clear();
+    buf.append(carry);
+    loop {
+        let want = (BLOCK_BYTES + buf.len()).saturating_sub(buf.len()) as u64;
+        let n = reader.by_ref().take(want).read_to_end(&mut buf)?;
+        if n == 0 {
+            *eof = true;
+            return Ok(buf);
+        }
+        if let Some(p) = memchr::memrchr(b'\n', &buf) {
+            carry.extend_from_slice(&buf[p + 1..]);
+            buf.truncate(p + 1);
+            return Ok(buf);
+        }
+        // One line longer than the block: read more.
+    }
+}
 
 /// `line` without its trailing `\n` / `\r\n`.
 fn strip_eol(line: &[u8]) -> &[u8] {
@@ -169,10 +154,10 @@ fn strip_eol(line: &[u8]) -> &[u8] {
     l.strip_suffix(b"\r").unwrap_or(l)
 }
 
-/// Split `region` (whole lines) into pieces for parallel parsing: `(start, end, first line)`.
-/// The first line of each piece is found by counting line ends (memchr), so every piece knows its
-/// absolute line numbers before it is parsed.
-fn split_pieces(region: &[u8], first_line: u64) -> Vec<(usize, usize, u64)> {
+/// Split `region` (whole lines) into pieces for parallel parsing: `(start, end, first line)`, and
+/// the line number after the region. The first line of each piece is found by counting line ends
+/// (memchr), so every piece knows its absolute line numbers before it is parsed.
+fn split_pieces(region: &[u8], first_line: u64) -> (Vec<(usize, usize, u64)>, u64) {
     let n_pieces = (rayon::current_num_threads() * 4).max(1);
     let target = (region.len() / n_pieces).max(64 << 10);
     let mut out = Vec::with_capacity(n_pieces + 1);
@@ -192,33 +177,74 @@ fn split_pieces(region: &[u8], first_line: u64) -> Vec<(usize, usize, u64)> {
         line += memchr::memchr_iter(b'\n', &region[lo..hi]).count() as u64;
         lo = hi;
     }
-    out
+    (out, line)
 }
 
-/// Record `(hash, line)` of a point id; a repeated id is an error naming both lines.
-/// `id_text` recovers the id as written (only called for the error).
-fn check_duplicate(
-    seen: &mut HashMap<u64, u64>,
-    h: u64,
-    line: u64,
-    file: &Path,
-    id_text: impl FnOnce() -> String,
-) -> Result<(), InputError> {
-    if let Some(first) = seen.insert(h, line) {
-        return Err(InputError::new(
-            file,
-            format!("line {line}"),
-            format!("duplicate point id `{}` (first on line {first})", id_text()),
-            "point ids must be unique within a file",
-        ));
+/// The earliest repeated point id among `ids` (`(id hash, line)` of rows, in any order):
+/// `(line of the first occurrence, line of the repeat)`, the repeat being the earliest second
+/// occurrence of any id. Sorts `ids`.
+///
+/// Choice: ids are checked once after reading (a sorted list of 16 bytes per row) rather than in a
+/// hash table while reading (about twice the memory); a reading error further down the file is
+/// compared by line with the earliest repeat, so the reported error is the one a row-by-row reading
+/// meets first.
+fn first_duplicate(ids: &mut [(u64, u64)]) -> Option<(u64, u64)> {
+    ids.par_sort_unstable();
+    ids.windows(2)
+        .filter(|w| w[0].0 == w[1].0)
+        .map(|w| (w[0].1, w[1].1))
+        .min_by_key(|&(_, repeat)| repeat)
+}
+
+/// The error for a repeated id; the id text is taken from the retained points when the row was
+/// kept (points are in line order), otherwise the message names the lines only.
+fn duplicate_error(file: &Path, store: &StoreBuilder, first: u64, repeat: u64) -> InputError {
+    let text = [repeat, first].iter().find_map(|l| {
+        let i = store
+            .points
+            .binary_search_by_key(l, |p| p.line_u64())
+            .ok()?;
+        let start = store.points[i].id_at() as usize;
+        let end = store
+            .points
+            .get(i + 1)
+            .map_or(store.ids.len(), |n| n.id_at() as usize);
+        Some(store.ids[start..end].to_string())
+    });
+    let message = match text {
+        Some(t) => format!("duplicate point id `{t}` (first on line {first})"),
+        None => format!("duplicate point id: the id on line {first} appears again"),
+    };
+    InputError::new(
+        file,
+        format!("line {repeat}"),
+        message,
+        "point ids must be unique within a file",
+    )
+}
+
+/// `err` unless a repeated id comes first (at or before its line), which is then the error.
+fn first_error(file: &Path, total: &mut Acc, err: InputError) -> InputError {
+    let err_line = err
+        .location
+        .strip_prefix("line ")
+        .and_then(|r| r.split(|c: char| !c.is_ascii_digit()).next())
+        .and_then(|n| n.parse::<u64>().ok())
+        .unwrap_or(u64::MAX);
+    match first_duplicate(&mut total.ids) {
+        Some((first, repeat)) if repeat <= err_line => {
+            duplicate_error(file, &total.store, first, repeat)
+        }
+        _ => err,
     }
-    Ok(())
 }
 
 /// What a piece (or the slow path) accumulated.
 #[derive(Default)]
 struct Acc {
-    points: Vec<Point>,
+    store: StoreBuilder,
+    /// Values of the row being parsed, mm (reused).
+    scratch: Vec<f64>,
     /// `(id hash, line)` of every data row whose id was read, in file order.
     ids: Vec<(u64, u64)>,
     rows: u64,
@@ -229,13 +255,17 @@ struct Acc {
 }
 
 impl Acc {
-    fn absorb(&mut self, o: Acc) {
-        self.points.extend(o.points);
+    fn absorb(&mut self, o: Acc, file: &Path) -> Result<(), InputError> {
+        self.store
+            .append(o.store)
+            .map_err(|e| InputError::new(file, "", e.0, "split the points file"))?;
+        self.ids.extend(o.ids);
         self.rows += o.rows;
         self.out_of_reach += o.out_of_reach;
         self.swapped_in_reach += o.swapped_in_reach;
         self.max_abs_mm = self.max_abs_mm.max(o.max_abs_mm);
         self.n_values += o.n_values;
+        Ok(())
     }
 }
 
@@ -282,6 +312,17 @@ impl<R: std::io::Read> std::io::Read for CountingReader<R> {
     }
 }
 
+/// What the fast path learnt of a row's epoch values (see `RowParser::fast_fields`).
+#[derive(Debug, Clone, Copy)]
+struct FastRow {
+    /// Largest number of decimals written (before the unit conversion).
+    decimals: u32,
+    /// Largest |value|, mm.
+    max_abs_mm: f64,
+    /// Values present.
+    n_values: u64,
+}
+
 /// How a piece ended.
 enum PieceEnd {
     /// Every line parsed.
@@ -313,11 +354,13 @@ struct RowParser<'a> {
     head_col: Option<usize>,
     h_col: Option<usize>,
     epoch_cols: Vec<usize>,
-    n_epochs: usize,
     factor: f64,
+    /// Per header column: true for an epoch column (parsed by the fast path).
+    is_epoch: Vec<bool>,
+    /// Decimals lost by the unit conversion to mm (0 for mm, 3 for m).
+    decimal_shift: u32,
     geographic: bool,
     to_analysis: &'a Transformer,
-    to_wgs84: &'a Transformer,
     within_reach: &'a (dyn Fn(f64, f64) -> bool + Sync),
 }
 
@@ -342,14 +385,17 @@ impl RowParser<'_> {
                     },
                 };
             }
-            ranges.clear();
-            let mut s = 0usize;
-            for p in memchr::memchr_iter(delim, row) {
-                ranges.push(s..p);
-                s = p + 1;
+            let pre = self.fast_fields(row, &mut ranges, &mut acc.scratch);
+            if pre.is_none() {
+                ranges.clear();
+                let mut s = 0usize;
+                for p in memchr::memchr_iter(delim, row) {
+                    ranges.push(s..p);
+                    s = p + 1;
+                }
+                ranges.push(s..row.len());
             }
-            ranges.push(s..row.len());
-            if let Err(e) = self.row(row, &ranges, line, &mut acc) {
+            if let Err(e) = self.row(row, &ranges, line, &mut acc, pre) {
                 return Piece {
                     acc,
                     end: PieceEnd::Error(e),
@@ -366,13 +412,110 @@ impl RowParser<'_> {
 }
 
 impl RowParser<'_> {
+    /// The fast path of a row: split it into fields and parse every epoch field in the same scan
+    /// (plain decimals only, see [`super::decimal`]; an empty field is a missing epoch). `ranges`
+    /// ends with one entry per header column (only the non-epoch entries are filled: the general
+    /// path does not read the epoch ones when the values are pre-parsed); `values` receives the
+    /// epoch values in mm (unit and sign applied, NaN = missing). Returns the largest number of
+    /// decimals written, the largest |value| (mm) and the count of values; `None` for anything
+    /// else — a field count other than the header's, whitespace, `NaN`, exponents, more than 15
+    /// digits, a value beyond the plausibility limit — and the row then goes through the general
+    /// path, which gives the same values or the proper error in the proper order.
+    fn fast_fields(
+        &self,
+        row: &[u8],
+        ranges: &mut Vec<std::ops::Range<usize>>,
+        values: &mut Vec<f64>,
+    ) -> Option<FastRow> {
+        // Values are formed as m · 10⁻ᵏ · factor with a multiplication (within an ulp or two of
+        // the correctly rounded value): only their 16-bit codes are kept (see `store`), and for a
+        // decimal-exact row the code round(v · 10ᵈ) is the exact integer either way.
+        const INV_POW10: [f64; 16] = [
+            1e0, 1e-1, 1e-2, 1e-3, 1e-4, 1e-5, 1e-6, 1e-7, 1e-8, 1e-9, 1e-10, 1e-11, 1e-12, 1e-13,
+            1e-14, 1e-15,
+        ];
+        let delim = self.delimiter;
+        if ranges.len() != self.n_cols {
+            ranges.clear();
+            ranges.resize(self.n_cols, 0..0);
+        }
+        values.clear();
+        let mut out = FastRow {
+            decimals: 0,
+            max_abs_mm: 0.0,
+            n_values: 0,
+        };
+        let mut pos = 0usize;
+        let n = row.len();
+        for (col, &is_epoch) in self.is_epoch.iter().enumerate() {
+            if col > 0 {
+                // The previous field ended at a delimiter.
+                if pos >= n || row[pos] != delim {
+                    return None;
+                }
+                pos += 1;
+            }
+            let start = pos;
+            if !is_epoch {
+                pos = memchr::memchr(delim, &row[pos..]).map_or(n, |p| pos + p);
+                ranges[col] = start..pos;
+                continue;
+            }
+            if pos == n || row[pos] == delim {
+                values.push(f64::NAN); // empty field: a missing epoch
+                continue;
+            }
+            let neg = row[pos] == b'-';
+            if neg || row[pos] == b'+' {
+                pos += 1;
+            }
+            let int_start = pos;
+            let mut m: i64 = 0;
+            while pos < n && row[pos].is_ascii_digit() {
+                m = m.wrapping_mul(10).wrapping_add(i64::from(row[pos] - b'0'));
+                pos += 1;
+            }
+            let mut digits = pos - int_start;
+            let mut k = 0usize;
+            if pos < n && row[pos] == b'.' {
+                pos += 1;
+                let frac_start = pos;
+                while pos < n && row[pos].is_ascii_digit() {
+                    m = m.wrapping_mul(10).wrapping_add(i64::from(row[pos] - b'0'));
+                    pos += 1;
+                }
+                k = pos - frac_start;
+                digits += k;
+                // Decimals written, trailing zeros not counted.
+                let mut written = k;
+                while written > 0 && row[frac_start + written - 1] == b'0' {
+                    written -= 1;
+                }
+                out.decimals = out.decimals.max(written as u32);
+            }
+            if digits == 0 || digits > 15 || (pos < n && row[pos] != delim) {
+                return None;
+            }
+            let v = (if neg { -m } else { m }) as f64 * (INV_POW10[k] * self.factor);
+            let a = v.abs();
+            if a > MAX_ABS_DISPLACEMENT_MM {
+                return None;
+            }
+            if a > out.max_abs_mm {
+                out.max_abs_mm = a;
+            }
+            out.n_values += 1;
+            values.push(v);
+        }
+        (pos == n).then_some(out)
+    }
+
     /// The rest of the file from `first_line` on, through the general CSV reader.
     fn read_slow<R: std::io::Read>(
         &self,
         reader: R,
         first_line: u64,
         total: &mut Acc,
-        seen: &mut HashMap<u64, u64>,
     ) -> Result<(), InputError> {
         // The csv crate does not count skipped empty lines, so line ends are counted on the way in.
         let ends = std::rc::Rc::new(std::cell::RefCell::new(LineEnds::default()));
@@ -432,13 +575,8 @@ impl RowParser<'_> {
             ranges.clear();
             ranges.extend((0..rec.len()).filter_map(|i| rec.range(i)));
             let mut acc = Acc::default();
-            let r = self.row(rec.as_slice(), &ranges, line, &mut acc);
-            for (h, l) in &acc.ids {
-                check_duplicate(seen, *h, *l, self.file, || {
-                    String::from_utf8_lossy(trim(&rec[self.id_col])).into_owned()
-                })?;
-            }
-            total.absorb(acc);
+            let r = self.row(rec.as_slice(), &ranges, line, &mut acc, None);
+            total.absorb(acc, self.file)?;
             r?;
         }
     }
@@ -447,12 +585,16 @@ impl RowParser<'_> {
     /// which error a bad row reports first): field count, id, duplicate id (by the caller, from
     /// `acc.ids`), x, y, geographic plausibility, coherence, incidence, heading, height, epochs in
     /// column order, the coordinate transform, then the reach test.
+    ///
+    /// `pre`: the epoch values were already parsed and checked by [`Self::fast_fields`] into
+    /// `acc.scratch`.
     fn row(
         &self,
         buf: &[u8],
         ranges: &[std::ops::Range<usize>],
         line: u64,
         acc: &mut Acc,
+        pre: Option<FastRow>,
     ) -> Result<(), InputError> {
         let file = self.file;
         let field = |i: usize| &buf[ranges[i].clone()];
@@ -487,7 +629,7 @@ impl RowParser<'_> {
             ));
         }
         acc.ids.push((id_hash(id_raw), line));
-        self.row_values(buf, ranges, line, id_raw, acc)
+        self.row_values(buf, ranges, line, id_raw, acc, pre)
     }
 
     /// The numeric part of [`Self::row`]: values, transform, reach; pushes a kept point.
@@ -498,6 +640,7 @@ impl RowParser<'_> {
         line: u64,
         id_raw: &[u8],
         acc: &mut Acc,
+        pre: Option<FastRow>,
     ) -> Result<(), InputError> {
         let file = self.file;
         let headers = self.headers;
@@ -587,12 +730,36 @@ impl RowParser<'_> {
             Some(col) => num(col, "height")?.map(|v| v as f32),
             None => None,
         };
-        let mut values = vec![0f32; self.n_epochs].into_boxed_slice();
+        let mut values = std::mem::take(&mut acc.scratch);
         let mut max_abs_mm = acc.max_abs_mm;
+        let mut row_max_abs_mm = 0.0f64;
         let mut n_values = 0u64;
-        for (slot, col) in values.iter_mut().zip(&self.epoch_cols) {
-            let col = *col;
-            *slot = match num(col, "a displacement")? {
+        // Decimals written (after the unit conversion), for an exact store; None once unknown.
+        let mut decimals: Option<u32> = Some(0);
+        if let Some(fr) = pre {
+            // Parsed and checked by the fast path.
+            decimals = Some(fr.decimals.saturating_sub(self.decimal_shift));
+            row_max_abs_mm = fr.max_abs_mm;
+            n_values = fr.n_values;
+        } else {
+            values.clear();
+        }
+        let slow_cols: &[usize] = if pre.is_some() { &[] } else { &self.epoch_cols };
+        for &col in slow_cols {
+            let parsed = match super::decimal::parse_plain_decimals(field(col)) {
+                Some((v, k)) => {
+                    decimals = decimals.map(|d| d.max(k.saturating_sub(self.decimal_shift)));
+                    Some(v)
+                }
+                None => {
+                    let v = num(col, "a displacement")?;
+                    if v.is_some() {
+                        decimals = None;
+                    }
+                    v
+                }
+            };
+            let mm = match parsed {
                 Some(v) => {
                     let mm = v * self.factor;
                     if mm.abs() > MAX_ABS_DISPLACEMENT_MM {
@@ -610,13 +777,15 @@ impl RowParser<'_> {
                             "check the dataset's unit (\"mm\" or \"m\") and the column mapping",
                         ));
                     }
-                    max_abs_mm = max_abs_mm.max(mm.abs());
+                    row_max_abs_mm = row_max_abs_mm.max(mm.abs());
                     n_values += 1;
-                    mm as f32
+                    mm
                 }
-                None => f32::NAN,
+                None => f64::NAN,
             };
+            values.push(mm);
         }
+        max_abs_mm = max_abs_mm.max(row_max_abs_mm);
         acc.max_abs_mm = max_abs_mm;
         acc.n_values += n_values;
         let (ax, ay) = self.to_analysis.apply(x, y).map_err(|e| {
@@ -636,37 +805,26 @@ impl RowParser<'_> {
                     }
                 }
             }
+            acc.scratch = values;
             return Ok(());
         }
-        let (lon, lat) = self.to_wgs84.apply(x, y).unwrap_or((f64::NAN, f64::NAN));
-        acc.points.push(Point {
-            id: String::from_utf8_lossy(id_raw).into_owned(),
-            line,
-            x: ax,
-            y: ay,
-            lon,
-            lat,
-            coherence,
-            incidence_deg,
-            heading_deg,
-            height_m,
-            values_mm: values,
-        });
-        Ok(())
-    }
-}
-
-impl RowParser<'_> {
-    /// The id written on `line` of a piece (`bytes` starting at `first_line`), for messages.
-    fn id_on_line(&self, bytes: &[u8], first_line: u64, line: u64) -> String {
-        let skip = line.saturating_sub(first_line) as usize;
-        let row = bytes.split(|b| *b == b'\n').nth(skip).unwrap_or_default();
-        let row = row.strip_suffix(b"\r").unwrap_or(row);
-        let id = row
-            .split(|b| *b == self.delimiter)
-            .nth(self.id_col)
-            .unwrap_or_default();
-        String::from_utf8_lossy(trim(id)).into_owned()
+        let id = String::from_utf8_lossy(id_raw);
+        let pushed = acc.store.push(
+            RowMeta {
+                id: &id,
+                line,
+                xy: (ax, ay),
+                coherence,
+                incidence_deg: self.inc_col.map(|_| incidence_deg as f32),
+                heading_deg: self.head_col.map(|_| heading_deg as f32),
+                height_m: self.h_col.map(|_| height_m.unwrap_or(f32::NAN)),
+            },
+            &values,
+            decimals,
+            row_max_abs_mm,
+        );
+        acc.scratch = values;
+        pushed.map_err(|e| InputError::new(file, loc(), e.0, "split the points file"))
     }
 }
 
@@ -682,12 +840,11 @@ impl RowParser<'_> {
 /// Choice: line numbers are physical line numbers (blank lines count), so messages point at the
 /// line an editor shows.
 #[allow(clippy::too_many_arguments)]
-pub fn read_points_from<R: std::io::BufRead>(
+pub fn read_points_from<R: std::io::BufRead + Send>(
     mut reader: R,
     file: &Path,
     spec: &DatasetSpec,
     to_analysis: &Transformer,
-    to_wgs84: &Transformer,
     geographic: bool,
     within_reach: &(dyn Fn(f64, f64) -> bool + Sync),
     warnings: &mut Warnings,
@@ -883,7 +1040,6 @@ pub fn read_points_from<R: std::io::BufRead>(
         );
     }
     let n_cols = headers.len();
-    let n_epochs = epoch_cols.len();
     let factor = spec.unit.to_mm()
         * match spec.positive {
             LosSign::Towards => 1.0,
@@ -903,84 +1059,94 @@ pub fn read_points_from<R: std::io::BufRead>(
         head_col,
         h_col,
         epoch_cols: epoch_cols.iter().map(|(c, _)| *c).collect(),
-        n_epochs,
+        is_epoch: (0..n_cols)
+            .map(|i| epoch_cols.iter().any(|(c, _)| *c == i))
+            .collect(),
         factor,
+        decimal_shift: if spec.unit == crate::portfolio::Unit::M {
+            3
+        } else {
+            0
+        },
         geographic,
         to_analysis,
-        to_wgs84,
         within_reach,
     };
 
     let mut total = Acc::default();
-    let mut seen: HashMap<u64, u64> = HashMap::new();
-    let mut block: Vec<u8> = Vec::with_capacity(BLOCK_BYTES + (1 << 16));
     let mut next_line = line_no + 1;
+    // Double buffering: while the pieces of one block are parsed on the thread pool, the next
+    // block is read (rayon::join), so reading the file overlaps parsing it.
+    let mut carry: Vec<u8> = Vec::new();
     let mut eof = false;
+    let mut cur = read_block(&mut reader, &mut carry, &mut eof, Vec::new())
+        .map_err(|e| io_err(e, next_line))?;
+    let mut spare: Vec<u8> = Vec::new();
     let slow_from: Option<(Vec<u8>, u64)> = loop {
-        if eof {
+        if cur.is_empty() && eof {
             break None;
         }
-        // Fill the block (keeping the carried-over partial line at its start).
-        let target = block.len().max(BLOCK_BYTES / 2) + BLOCK_BYTES / 2;
-        while block.len() < target {
-            let start = block.len();
-            block.resize(target, 0);
-            let n = loop {
-                match reader.read(&mut block[start..]) {
-                    Ok(n) => break n,
-                    Err(e) if e.kind() == std::io::ErrorKind::Interrupted => continue,
-                    Err(e) => return Err(io_err(e, next_line)),
+        let was_eof = eof;
+        let (next, parsed) = rayon::join(
+            || {
+                if was_eof {
+                    Ok(Vec::new())
+                } else {
+                    read_block(
+                        &mut reader,
+                        &mut carry,
+                        &mut eof,
+                        std::mem::take(&mut spare),
+                    )
                 }
-            };
-            block.truncate(start + n);
-            if n == 0 {
-                eof = true;
-                break;
-            }
-        }
-        // Parse up to the last line end (everything at end of file).
-        let cut = if eof {
-            block.len()
-        } else {
-            match memchr::memrchr(b'\n', &block) {
-                Some(p) => p + 1,
-                None => continue, // one line longer than the block: read more
-            }
-        };
-        let pieces = split_pieces(&block[..cut], next_line);
-        let parsed: Vec<Piece> = pieces
-            .par_iter()
-            .map(|&(lo, hi, first_line)| rp.parse_piece(&block[lo..hi], lo, first_line))
-            .collect();
+            },
+            || {
+                let (pieces, end_line) = split_pieces(&cur, next_line);
+                let parsed: Vec<Piece> = pieces
+                    .par_iter()
+                    .map(|&(lo, hi, first_line)| rp.parse_piece(&cur[lo..hi], lo, first_line))
+                    .collect();
+                (parsed, end_line - next_line)
+            },
+        );
+        let (parsed, lines) = parsed;
         let mut switch = None;
-        for (p, &(lo, hi, first)) in parsed.into_iter().zip(&pieces) {
-            for (h, line) in &p.acc.ids {
-                check_duplicate(&mut seen, *h, *line, file, || {
-                    rp.id_on_line(&block[lo..hi], first, *line)
-                })?;
-            }
-            total.absorb(p.acc);
+        for p in parsed {
+            total.absorb(p.acc, file)?;
             match p.end {
                 PieceEnd::Done => {}
-                PieceEnd::Error(e) => return Err(e),
+                PieceEnd::Error(e) => return Err(first_error(file, &mut total, e)),
                 PieceEnd::Slow { offset, line } => {
                     switch = Some((offset, line));
                     break;
                 }
             }
         }
+        let next = next.map_err(|e| io_err(e, next_line + lines))?;
         if let Some((offset, line)) = switch {
-            break Some((block.split_off(offset), line));
+            // The rest of the file, in order: this block from the row, the block read ahead, the
+            // partial line carried over; the reader continues after them.
+            let mut rest = cur.split_off(offset);
+            rest.extend_from_slice(&next);
+            rest.extend_from_slice(&carry);
+            break Some((rest, line));
         }
-        next_line += memchr::memchr_iter(b'\n', &block[..cut]).count() as u64;
-        block.drain(..cut);
+        next_line += lines;
+        cur.clear();
+        spare = std::mem::replace(&mut cur, next);
     };
     if let Some((rest, first_line)) = slow_from {
         let chained = std::io::Cursor::new(rest).chain(reader);
-        rp.read_slow(chained, first_line, &mut total, &mut seen)?;
+        if let Err(e) = rp.read_slow(chained, first_line, &mut total) {
+            return Err(first_error(file, &mut total, e));
+        }
     }
+    if let Some((first, repeat)) = first_duplicate(&mut total.ids) {
+        return Err(duplicate_error(file, &total.store, first, repeat));
+    }
+    total.ids = Vec::new();
     let Acc {
-        points,
+        store,
         rows,
         out_of_reach,
         swapped_in_reach,
@@ -996,7 +1162,7 @@ pub fn read_points_from<R: std::io::BufRead>(
             "export the points, one row per point",
         ));
     }
-    if points.is_empty() && swapped_in_reach > 0 {
+    if store.points.is_empty() && swapped_in_reach > 0 {
         return Err(InputError::new(
             file,
             "",
@@ -1006,7 +1172,7 @@ pub fn read_points_from<R: std::io::BufRead>(
             "the x/y (longitude/latitude) columns look swapped: map columns.x to longitude and columns.y to latitude",
         ));
     }
-    if points.is_empty() {
+    if store.points.is_empty() {
         warnings.push(
             "no_points_near_structures",
             format!(
@@ -1053,14 +1219,27 @@ pub fn read_points_from<R: std::io::BufRead>(
             );
         }
     }
+    let per_point = |mapped: bool, each: Vec<f32>, constant: Option<f64>| {
+        if mapped {
+            PerPoint::Each(each)
+        } else {
+            PerPoint::Constant(constant.unwrap_or(f64::NAN))
+        }
+    };
     Ok(Dataset {
         name: spec.name.clone(),
         epochs: epoch_cols.into_iter().map(|(_, d)| d).collect(),
-        points,
+        points: store.points,
+        ids: store.ids,
+        codes: store.codes,
+        incidence_deg: per_point(inc_col.is_some(), store.incidence_deg, spec.incidence_deg),
+        heading_deg: per_point(head_col.is_some(), store.heading_deg, spec.heading_deg),
+        height_m: store.height_m,
         rows_read: rows,
         rows_out_of_reach: out_of_reach,
         has_coherence: coh_col.is_some(),
         ignored_columns: ignored,
+        max_rounding_mm: store.max_rounding_mm,
     })
 }
 
@@ -1105,7 +1284,6 @@ mod tests {
             Path::new("a.csv"),
             spec,
             &t,
-            &t,
             true,
             &|_, _| true,
             &mut Warnings::default(),
@@ -1118,9 +1296,9 @@ mod tests {
         let d = read(text, &spec()).unwrap();
         assert_eq!(d.points.len(), 2);
         assert_eq!(d.epochs.len(), 2);
-        assert_eq!(d.points[0].values_mm[1], -1.5);
-        assert!(d.points[1].values_mm[1].is_nan());
-        assert_eq!(d.points[1].line, 3);
+        assert_eq!(d.point(0).series().get(1), -1.5);
+        assert!(d.point(1).series().get(1).is_nan());
+        assert_eq!(d.point(1).line(), 3);
     }
 
     #[test]
@@ -1129,7 +1307,7 @@ mod tests {
         s.positive = LosSign::Away;
         s.unit = Unit::M;
         let d = read("point_id,lon,lat,2023-01-01\np,9,45,0.002\n", &s).unwrap();
-        assert_eq!(d.points[0].values_mm[0], -2.0);
+        assert_eq!(d.point(0).series().get(0), -2.0);
     }
 
     #[test]
@@ -1192,11 +1370,11 @@ mod tests {
         let d = read(&big(n), &spec()).unwrap();
         assert_eq!(d.points.len(), n);
         assert_eq!(d.rows_read, n as u64);
-        for (i, p) in d.points.iter().enumerate() {
-            assert_eq!(p.id, format!("p{i}"));
-            assert_eq!(p.line, i as u64 + 2);
-            assert_eq!(p.values_mm[0], (i % 7) as f32);
-            assert_eq!(p.values_mm[1], -((i % 5) as f32));
+        for (i, p) in d.iter_points().enumerate() {
+            assert_eq!(p.id(), format!("p{i}"));
+            assert_eq!(p.line(), i as u64 + 2);
+            assert_eq!(p.series().get(0), (i % 7) as f32);
+            assert_eq!(p.series().get(1), -((i % 5) as f32));
         }
     }
 
@@ -1208,7 +1386,6 @@ mod tests {
             std::io::Cursor::new(big(1000).into_bytes()),
             Path::new("a.csv"),
             &spec(),
-            &t,
             &t,
             true,
             &|_, _| false,
@@ -1245,10 +1422,10 @@ mod tests {
     fn quoted_rows_use_the_csv_reader_from_there_on() {
         let text = "point_id,lon,lat,2023-01-01\np1,9,45,1\n\"p,2\",9,45,2\np3,9,45,3\n";
         let d = read(text, &spec()).unwrap();
-        let ids: Vec<&str> = d.points.iter().map(|p| p.id.as_str()).collect();
+        let ids: Vec<&str> = d.iter_points().map(|p| p.id()).collect();
         assert_eq!(ids, ["p1", "p,2", "p3"]);
-        assert_eq!(d.points[2].line, 4);
-        assert_eq!(d.points[2].values_mm[0], 3.0);
+        assert_eq!(d.point(2).line(), 4);
+        assert_eq!(d.point(2).series().get(0), 3.0);
         // A slow-path error keeps its physical line number.
         let text = "point_id,lon,lat,2023-01-01\n\"p1\",9,45,1\n\np3,9,45,z\n";
         let e = read(text, &spec()).unwrap_err();
@@ -1262,6 +1439,6 @@ mod tests {
     #[test]
     fn no_trailing_newline_and_crlf() {
         let d = read("point_id,lon,lat,2023-01-01\r\np,9,45,4.5", &spec()).unwrap();
-        assert_eq!(d.points[0].values_mm[0], 4.5);
+        assert_eq!(d.point(0).series().get(0), 4.5);
     }
 }

@@ -527,8 +527,8 @@ impl<'a> PointLookup<'a> {
     fn new(a: &'a Analysis) -> Self {
         let mut points = BTreeMap::new();
         for d in &a.inputs.datasets {
-            for p in &d.points {
-                points.insert((d.name.as_str(), p.id.as_str()), p);
+            for p in d.iter_points() {
+                points.insert((d.name.as_str(), p.id()), &d.points[p.index()]);
             }
         }
         let mut rows: BTreeMap<&str, Vec<&PointRow>> = BTreeMap::new();

@@ -163,6 +163,25 @@ pub fn detect_jumps(values_mm: &[f64], wavelength_mm: f64) -> JumpScan {
     }
 }
 
+/// True when [`detect_jumps`] would flag at least one candidate. Same result, but a series
+/// without any step larger than λ/4 between consecutive valid epochs (the first condition of
+/// step 2) is answered without the robust-σ medians, which is nearly every series.
+pub fn has_jump_candidate(values_mm: &[f64], wavelength_mm: f64) -> bool {
+    let quarter = wavelength_mm / 4.0;
+    let mut prev: Option<f64> = None;
+    let mut big_step = false;
+    for v in values_mm.iter().copied().filter(|v| v.is_finite()) {
+        if let Some(p) = prev {
+            if (v - p).abs() > quarter {
+                big_step = true;
+                break;
+            }
+        }
+        prev = Some(v);
+    }
+    big_step && !detect_jumps(values_mm, wavelength_mm).flags.is_empty()
+}
+
 /// A copy of the series with `k·λ/2` removed from every epoch at or after each flagged jump.
 ///
 /// Offered as an explicitly labelled alternative (insar-methods.md §5.10 step 4); the pipeline's
@@ -211,6 +230,7 @@ mod tests {
             assert!((d[i] - d[i - 1] - e).abs() < 1e-2, "Δd at {i}");
         }
         let scan = detect_jumps(&d, lambda);
+        assert_eq!(has_jump_candidate(&d, lambda), !scan.flags.is_empty());
         assert!((scan.robust_sigma_step_mm.unwrap() - 0.3843).abs() < 1e-4);
         assert_eq!(scan.flags.len(), 1);
         let f = &scan.flags[0];
@@ -233,6 +253,7 @@ mod tests {
         }
         d[15] = f64::NAN;
         let scan = detect_jumps(&d, lambda);
+        assert_eq!(has_jump_candidate(&d, lambda), !scan.flags.is_empty());
         assert_eq!(scan.flags.len(), 1);
         assert_eq!(
             (
@@ -245,6 +266,8 @@ mod tests {
         let smooth: Vec<f64> = (0..30).map(|i| -10.0 * i as f64).collect();
         assert!(detect_jumps(&smooth, lambda).flags.is_empty());
         assert!(detect_jumps(&[1.0], lambda).flags.is_empty());
+        assert!(!has_jump_candidate(&smooth, lambda));
+        assert!(!has_jump_candidate(&[1.0], lambda));
     }
 }
 

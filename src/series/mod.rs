@@ -51,7 +51,7 @@ use period::{PeriodDisplacement, PeriodMethod, period_displacement, window_veloc
 pub struct PointSeries<'a> {
     /// LOS displacement per epoch of the geometry (mm, + towards the satellite, NaN = missing),
     /// relative to the dataset's reference point and first epoch.
-    pub values_mm: &'a [f32],
+    pub values_mm: crate::ingest::SeriesRef<'a>,
     /// Ground→satellite unit vector (ENU) of this point.
     pub unit_enu: [f64; 3],
 }
@@ -652,7 +652,7 @@ fn process_geometry(
             ));
         } else {
             values.push(Some(
-                window.iter().map(|&i| p.values_mm[i] as f64).collect(),
+                window.iter().map(|&i| p.values_mm.get(i) as f64).collect(),
             ));
             invalid_reason.push(None);
         }
@@ -1134,7 +1134,7 @@ mod tests {
             points: pts
                 .iter()
                 .map(|(v, u)| PointSeries {
-                    values_mm: v,
+                    values_mm: crate::ingest::SeriesRef::floats(v),
                     unit_enu: *u,
                 })
                 .collect(),
