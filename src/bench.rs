@@ -39,6 +39,22 @@ pub struct PhaseRun {
     pub bytes: u64,
     /// Peak resident set of the process running the phase, MB (VmHWM; None where unavailable).
     pub peak_rss_mb: Option<f64>,
+    /// Where the `ingest` phase spent its time (None for the other phases).
+    #[serde(default)]
+    pub stages: Option<IngestStages>,
+}
+
+/// Wall time of each stage of the `ingest` phase, s.
+#[derive(Debug, Clone, Copy, Default, serde::Serialize, serde::Deserialize)]
+pub struct IngestStages {
+    /// Portfolio file, footprints, projection and spatial index.
+    pub structures_s: f64,
+    /// Both points files read, reach-filtered and associated, owners grouped.
+    pub points_s: f64,
+    /// Window and every point's window statistics.
+    pub statistics_s: f64,
+    /// Per-structure screening of the owned points.
+    pub screening_s: f64,
 }
 
 /// Summary of one phase over the runs.
@@ -235,19 +251,22 @@ pub fn floor_file(path: &Path) -> Result<FloorCount> {
 
 /// The `ingest` phase: read footprints and points (reach filter), associate every point, compute
 /// every point's window statistics and screen every structure's own points (coherence, epochs,
-/// velocity outliers) with the same functions `run::analyse` uses. Returns (kept, rejected)
-/// structure-point counts.
-fn read_associate_screen(portfolio: &Path) -> Result<(usize, usize)> {
+/// velocity outliers) with the same functions `run::analyse` uses. Returns the kept and rejected
+/// structure-point counts and the wall time of each stage.
+fn read_associate_screen(portfolio: &Path) -> Result<(usize, usize, IngestStages)> {
     use crate::association::Role;
+    let t = Instant::now();
     let pf = crate::portfolio::Portfolio::load(portfolio)?;
     let mut w = crate::error::Warnings::default();
     let (structures, crs, index) = crate::ingest::load_structures(&pf, &mut w)?;
-
+    let structures_s = t.elapsed().as_secs_f64();
+    // Every kept point is associated while it is read.
     let ds = crate::ingest::read_datasets(&pf, &crs, &index, &mut w)?;
-    // The per-point summaries are for the points outputs; screening needs the owners only.
-    let assoc = crate::association::Associated::build(&index, structures.len(), &ds).owners;
+    let assoc = crate::association::Owners::from_datasets(&ds, structures.len());
+    let points_s = t.elapsed().as_secs_f64();
     let window = crate::run::window_for(&pf, &ds, &mut w)?;
     let ctx = crate::run::run_context(&pf, &ds, window, &crs)?;
+    let statistics_s = t.elapsed().as_secs_f64();
     let counts = structures
         .par_iter()
         .enumerate()
@@ -266,7 +285,13 @@ fn read_associate_screen(portfolio: &Path) -> Result<(usize, usize)> {
             (verdicts.len() - rejected, rejected)
         })
         .reduce(|| (0, 0), |a, b| (a.0 + b.0, a.1 + b.1));
-    Ok(counts)
+    let stages = IngestStages {
+        structures_s,
+        points_s: points_s - structures_s,
+        statistics_s: statistics_s - points_s,
+        screening_s: t.elapsed().as_secs_f64() - statistics_s,
+    };
+    Ok((counts.0, counts.1, stages))
 }
 
 /// Run one phase in this process and return its measurement.
@@ -277,6 +302,7 @@ pub fn run_phase(phase: &str, dir: &Path, hook: Option<ReportHook>) -> Result<Ph
         .map(|p| file_len(p))
         .sum::<Result<u64>>()?;
     let all_bytes = csv_bytes + file_len(&dir.join("structures.geojson"))?;
+    let mut stages = None;
     let t0 = Instant::now();
     let bytes = match phase {
         "floor" => {
@@ -294,7 +320,8 @@ pub fn run_phase(phase: &str, dir: &Path, hook: Option<ReportHook>) -> Result<Ph
             csv_bytes
         }
         "ingest" => {
-            let (kept, rejected) = read_associate_screen(&portfolio)?;
+            let (kept, rejected, st) = read_associate_screen(&portfolio)?;
+            stages = Some(st);
             if kept + rejected == 0 {
                 bail!("no point was associated with a structure");
             }
@@ -333,6 +360,7 @@ pub fn run_phase(phase: &str, dir: &Path, hook: Option<ReportHook>) -> Result<Ph
         seconds: t0.elapsed().as_secs_f64(),
         bytes,
         peak_rss_mb: peak_rss_mb(),
+        stages,
     })
 }
 

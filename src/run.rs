@@ -311,7 +311,8 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
                     role: k.role,
                 });
             }
-            link_rows.push((di, pi, l.summary()));
+            // The summary the reader stored (the same value as `l.summary()`, tested).
+            link_rows.push((di, pi, d.association[pi]));
         }
     }
 

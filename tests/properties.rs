@@ -67,7 +67,7 @@ fn read_csv(bytes: &[u8], unit: Unit, delimiter: Option<u8>, keep: bool) -> Resu
     let wgs = Crs::wgs84();
     let utm = Crs::from_epsg(32650).expect("EPSG:32650 is defined");
     let to_a = Transformer::new(&wgs, &utm);
-    let reach = move |_x: f64, _y: f64| keep;
+    let reach = move |_x: f64, _y: f64| keep.then(plinth::association::PointAssociation::default);
     read_points_from(
         std::io::Cursor::new(bytes.to_vec()),
         Path::new("points.csv"),
@@ -75,6 +75,7 @@ fn read_csv(bytes: &[u8], unit: Unit, delimiter: Option<u8>, keep: bool) -> Resu
         &to_a,
         true,
         &reach,
+        None,
         &mut Warnings::default(),
     )
     .map(|_| ())

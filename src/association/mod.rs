@@ -68,6 +68,18 @@ const OWNED: u8 = 1;
 const INSIDE: u8 = 2;
 const TIE: u8 = 4;
 
+impl Default for PointAssociation {
+    /// A point within reach with no link.
+    fn default() -> Self {
+        PointAssociation {
+            structure: u32::MAX,
+            distance_m: 0.0,
+            rings: 0,
+            flags: 0,
+        }
+    }
+}
+
 impl PointAssociation {
     /// The owning structure, or the nearest structure whose ring holds the point; None when the
     /// point has no link.
@@ -132,18 +144,9 @@ impl PointLinks {
     }
 }
 
-/// Every retained point's association (the compact per-point summary) and, per structure, the
-/// points it owns: `owned(s)` lists `(dataset, point)` pairs, stored as one array sorted by
-/// structure (4 bytes a point plus an offset per structure).
-#[derive(Debug, Clone, Default)]
-pub struct Associated {
-    /// `[dataset][point]` summaries.
-    pub points: Vec<Vec<PointAssociation>>,
-    /// The points each structure owns.
-    pub owners: Owners,
-}
-
-/// The points each structure owns, as one array grouped by structure.
+/// The points each structure owns, as one array grouped by structure: `owned(s)` lists
+/// `(dataset, point)` pairs (4 bytes a point plus an offset per structure), built from the
+/// per-point associations the reader stores (`Dataset::association`).
 #[derive(Debug, Clone, Default)]
 pub struct Owners {
     /// First global point index of each dataset (global = offset + index in the dataset).
@@ -154,36 +157,28 @@ pub struct Owners {
     owned_points: Vec<u32>,
 }
 
-impl Associated {
-    /// Associate every point of every dataset (in parallel), by the rules in the module doc.
-    pub fn build(
-        index: &SpatialIndex,
-        n_structures: usize,
-        datasets: &[crate::ingest::Dataset],
-    ) -> Self {
-        use rayon::prelude::*;
-        let points: Vec<Vec<PointAssociation>> = datasets
-            .iter()
-            .map(|d| {
-                d.points
-                    .par_iter()
-                    .map(|p| index.associate(p.x, p.y).summary())
-                    .collect()
-            })
-            .collect();
-        Self::from_summaries(points, n_structures)
+impl Owners {
+    /// Group every dataset's points by owning structure.
+    pub fn from_datasets(datasets: &[crate::ingest::Dataset], n_structures: usize) -> Self {
+        Self::from_summaries(
+            datasets.iter().map(|d| d.association.as_slice()),
+            n_structures,
+        )
     }
 
-    /// Group already computed summaries by owner.
-    pub fn from_summaries(points: Vec<Vec<PointAssociation>>, n_structures: usize) -> Self {
-        let mut dataset_offsets = Vec::with_capacity(points.len());
+    /// Group per-dataset summaries by owner.
+    pub fn from_summaries<'a>(
+        points: impl Iterator<Item = &'a [PointAssociation]> + Clone,
+        n_structures: usize,
+    ) -> Self {
+        let mut dataset_offsets = Vec::new();
         let mut total = 0usize;
-        for d in &points {
+        for d in points.clone() {
             dataset_offsets.push(total);
             total += d.len();
         }
         let mut counts = vec![0usize; n_structures + 1];
-        for a in points.iter().flatten() {
+        for a in points.clone().flatten() {
             if let (Some(s), Role::Structure) = (a.structure(), a.role()) {
                 counts[s + 1] += 1;
             }
@@ -194,7 +189,7 @@ impl Associated {
         let owner_start = counts;
         let mut fill = owner_start.clone();
         let mut owned_points = vec![0u32; *owner_start.last().unwrap_or(&0)];
-        for (d, ps) in points.iter().enumerate() {
+        for (d, ps) in points.enumerate() {
             for (i, a) in ps.iter().enumerate() {
                 if let (Some(s), Role::Structure) = (a.structure(), a.role()) {
                     owned_points[fill[s]] = (dataset_offsets[d] + i) as u32;
@@ -202,13 +197,10 @@ impl Associated {
                 }
             }
         }
-        Associated {
-            points,
-            owners: Owners {
-                dataset_offsets,
-                owner_start,
-                owned_points,
-            },
+        Owners {
+            dataset_offsets,
+            owner_start,
+            owned_points,
         }
     }
 }
@@ -267,6 +259,108 @@ impl SpatialIndex {
             .locate_in_envelope_intersecting(&AABB::from_point([x, y]))
             .next()
             .is_some()
+    }
+
+    /// The compact association of one point (analysis CRS) — the same value as
+    /// `associate(x, y).summary()` — without allocating; `None` when the point is out of reach
+    /// (outside every expanded envelope, the points reader's keep test). Used by the points
+    /// reader, which associates every row it keeps while parsing.
+    pub fn summarise(&self, x: f64, y: f64) -> Option<PointAssociation> {
+        /// Candidates kept on the stack; a point near more structures than this takes the
+        /// general (allocating) route.
+        const STACK: usize = 24;
+        let reach = self.surroundings_m.max(self.buffer_m);
+        let mut cands = [(0usize, 0.0f64, false); STACK];
+        let mut n = 0usize;
+        let mut any = false;
+        for g in self
+            .tree
+            .locate_in_envelope_intersecting(&AABB::from_point([x, y]))
+        {
+            any = true;
+            let (inside, d) = inside_and_distance(&self.footprints[g.data], x, y);
+            if d <= reach {
+                if n == STACK {
+                    return Some(self.associate(x, y).summary());
+                }
+                cands[n] = (g.data, d, inside);
+                n += 1;
+            }
+        }
+        if !any {
+            return None;
+        }
+        let cands = &cands[..n];
+        // (distance, structure) order: nearest first, lower index first among equals — the order
+        // `associate` gets from its sort by index then stable sort by distance.
+        let before = |a: &(usize, f64, bool), b: &(usize, f64, bool)| {
+            a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)).is_lt()
+        };
+        // Rules 1–3: the owner, or a tie.
+        let mut tie = false;
+        let mut insiders = cands.iter().filter(|c| c.2);
+        let owner = match (insiders.next(), insiders.next()) {
+            (Some(_), Some(_)) => {
+                tie = true;
+                None
+            }
+            (Some(one), None) => Some(one.0),
+            _ => {
+                let mut first: Option<&(usize, f64, bool)> = None;
+                let mut second: Option<&(usize, f64, bool)> = None;
+                for c in cands.iter().filter(|c| c.1 <= self.buffer_m) {
+                    if first.is_none_or(|f| before(c, f)) {
+                        second = first;
+                        first = Some(c);
+                    } else if second.is_none_or(|s| before(c, s)) {
+                        second = Some(c);
+                    }
+                }
+                match (first, second) {
+                    (None, _) => None,
+                    (Some(a), None) => Some(a.0),
+                    (Some(a), Some(b)) => {
+                        if (b.1 - a.1).abs() <= TIE_TOLERANCE_M {
+                            tie = true;
+                            None
+                        } else {
+                            Some(a.0)
+                        }
+                    }
+                }
+            }
+        };
+        // Rule 4: surroundings links, the nearest of them, and how many.
+        let mut rings = 0usize;
+        let mut nearest: Option<&(usize, f64, bool)> = None;
+        let mut owned: Option<&(usize, f64, bool)> = None;
+        for c in cands {
+            if Some(c.0) == owner {
+                owned = Some(c);
+            } else if c.1 <= self.surroundings_m && !(tie && c.1 <= self.buffer_m) {
+                rings += 1;
+                if nearest.is_none_or(|m| before(c, m)) {
+                    nearest = Some(c);
+                }
+            }
+        }
+        let chosen = owned.or(nearest);
+        let mut flags = 0;
+        if owned.is_some() {
+            flags |= OWNED;
+        }
+        if chosen.is_some_and(|c| c.2) {
+            flags |= INSIDE;
+        }
+        if tie {
+            flags |= TIE;
+        }
+        Some(PointAssociation {
+            structure: chosen.map_or(u32::MAX, |c| u32::try_from(c.0).unwrap_or(u32::MAX - 1)),
+            distance_m: chosen.map_or(0.0, |c| c.1 as f32),
+            rings: u16::try_from(rings).unwrap_or(u16::MAX),
+            flags,
+        })
     }
 
     /// Associate one point (analysis CRS) by the rules in the module doc.
@@ -502,6 +596,55 @@ mod tests {
         assert!(l.links.iter().all(|k| k.role == Role::Surroundings));
         assert!(!index().within_reach(500.0, 500.0));
         assert!(index().associate(500.0, 500.0).links.is_empty());
+    }
+
+    /// `summarise` (allocation-free, used by the reader) gives exactly `associate().summary()`,
+    /// and `None` exactly when the point is out of reach: overlapping footprints (inside ties),
+    /// equidistant buffer points (buffer ties), points near more structures than its stack holds.
+    #[test]
+    fn summarise_equals_the_summary_of_the_full_links() {
+        let mut seed = 12345u64;
+        let mut next = || {
+            seed = seed
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            (seed >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let mut fps = Vec::new();
+        // A regular row (exact buffer ties halfway between neighbours) ...
+        for i in 0..6 {
+            let x0 = i as f64 * 16.0;
+            fps.push(rect(x0, 0.0, x0 + 10.0, 10.0));
+        }
+        // ... and a random cluster with overlaps, dense enough for > 24 candidates.
+        for _ in 0..40 {
+            let (x0, y0) = (next() * 60.0, 20.0 + next() * 40.0);
+            fps.push(rect(
+                x0,
+                y0,
+                x0 + 3.0 + next() * 12.0,
+                y0 + 3.0 + next() * 12.0,
+            ));
+        }
+        let idx = SpatialIndex::new(fps, 5.0, 50.0);
+        let (mut ties, mut owned, mut unreached, mut crowded) = (0, 0, 0, 0);
+        for i in -240..=480 {
+            for j in -240..=480 {
+                let (x, y) = (i as f64 * 0.5, j as f64 * 0.5);
+                let got = idx.summarise(x, y);
+                if !idx.within_reach(x, y) {
+                    assert_eq!(got, None, "({x}, {y})");
+                    unreached += 1;
+                    continue;
+                }
+                let want = idx.associate(x, y);
+                assert_eq!(got, Some(want.summary()), "({x}, {y})");
+                ties += usize::from(want.tie);
+                owned += usize::from(want.links.iter().any(|k| k.role == Role::Structure));
+                crowded += usize::from(want.links.len() > 24);
+            }
+        }
+        assert!(ties > 0 && owned > 0 && unreached > 0 && crowded > 0);
     }
 
     #[test]

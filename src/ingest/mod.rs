@@ -182,7 +182,7 @@ pub fn read_datasets(
     for (i, spec) in pf.datasets.iter().enumerate() {
         let dcrs = crs_or_input_error(&spec.crs, &pf.file, &format!("datasets[{i}].crs"))?;
         let to_a = Transformer::new(&dcrs, analysis);
-        let reach = |x: f64, y: f64| index.within_reach(x, y);
+        let reach = |x: f64, y: f64| index.summarise(x, y);
         out.push(points::read_points(
             spec,
             &to_a,

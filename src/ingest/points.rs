@@ -22,6 +22,7 @@ use std::path::Path;
 use chrono::NaiveDate;
 use rayon::prelude::*;
 
+use crate::association::PointAssociation;
 use crate::coords::{GeographicCheck, Transformer, check_geographic};
 use crate::error::{InputError, Warnings};
 use crate::portfolio::{DatasetSpec, LosSign};
@@ -89,12 +90,13 @@ fn id_hash(id: &[u8]) -> u64 {
 /// Read a points file.
 ///
 /// `to_analysis` maps the file's coordinates to the analysis CRS;
-/// `within_reach(x, y)` (analysis CRS) decides whether a row is kept.
+/// `associate(x, y)` (analysis CRS) decides whether a row is kept (`None`: out of reach) and
+/// gives a kept point's association with the structures.
 pub fn read_points(
     spec: &DatasetSpec,
     to_analysis: &Transformer,
     geographic: bool,
-    within_reach: &(dyn Fn(f64, f64) -> bool + Sync),
+    associate: &(dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
     warnings: &mut Warnings,
 ) -> Result<Dataset, InputError> {
     let file = spec.path.as_path();
@@ -106,19 +108,21 @@ pub fn read_points(
             "check the dataset path in the portfolio file",
         )
     })?;
+    let expected_bytes = f.metadata().ok().map(|m| m.len());
     read_points_from(
         std::io::BufReader::with_capacity(1 << 20, f),
         file,
         spec,
         to_analysis,
         geographic,
-        within_reach,
+        associate,
+        expected_bytes,
         warnings,
     )
 }
 
 /// Bytes read per block of the points body (each block is parsed in parallel).
-pub const BLOCK_BYTES: usize = 4 << 20;
+pub const BLOCK_BYTES: usize = 2 << 20;
 
 /// Read the next block of whole lines: `carry` (the partial line left by the previous block) and
 /// then at least [`BLOCK_BYTES`] more, cut after the last line end; the part after it becomes the
@@ -184,16 +188,38 @@ fn split_pieces(region: &[u8], first_line: u64) -> (Vec<(usize, usize, u64)>, u6
 /// `(line of the first occurrence, line of the repeat)`, the repeat being the earliest second
 /// occurrence of any id. Sorts `ids`.
 ///
-/// Choice: ids are checked once after reading (a sorted list of 16 bytes per row) rather than in a
+/// Choice: ids are checked once after reading (a sorted list of 12 bytes per row) rather than in a
 /// hash table while reading (about twice the memory); a reading error further down the file is
 /// compared by line with the earliest repeat, so the reported error is the one a row-by-row reading
 /// meets first.
-fn first_duplicate(ids: &mut [(u64, u64)]) -> Option<(u64, u64)> {
+fn first_duplicate(ids: &mut [IdSeen]) -> Option<(u64, u64)> {
     ids.par_sort_unstable();
     ids.windows(2)
-        .filter(|w| w[0].0 == w[1].0)
-        .map(|w| (w[0].1, w[1].1))
+        .filter(|w| w[0].hash() == w[1].hash())
+        .map(|w| (w[0].line(), w[1].line()))
         .min_by_key(|&(_, repeat)| repeat)
+}
+
+/// A row's id hash and line in 12 bytes (hash high word, hash low word, line), so that sorting
+/// orders by hash and then line.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+struct IdSeen([u32; 3]);
+
+impl IdSeen {
+    /// `None` past line 4 294 967 295.
+    fn new(hash: u64, line: u64) -> Option<Self> {
+        Some(IdSeen([
+            (hash >> 32) as u32,
+            hash as u32,
+            u32::try_from(line).ok()?,
+        ]))
+    }
+    fn hash(&self) -> u64 {
+        (u64::from(self.0[0]) << 32) | u64::from(self.0[1])
+    }
+    fn line(&self) -> u64 {
+        u64::from(self.0[2])
+    }
 }
 
 /// The error for a repeated id; the id text is taken from the retained points when the row was
@@ -245,8 +271,8 @@ struct Acc {
     store: StoreBuilder,
     /// Values of the row being parsed, mm (reused).
     scratch: Vec<f64>,
-    /// `(id hash, line)` of every data row whose id was read, in file order.
-    ids: Vec<(u64, u64)>,
+    /// Id hash and line of every data row whose id was read, in file order.
+    ids: Vec<IdSeen>,
     rows: u64,
     out_of_reach: u64,
     swapped_in_reach: u64,
@@ -361,7 +387,7 @@ struct RowParser<'a> {
     decimal_shift: u32,
     geographic: bool,
     to_analysis: &'a Transformer,
-    within_reach: &'a (dyn Fn(f64, f64) -> bool + Sync),
+    associate: &'a (dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
 }
 
 impl RowParser<'_> {
@@ -628,7 +654,15 @@ impl RowParser<'_> {
                 "every point needs an id",
             ));
         }
-        acc.ids.push((id_hash(id_raw), line));
+        let seen = IdSeen::new(id_hash(id_raw), line).ok_or_else(|| {
+            InputError::new(
+                file,
+                loc(),
+                "the file has more than 4 294 967 295 lines",
+                "split it into several datasets",
+            )
+        })?;
+        acc.ids.push(seen);
         self.row_values(buf, ranges, line, id_raw, acc, pre)
     }
 
@@ -796,24 +830,25 @@ impl RowParser<'_> {
                 "check the dataset's crs and the x/y column mapping",
             )
         })?;
-        if !(self.within_reach)(ax, ay) {
+        let Some(association) = (self.associate)(ax, ay) else {
             acc.out_of_reach += 1;
             if self.geographic {
                 if let Ok((sx, sy)) = self.to_analysis.apply(y, x) {
-                    if (self.within_reach)(sx, sy) {
+                    if (self.associate)(sx, sy).is_some() {
                         acc.swapped_in_reach += 1;
                     }
                 }
             }
             acc.scratch = values;
             return Ok(());
-        }
+        };
         let id = String::from_utf8_lossy(id_raw);
         let pushed = acc.store.push(
             RowMeta {
                 id: &id,
                 line,
                 xy: (ax, ay),
+                association,
                 coherence,
                 incidence_deg: self.inc_col.map(|_| incidence_deg as f32),
                 heading_deg: self.head_col.map(|_| heading_deg as f32),
@@ -846,7 +881,8 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
     spec: &DatasetSpec,
     to_analysis: &Transformer,
     geographic: bool,
-    within_reach: &(dyn Fn(f64, f64) -> bool + Sync),
+    associate: &(dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
+    expected_bytes: Option<u64>,
     warnings: &mut Warnings,
 ) -> Result<Dataset, InputError> {
     let io_err = |e: std::io::Error, line: u64| {
@@ -1070,7 +1106,7 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
         },
         geographic,
         to_analysis,
-        within_reach,
+        associate,
     };
 
     let mut total = Acc::default();
@@ -1081,6 +1117,14 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
     let mut eof = false;
     let mut cur = read_block(&mut reader, &mut carry, &mut eof, Vec::new())
         .map_err(|e| io_err(e, next_line))?;
+    if let Some(total_bytes) = expected_bytes {
+        // Room for every row, estimated from the first block, taken once: the big arrays then
+        // never move while growing (untouched room costs address space, not memory).
+        let rows_in_block = memchr::memchr_iter(b'\n', &cur).count().max(1) as u64;
+        let per_row = (cur.len() as u64 / rows_in_block).max(1);
+        let rows = total_bytes / per_row + total_bytes / per_row / 20 + 16;
+        total.store.reserve_rows(rows, epoch_cols.len());
+    }
     let mut spare: Vec<u8> = Vec::new();
     let slow_from: Option<(Vec<u8>, u64)> = loop {
         if cur.is_empty() && eof {
@@ -1232,6 +1276,7 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
         points: store.points,
         ids: store.ids,
         codes: store.codes,
+        association: store.association,
         incidence_deg: per_point(inc_col.is_some(), store.incidence_deg, spec.incidence_deg),
         heading_deg: per_point(head_col.is_some(), store.heading_deg, spec.heading_deg),
         height_m: store.height_m,
@@ -1285,7 +1330,8 @@ mod tests {
             spec,
             &t,
             true,
-            &|_, _| true,
+            &|_, _| Some(PointAssociation::default()),
+            None,
             &mut Warnings::default(),
         )
     }
@@ -1378,6 +1424,90 @@ mod tests {
         }
     }
 
+    /// The size hint only reserves room: a hint far too small, far too large or absent reads the
+    /// same points, and every kept point carries the association the callback gave it.
+    #[test]
+    fn size_hint_changes_nothing_and_associations_follow_the_points() {
+        use crate::association::SpatialIndex;
+        let w = Crs::wgs84();
+        let t = Transformer::new(&w, &w);
+        let mut text = String::from("point_id,lon,lat,2023-01-01,2023-01-13\n");
+        for i in 0..30_000 {
+            text.push_str(&format!("q{i},{},0.5,{},-{}.25\n", i % 40, i % 9, i % 4));
+        }
+        // Unit squares at x = 0, 10, 20, 30 (degrees treated as metres: identity transform).
+        let rect = |x0: f64| {
+            geo::MultiPolygon::new(vec![geo::Polygon::new(
+                geo::LineString::from(vec![
+                    (x0, 0.0),
+                    (x0 + 1.0, 0.0),
+                    (x0 + 1.0, 1.0),
+                    (x0, 1.0),
+                    (x0, 0.0),
+                ]),
+                vec![],
+            )])
+        };
+        let idx = SpatialIndex::new(
+            (0..4).map(|k| rect(f64::from(k) * 10.0)).collect(),
+            1.0,
+            3.0,
+        );
+        let assoc = |x: f64, y: f64| idx.summarise(x, y);
+        let run = |hint: Option<u64>| {
+            read_points_from(
+                std::io::Cursor::new(text.clone().into_bytes()),
+                Path::new("a.csv"),
+                &spec(),
+                &t,
+                false,
+                &assoc,
+                hint,
+                &mut Warnings::default(),
+            )
+            .unwrap()
+        };
+        let base = run(None);
+        for hint in [Some(10), Some(1 << 30)] {
+            let d = run(hint);
+            assert_eq!(d.points.len(), base.points.len());
+            assert_eq!(d.association, base.association);
+            for (a, b) in d.iter_points().zip(base.iter_points()) {
+                assert_eq!((a.id(), a.line()), (b.id(), b.line()));
+                assert_eq!(a.series().to_vec(), b.series().to_vec());
+            }
+        }
+        // x = 0..3 and 10..13, ...: within 3 m of a square; x = 4..6 etc. are out of reach.
+        assert!(base.points.len() < 30_000 && base.rows_out_of_reach > 0);
+        assert_eq!(base.association.len(), base.points.len());
+        for (p, a) in base.iter_points().zip(&base.association) {
+            assert_eq!(Some(*a), idx.summarise(p.x(), p.y()), "{}", p.id());
+        }
+    }
+
+    /// Duplicate-id bookkeeping sorts by hash, then line, like the `(u64, u64)` pairs it packs.
+    #[test]
+    fn id_records_sort_by_hash_then_line() {
+        let pairs = [(u64::MAX, 7u64), (1 << 40, 3), (1 << 40, 2), (5, 9), (0, 1)];
+        let mut packed: Vec<IdSeen> = pairs
+            .iter()
+            .map(|&(h, l)| IdSeen::new(h, l).unwrap())
+            .collect();
+        packed.sort();
+        let mut want = pairs.to_vec();
+        want.sort();
+        let got: Vec<(u64, u64)> = packed.iter().map(|s| (s.hash(), s.line())).collect();
+        assert_eq!(got, want);
+        assert!(IdSeen::new(1, u64::from(u32::MAX) + 1).is_none());
+        let mut dup = vec![
+            IdSeen::new(9, 2).unwrap(),
+            IdSeen::new(4, 3).unwrap(),
+            IdSeen::new(9, 5).unwrap(),
+            IdSeen::new(4, 4).unwrap(),
+        ];
+        assert_eq!(first_duplicate(&mut dup), Some((3, 4)));
+    }
+
     #[test]
     fn reach_filter_counts_rows_not_kept() {
         let w = Crs::wgs84();
@@ -1388,7 +1518,8 @@ mod tests {
             &spec(),
             &t,
             true,
-            &|_, _| false,
+            &|_, _| None,
+            Some(1 << 20),
             &mut Warnings::default(),
         )
         .unwrap();

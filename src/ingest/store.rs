@@ -18,6 +18,7 @@
 //! Choice [D]: 16 bits, because that bound is two to three orders below the ~1–3 mm noise of one
 //! InSAR epoch (insar-methods §6.1) while halving memory against `f32`.
 
+use crate::association::PointAssociation;
 use chrono::NaiveDate;
 
 /// Code of a missing epoch.
@@ -193,6 +194,9 @@ pub struct Dataset {
     pub(crate) ids: String,
     /// Every retained point's series codes, `epochs.len()` per point, in point order.
     pub(crate) codes: Vec<i16>,
+    /// Every retained point's association with the structures (owner or nearest ring, tie),
+    /// worked out by the reader with [`crate::association::SpatialIndex::summarise`].
+    pub association: Vec<PointAssociation>,
     /// Incidence angle per point, degrees.
     pub(crate) incidence_deg: PerPoint,
     /// Heading per point, degrees clockwise from north.
@@ -314,6 +318,8 @@ pub struct StoreBuilder {
     pub heading_deg: Vec<f32>,
     /// Per-point height (only when a column is mapped).
     pub height_m: Vec<f32>,
+    /// Per-point association.
+    pub association: Vec<PointAssociation>,
     /// Largest rounding error so far, mm.
     pub max_rounding_mm: f64,
 }
@@ -327,6 +333,8 @@ pub struct RowMeta<'r> {
     pub line: u64,
     /// Analysis-CRS position, m.
     pub xy: (f64, f64),
+    /// The point's association with the structures (worked out while reading).
+    pub association: PointAssociation,
     /// Coherence, when given.
     pub coherence: Option<f32>,
     /// Per-point incidence, when mapped.
@@ -371,6 +379,7 @@ impl StoreBuilder {
             coherence: meta.coherence.unwrap_or(f32::NAN),
             per_mm: q.per_mm,
         });
+        self.association.push(meta.association);
         if let Some(v) = meta.incidence_deg {
             self.incidence_deg.push(v);
         }
@@ -381,6 +390,19 @@ impl StoreBuilder {
             self.height_m.push(v);
         }
         Ok(())
+    }
+
+    /// Take room for `rows` more points of `n_epochs` values at once, as far as the allocator
+    /// grants it (none taken is fine: the arrays then grow as usual). Capped at 2³¹ codes.
+    pub fn reserve_rows(&mut self, rows: u64, n_epochs: usize) {
+        let rows = usize::try_from(rows).unwrap_or(usize::MAX);
+        let codes = rows.saturating_mul(n_epochs).min(1 << 31);
+        let rows = rows.min(codes / n_epochs.max(1) + 1);
+        if self.codes.try_reserve_exact(codes).is_err() {
+            return;
+        }
+        let _ = self.points.try_reserve_exact(rows);
+        let _ = self.association.try_reserve_exact(rows);
     }
 
     /// Append a later piece (its id offsets move by this builder's id text length).
@@ -397,6 +419,7 @@ impl StoreBuilder {
         self.points.append(&mut o.points);
         self.ids.push_str(&o.ids);
         self.codes.append(&mut o.codes);
+        self.association.append(&mut o.association);
         self.incidence_deg.append(&mut o.incidence_deg);
         self.heading_deg.append(&mut o.heading_deg);
         self.height_m.append(&mut o.height_m);
@@ -465,6 +488,7 @@ mod tests {
             id,
             line,
             xy: (1.0, 2.0),
+            association: PointAssociation::default(),
             coherence: Some(0.9),
             incidence_deg: None,
             heading_deg: None,
@@ -484,6 +508,7 @@ mod tests {
             points: a.points,
             ids: a.ids,
             codes: a.codes,
+            association: a.association,
             incidence_deg: PerPoint::Constant(38.0),
             heading_deg: PerPoint::Constant(-12.0),
             height_m: a.height_m,
