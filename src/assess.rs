@@ -76,15 +76,21 @@ pub struct PointStats {
 impl PointStats {
     /// Statistics of one point over the window.
     ///
-    /// `idx` are the window's epoch indices and `t_yr[k]` the time of epoch `idx[k]` in years from
-    /// the window start (see [`window_times`]).
+    /// `idx` are the window's epoch indices and `times` the time of epoch `idx[k]` from the window
+    /// start (see [`window_times`]).
     ///
     /// One pass over the series without allocating: shifted sums give the OLS velocity and the
     /// residual scatter (the same quantities as [`ols_velocity_mm_per_yr`] and
     /// [`period_displacement`], to rounding; tested against them), the first and last three valid
     /// values give the period displacement, and a step larger than λ/4 between consecutive valid
     /// epochs sends the series to the full jump scan ([`crate::series::jumps::has_jump_candidate`]).
-    pub fn of(p: SeriesRef, idx: &[usize], t_yr: &[f64], wavelength_mm: f64) -> Self {
+    pub fn of(p: SeriesRef, idx: &[usize], times: &WindowTimes, wavelength_mm: f64) -> Self {
+        if let SeriesRef::Codes { codes, per_mm } = p {
+            if idx.len() <= 1_000_000 && times.days_in_range {
+                return Self::of_codes(codes, per_mm, idx, times, wavelength_mm);
+            }
+        }
+        let t_yr = &times.years;
         let quarter = wavelength_mm / 4.0;
         // On stored codes the sums run in code units (no per-value division) and are scaled once.
         let (codes, unit_mm) = match p {
@@ -108,7 +114,7 @@ impl PointStats {
         let (mut t0, mut v0) = (0.0, 0.0);
         let mut prev = f64::NAN;
         let mut big_step = false;
-        for (&i, &ti) in idx.iter().zip(t_yr) {
+        for (&i, &ti) in idx.iter().zip(t_yr.iter()) {
             let Some(v) = value(i) else {
                 continue;
             };
@@ -174,6 +180,123 @@ impl PointStats {
             jump_candidate,
         }
     }
+    /// [`Self::of`] on stored 16-bit codes: the same statistics with every sum in exact integer
+    /// arithmetic (codes, and days from the window start), scaled to mm and years once at the end.
+    /// The OLS slope is Sxy/Sxx (Sxx = nΣt² − (Σt)², Sxy = nΣtv − ΣtΣv, all exact), the residual
+    /// scatter s² = (Syy − Sxy²/Sxx)/(n(n − 2)); tested against the general path.
+    fn of_codes(
+        codes: &[i16],
+        per_mm: f32,
+        idx: &[usize],
+        times: &WindowTimes,
+        wavelength_mm: f64,
+    ) -> Self {
+        use crate::ingest::store::MISSING;
+        let days = &times.days;
+        let unit_mm = 1.0 / f64::from(per_mm);
+        // |Δcode| > λ/4 in code units, for integer steps: |Δcode| > ⌊λ/4 / unit⌋.
+        let quarter = (wavelength_mm / 4.0 / unit_mm).floor().clamp(0.0, 1e15) as i64;
+        // Sums of days and codes need no shift: every term is an exact integer, and with
+        // |code| ≤ 32 767, |days| ≤ 10⁶ and ≤ 10⁶ epochs (else the caller takes the general path)
+        // every sum stays inside i64.
+        let first_valid = idx
+            .iter()
+            .map(|&i| codes[i])
+            .find(|&c| c != MISSING)
+            .map_or(0, i64::from);
+        let mut sums = CodeSums {
+            prev: first_valid,
+            ..CodeSums::default()
+        };
+        match (idx.first(), idx.last()) {
+            // A contiguous window (the usual case): one slice, no index lookups.
+            (Some(&a), Some(&b)) if b + 1 - a == idx.len() && b < codes.len() => {
+                let w = &codes[a..=b];
+                if w.contains(&MISSING) {
+                    for (&c, &d) in w.iter().zip(days) {
+                        sums.add(c, d, quarter);
+                    }
+                } else {
+                    // No gap: the day sums are the window's own, the code sums vectorise.
+                    sums.n = w.len() as i64;
+                    sums.sd = times.sum_days;
+                    sums.sdd = times.sum_days_sq;
+                    sums.sv = w.iter().map(|&c| i64::from(c)).sum();
+                    sums.svv = w.iter().map(|&c| i64::from(c) * i64::from(c)).sum();
+                    sums.sdv = w.iter().zip(days).map(|(&c, &d)| i64::from(c) * d).sum();
+                    let max_step = w
+                        .iter()
+                        .zip(&w[1..])
+                        .map(|(&p, &c)| (i32::from(c) - i32::from(p)).unsigned_abs())
+                        .max()
+                        .unwrap_or(0);
+                    sums.big_step = i64::from(max_step) > quarter;
+                }
+            }
+            _ => {
+                for (&i, &d) in idx.iter().zip(days) {
+                    sums.add(codes[i], d, quarter);
+                }
+            }
+        }
+        let CodeSums {
+            n,
+            sd,
+            sdd,
+            sv,
+            svv,
+            sdv,
+            big_step,
+            ..
+        } = sums;
+        let valid = |i: &usize| codes[*i] != MISSING;
+        let (nn, sd, sv) = (i128::from(n), i128::from(sd), i128::from(sv));
+        let sxx = nn * i128::from(sdd) - sd * sd;
+        let sxy = nn * i128::from(sdv) - sd * sv;
+        let syy = nn * i128::from(svv) - sv * sv;
+        let slope_per_day = (n >= 3 && sxx > 0).then(|| sxy as f64 / sxx as f64);
+        let period = match slope_per_day {
+            Some(_) if n >= 6 => {
+                let rss_n = (syy as f64 - (sxy as f64) * (sxy as f64) / sxx as f64).max(0.0);
+                let s = (rss_n / (n as f64 * (n as f64 - 2.0))).sqrt();
+                let first: i64 = idx
+                    .iter()
+                    .filter(|i| valid(i))
+                    .take(3)
+                    .map(|&i| i64::from(codes[i]))
+                    .sum();
+                let last: i64 = idx
+                    .iter()
+                    .rev()
+                    .filter(|i| valid(i))
+                    .take(3)
+                    .map(|&i| i64::from(codes[i]))
+                    .sum();
+                Some((
+                    (last - first) as f64 / 3.0 * unit_mm,
+                    s * (2.0f64 / 3.0).sqrt() * unit_mm,
+                ))
+            }
+            _ => None,
+        };
+        let velocity = slope_per_day.map(|b| b * 365.25 * unit_mm);
+        let jump_candidate = big_step && {
+            let v: Vec<f64> = idx
+                .iter()
+                .filter(|i| valid(i))
+                .map(|&i| f64::from(codes[i]) * unit_mm)
+                .collect();
+            crate::series::jumps::has_jump_candidate(&v, wavelength_mm)
+        };
+        PointStats {
+            valid_epochs: u16::try_from(n).unwrap_or(u16::MAX),
+            los_velocity_mm_per_yr: velocity.map_or(f32::NAN, |x| x as f32),
+            period_mm: period.map_or(f32::NAN, |x: (f64, f64)| x.0 as f32),
+            period_sigma_mm: period.map_or(f32::NAN, |x| x.1 as f32),
+            jump_candidate,
+        }
+    }
+
     /// Valid (finite) epochs inside the window.
     pub fn valid_epochs(&self) -> usize {
         self.valid_epochs as usize
@@ -191,6 +314,37 @@ impl PointStats {
     /// The series has an unwrapping-jump candidate (series::jumps).
     pub fn jump_candidate(&self) -> bool {
         self.jump_candidate
+    }
+}
+
+/// Running integer sums over one series' valid codes (see `PointStats::of_codes`).
+#[derive(Default)]
+struct CodeSums {
+    n: i64,
+    sd: i64,
+    sdd: i64,
+    sv: i64,
+    svv: i64,
+    sdv: i64,
+    prev: i64,
+    big_step: bool,
+}
+
+impl CodeSums {
+    #[inline(always)]
+    fn add(&mut self, c: i16, d: i64, quarter: i64) {
+        if c == crate::ingest::store::MISSING {
+            return;
+        }
+        let c = i64::from(c);
+        self.n += 1;
+        self.sd += d;
+        self.sdd += d * d;
+        self.sv += c;
+        self.svv += c * c;
+        self.sdv += d * c;
+        self.big_step |= (c - self.prev).abs() > quarter;
+        self.prev = c;
     }
 }
 
@@ -242,11 +396,48 @@ pub fn ols_velocity_mm_per_yr(t_yr: &[f64], v_mm: &[f64]) -> Option<f64> {
     Some(sxy / sxx)
 }
 
-/// Time of each window epoch `idx[k]` in years (365.25 days) from the window start.
-pub fn window_times(epochs: &[NaiveDate], idx: &[usize], w: &Window) -> Vec<f64> {
-    idx.iter()
-        .map(|&i| (epochs[i] - w.start).num_days() as f64 / 365.25)
-        .collect()
+/// Time of each window epoch from the window start, in whole days and in years of 365.25 days.
+#[derive(Debug, Clone, PartialEq)]
+pub struct WindowTimes {
+    /// Days from the window start, per window epoch.
+    pub days: Vec<i64>,
+    /// The same in years (days / 365.25).
+    pub years: Vec<f64>,
+    /// Every |day| ≤ 10⁶ (the integer statistics' range).
+    pub days_in_range: bool,
+    /// Σ days and Σ days² over the window (for gap-free series).
+    pub sum_days: i64,
+    /// See `sum_days`.
+    pub sum_days_sq: i64,
+}
+
+impl WindowTimes {
+    /// From days after the window start.
+    pub fn from_days(days: Vec<i64>) -> Self {
+        let years = days.iter().map(|&d| d as f64 / 365.25).collect();
+        let days_in_range = days.iter().all(|d| d.unsigned_abs() <= 1_000_000);
+        let (sum_days, sum_days_sq) = if days_in_range {
+            (days.iter().sum(), days.iter().map(|d| d * d).sum())
+        } else {
+            (0, 0)
+        };
+        WindowTimes {
+            days,
+            years,
+            days_in_range,
+            sum_days,
+            sum_days_sq,
+        }
+    }
+}
+
+/// Time of each window epoch `idx[k]` from the window start (see [`WindowTimes`]).
+pub fn window_times(epochs: &[NaiveDate], idx: &[usize], w: &Window) -> WindowTimes {
+    WindowTimes::from_days(
+        idx.iter()
+            .map(|&i| (epochs[i] - w.start).num_days())
+            .collect(),
+    )
 }
 
 /// Context shared by all structures of a run.
@@ -950,7 +1141,8 @@ mod tests {
     fn one_pass_point_statistics_match_the_reference_functions() {
         let lambda = crate::series::jumps::wavelength_mm(crate::series::jumps::C_BAND_FREQUENCY_HZ);
         let n = 120;
-        let t_yr: Vec<f64> = (0..n).map(|k| k as f64 * 12.0 / 365.25).collect();
+        let times = WindowTimes::from_days((0..n as i64).map(|k| k * 12).collect());
+        let t_yr = times.years.clone();
         let idx: Vec<usize> = (0..n).collect();
         for case in 0..6 {
             let v: Vec<f32> = (0..n)
@@ -968,7 +1160,7 @@ mod tests {
                     x as f32
                 })
                 .collect();
-            let st = PointStats::of(SeriesRef::floats(&v), &idx, &t_yr, lambda);
+            let st = PointStats::of(SeriesRef::floats(&v), &idx, &times, lambda);
             let (t, vv): (Vec<f64>, Vec<f64>) = idx
                 .iter()
                 .filter(|&&i| v[i].is_finite())
@@ -992,12 +1184,85 @@ mod tests {
     #[test]
     fn too_few_epochs_give_no_velocity_or_period() {
         let v = [0.0f32, 1.0, f32::NAN, 2.0];
-        let t = [0.0, 0.1, 0.2, 0.3];
+        let t = WindowTimes::from_days(vec![0, 37, 73, 110]);
         let st = PointStats::of(SeriesRef::floats(&v), &[0, 1, 2, 3], &t, 55.0);
         assert_eq!(st.valid_epochs(), 3);
         assert!(st.los_velocity_mm_per_yr().is_some());
         assert!(st.period().is_none());
-        let st = PointStats::of(SeriesRef::floats(&v[..2]), &[0, 1], &t[..2], 55.0);
+        let t2 = WindowTimes::from_days(vec![0, 37]);
+        let st = PointStats::of(SeriesRef::floats(&v[..2]), &[0, 1], &t2, 55.0);
         assert!(st.los_velocity_mm_per_yr().is_none());
+        // The integer path on stored codes draws the same lines.
+        let mut codes = Vec::new();
+        let q =
+            crate::ingest::store::quantise(&[0.0, 1.0, f64::NAN, 2.0], Some(0), 2.0, &mut codes);
+        let c = SeriesRef::new(&codes, q.per_mm);
+        let st = PointStats::of(c, &[0, 1, 2, 3], &t, 55.0);
+        assert_eq!(st.valid_epochs(), 3);
+        assert!(st.los_velocity_mm_per_yr().is_some());
+        assert!(st.period().is_none());
+        let st = PointStats::of(SeriesRef::new(&codes[..2], q.per_mm), &[0, 1], &t2, 55.0);
+        assert!(st.los_velocity_mm_per_yr().is_none());
+    }
+
+    /// The integer path on stored codes gives the statistics of the general path on the decoded
+    /// values: decimal-exact and scaled stores, gaps, trends, a sub-window, an unwrapping jump.
+    #[test]
+    fn code_statistics_equal_the_general_path() {
+        let lambda = crate::series::jumps::wavelength_mm(crate::series::jumps::C_BAND_FREQUENCY_HZ);
+        let n = 150usize;
+        let all_days: Vec<i64> = (0..n as i64).map(|k| 5 + k * 12 + (k % 3)).collect();
+        for case in 0..8 {
+            let mm: Vec<f64> = (0..n)
+                .map(|k| {
+                    if (k * 5 + case) % 13 == 0 {
+                        return f64::NAN;
+                    }
+                    let t = all_days[k] as f64 / 365.25;
+                    let mut x = -6.5 * t * case as f64
+                        + 2.0 * (std::f64::consts::TAU * t).cos()
+                        + ((k * 31 % 19) as f64 - 9.0) * 0.37;
+                    if case == 7 {
+                        // A plain seasonal series with one half-wavelength step.
+                        x = 3.0 * (std::f64::consts::TAU * t).sin()
+                            + ((k * 37 % 17) as f64 - 8.0) * 0.3
+                            - if k >= 60 { lambda / 2.0 } else { 0.0 };
+                    }
+                    if case % 2 == 0 {
+                        (x * 100.0).round() / 100.0
+                    } else {
+                        x
+                    }
+                })
+                .collect();
+            let max = mm
+                .iter()
+                .filter(|v| v.is_finite())
+                .fold(0.0f64, |a, v| a.max(v.abs()));
+            let mut codes = Vec::new();
+            let decimals = (case % 2 == 0).then_some(2);
+            let q = crate::ingest::store::quantise(&mm, decimals, max, &mut codes);
+            let stored = SeriesRef::new(&codes, q.per_mm);
+            let decoded = stored.to_vec();
+            // The window: epochs 10..140, days from its start.
+            let idx: Vec<usize> = (10..140).collect();
+            let times = WindowTimes::from_days(idx.iter().map(|&i| all_days[i] - 100).collect());
+            let a = PointStats::of(stored, &idx, &times, lambda);
+            let b = PointStats::of(SeriesRef::floats(&decoded), &idx, &times, lambda);
+            assert_eq!(a.valid_epochs(), b.valid_epochs(), "case {case}");
+            let (va, vb) = (
+                a.los_velocity_mm_per_yr().unwrap(),
+                b.los_velocity_mm_per_yr().unwrap(),
+            );
+            assert!(
+                (va - vb).abs() < 1e-5 * vb.abs().max(1.0),
+                "case {case}: {va} vs {vb}"
+            );
+            let ((da, sa), (db, sb)) = (a.period().unwrap(), b.period().unwrap());
+            assert!((da - db).abs() < 1e-5 * db.abs().max(1.0), "case {case}");
+            assert!((sa - sb).abs() < 1e-5 * sb.max(1.0), "case {case}");
+            assert_eq!(a.jump_candidate(), b.jump_candidate(), "case {case}");
+            assert_eq!(a.jump_candidate(), case == 7, "case {case}");
+        }
     }
 }

@@ -219,11 +219,11 @@ pub fn run_context<'a>(
         .zip(&window_idx)
         .zip(&pf.datasets)
         .map(|((d, idx), spec)| {
-            let t_yr = assess::window_times(&d.epochs, idx, &window);
+            let times = assess::window_times(&d.epochs, idx, &window);
             (0..d.len())
                 .into_par_iter()
                 .map(|i| {
-                    assess::PointStats::of(d.point(i).series(), idx, &t_yr, spec.wavelength_mm)
+                    assess::PointStats::of(d.point(i).series(), idx, &times, spec.wavelength_mm)
                 })
                 .collect()
         })

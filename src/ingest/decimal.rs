@@ -1,7 +1,8 @@
 //! Fast exact parsing of plain decimal numbers (`-12.34`), the form nearly every points file uses.
 //!
-//! Owns one function, [`parse_plain`], used by the points reader before the general parser
-//! (`fast-float2`): it accepts only `[+-]?digits[.digits]` with at most 15 significant digits and
+//! Owns the grammar of plain numbers, [`scan`], which the points reader's fast path reads every
+//! epoch field with, and [`parse_plain`], used before the general parser (`fast-float2`): it
+//! accepts only `[+-]?digits[.digits]` with at most 15 significant digits and
 //! returns `None` for anything else (exponents, whitespace, `NaN`, more digits), which the caller
 //! then hands to the general parser. Within that form the result is the correctly rounded `f64`:
 //! the digits form an integer m < 10¹⁵ < 2⁵³ and the value is m / 10ᵏ with k ≤ 15, a quotient of
@@ -25,39 +26,81 @@ pub fn parse_plain(b: &[u8]) -> Option<f64> {
 /// (`-1.250` → 2), which the point store uses to keep decimal values exact.
 #[inline]
 pub fn parse_plain_decimals(b: &[u8]) -> Option<(f64, u32)> {
-    let (neg, digits) = match b.first()? {
-        b'-' => (true, &b[1..]),
-        b'+' => (false, &b[1..]),
-        _ => (false, b),
-    };
-    if digits.is_empty() || digits.len() > 16 {
-        return None;
+    let s = scan(b, 0).filter(|s| s.end == b.len())?;
+    Some((s.value(), s.written))
+}
+
+/// One plain decimal `[+-]?digits[.digits]` (1 to 15 digits) read from a field.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Scanned {
+    /// A leading `-`.
+    pub negative: bool,
+    /// Every digit written, as one integer (`-12.50` → 1250).
+    pub mantissa: u64,
+    /// Digits after the point (`-12.50` → 2).
+    pub after_point: u32,
+    /// Decimals written, trailing zeros not counted (`-12.50` → 1).
+    pub written: u32,
+    /// Index of the first byte after the number.
+    pub end: usize,
+}
+
+impl Scanned {
+    /// The correctly rounded value (see the module doc).
+    #[inline]
+    pub fn value(&self) -> f64 {
+        let v = self.mantissa as f64 / POW10[self.after_point as usize];
+        if self.negative { -v } else { v }
     }
+}
+
+/// Read the plain decimal that starts at `b[pos]` and ends at the first byte that cannot continue
+/// it (`end`, which the caller checks is a delimiter or the end of the field); `None` when no
+/// plain decimal starts there (no digit, more than 15 digits). The one grammar of plain numbers:
+/// [`parse_plain_decimals`] and the points reader's fast path both read through it.
+#[inline(always)]
+pub fn scan(b: &[u8], pos: usize) -> Option<Scanned> {
+    let first = *b.get(pos)?;
+    let negative = first == b'-';
+    let start = pos + usize::from(negative || first == b'+');
+    scan_bytes(b, start, negative)
+}
+
+/// [`scan`] after the sign.
+#[inline(always)]
+fn scan_bytes(b: &[u8], start: usize, negative: bool) -> Option<Scanned> {
+    let n = b.len();
+    let mut pos = start;
     let mut m: u64 = 0;
-    let mut n_digits = 0usize;
-    let mut frac: Option<usize> = None;
-    // Position (in `digits`) of the last non-zero digit after the point.
-    let mut last_nonzero_frac = 0usize;
-    for (i, &c) in digits.iter().enumerate() {
-        match c {
-            b'0'..=b'9' => {
-                m = m * 10 + u64::from(c - b'0');
-                n_digits += 1;
-                if frac.is_some() && c != b'0' {
-                    last_nonzero_frac = i;
-                }
-            }
-            b'.' if frac.is_none() => frac = Some(i),
-            _ => return None,
-        }
+    while pos < n && b[pos].is_ascii_digit() && pos - start < 16 {
+        m = m * 10 + u64::from(b[pos] - b'0');
+        pos += 1;
     }
-    if n_digits == 0 || n_digits > 15 {
+    let mut digits = pos - start;
+    let (mut after_point, mut written) = (0u32, 0u32);
+    if pos < n && b[pos] == b'.' {
+        pos += 1;
+        let frac_start = pos;
+        while pos < n && b[pos].is_ascii_digit() && digits + (pos - frac_start) < 16 {
+            m = m * 10 + u64::from(b[pos] - b'0');
+            if b[pos] != b'0' {
+                written = (pos - frac_start + 1) as u32;
+            }
+            pos += 1;
+        }
+        after_point = (pos - frac_start) as u32;
+        digits += pos - frac_start;
+    }
+    if digits == 0 || digits > 15 {
         return None;
     }
-    let k = frac.map_or(0, |p| digits.len() - p - 1);
-    let written = frac.map_or(0, |p| last_nonzero_frac.saturating_sub(p)) as u32;
-    let v = m as f64 / POW10[k];
-    Some((if neg { -v } else { v }, written))
+    Some(Scanned {
+        negative,
+        mantissa: m,
+        after_point,
+        written,
+        end: pos,
+    })
 }
 
 #[cfg(test)]

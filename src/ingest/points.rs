@@ -122,7 +122,7 @@ pub fn read_points(
 }
 
 /// Bytes read per block of the points body (each block is parsed in parallel).
-pub const BLOCK_BYTES: usize = 2 << 20;
+pub const BLOCK_BYTES: usize = 4 << 20;
 
 /// Read the next block of whole lines: `carry` (the partial line left by the previous block) and
 /// then at least [`BLOCK_BYTES`] more, cut after the last line end; the part after it becomes the
@@ -271,6 +271,8 @@ struct Acc {
     store: StoreBuilder,
     /// Values of the row being parsed, mm (reused).
     scratch: Vec<f64>,
+    /// Mantissas and digit counts of the row being parsed (fast path, reused).
+    ints: Vec<i64>,
     /// Id hash and line of every data row whose id was read, in file order.
     ids: Vec<IdSeen>,
     rows: u64,
@@ -341,12 +343,40 @@ impl<R: std::io::Read> std::io::Read for CountingReader<R> {
 /// What the fast path learnt of a row's epoch values (see `RowParser::fast_fields`).
 #[derive(Debug, Clone, Copy)]
 struct FastRow {
-    /// Largest number of decimals written (before the unit conversion).
+    /// Largest number of decimals written (before the unit conversion; trailing zeros not
+    /// counted).
     decimals: u32,
     /// Largest |value|, mm.
     max_abs_mm: f64,
     /// Values present.
     n_values: u64,
+    /// `Some(k)` when every value was written with exactly k digits after the point: the
+    /// mantissas are then in `ints` (see [`Self::code`]); `None`: the values (mm) are in
+    /// `values`.
+    uniform_digits: Option<u32>,
+}
+
+/// A missing epoch in the fast path's mantissa list.
+const MISSING_INT: i64 = i64::MIN;
+
+/// 10⁻ᵏ for the k digits after the point the fast path accepts.
+const INV_POW10: [f64; 16] = [
+    1e0, 1e-1, 1e-2, 1e-3, 1e-4, 1e-5, 1e-6, 1e-7, 1e-8, 1e-9, 1e-10, 1e-11, 1e-12, 1e-13, 1e-14,
+    1e-15,
+];
+
+impl FastRow {
+    /// The exact code of one entry of `ints` for codes-per-mm 10^`e_shift` relative to the
+    /// written digits: `mantissa · sign · 10^e` (e ≥ 0) or `/ 10^−e` (e < 0, exact: the digits
+    /// dropped are trailing zeros).
+    #[inline(always)]
+    fn code(entry: i64, mul: i64, div: i64) -> i16 {
+        if entry == MISSING_INT {
+            super::store::MISSING
+        } else {
+            ((entry >> 5) * mul / div) as i16
+        }
+    }
 }
 
 /// How a piece ended.
@@ -411,7 +441,7 @@ impl RowParser<'_> {
                     },
                 };
             }
-            let pre = self.fast_fields(row, &mut ranges, &mut acc.scratch);
+            let pre = self.fast_fields(row, &mut ranges, &mut acc.ints, &mut acc.scratch);
             if pre.is_none() {
                 ranges.clear();
                 let mut s = 0usize;
@@ -451,26 +481,22 @@ impl RowParser<'_> {
         &self,
         row: &[u8],
         ranges: &mut Vec<std::ops::Range<usize>>,
+        ints: &mut Vec<i64>,
         values: &mut Vec<f64>,
     ) -> Option<FastRow> {
         // Values are formed as m · 10⁻ᵏ · factor with a multiplication (within an ulp or two of
         // the correctly rounded value): only their 16-bit codes are kept (see `store`), and for a
         // decimal-exact row the code round(v · 10ᵈ) is the exact integer either way.
-        const INV_POW10: [f64; 16] = [
-            1e0, 1e-1, 1e-2, 1e-3, 1e-4, 1e-5, 1e-6, 1e-7, 1e-8, 1e-9, 1e-10, 1e-11, 1e-12, 1e-13,
-            1e-14, 1e-15,
-        ];
         let delim = self.delimiter;
         if ranges.len() != self.n_cols {
             ranges.clear();
             ranges.resize(self.n_cols, 0..0);
         }
-        values.clear();
-        let mut out = FastRow {
-            decimals: 0,
-            max_abs_mm: 0.0,
-            n_values: 0,
-        };
+        ints.clear();
+        let mut decimals = 0u32;
+        let mut n_values = 0u64;
+        let (mut k_min, mut k_max) = (u32::MAX, 0u32);
+        let mut max_m = 0u64;
         let mut pos = 0usize;
         let n = row.len();
         for (col, &is_epoch) in self.is_epoch.iter().enumerate() {
@@ -488,52 +514,58 @@ impl RowParser<'_> {
                 continue;
             }
             if pos == n || row[pos] == delim {
-                values.push(f64::NAN); // empty field: a missing epoch
+                ints.push(MISSING_INT); // empty field: a missing epoch
                 continue;
             }
-            let neg = row[pos] == b'-';
-            if neg || row[pos] == b'+' {
-                pos += 1;
-            }
-            let int_start = pos;
-            let mut m: i64 = 0;
-            while pos < n && row[pos].is_ascii_digit() {
-                m = m.wrapping_mul(10).wrapping_add(i64::from(row[pos] - b'0'));
-                pos += 1;
-            }
-            let mut digits = pos - int_start;
-            let mut k = 0usize;
-            if pos < n && row[pos] == b'.' {
-                pos += 1;
-                let frac_start = pos;
-                while pos < n && row[pos].is_ascii_digit() {
-                    m = m.wrapping_mul(10).wrapping_add(i64::from(row[pos] - b'0'));
-                    pos += 1;
-                }
-                k = pos - frac_start;
-                digits += k;
-                // Decimals written, trailing zeros not counted.
-                let mut written = k;
-                while written > 0 && row[frac_start + written - 1] == b'0' {
-                    written -= 1;
-                }
-                out.decimals = out.decimals.max(written as u32);
-            }
-            if digits == 0 || digits > 15 || (pos < n && row[pos] != delim) {
+            let sc = super::decimal::scan(row, pos)?;
+            pos = sc.end;
+            if pos < n && row[pos] != delim {
                 return None;
             }
-            let v = (if neg { -m } else { m }) as f64 * (INV_POW10[k] * self.factor);
+            decimals = decimals.max(sc.written);
+            let (m, k, neg) = (sc.mantissa as i64, sc.after_point, sc.negative);
+            max_m = max_m.max(m as u64);
+            k_min = k_min.min(k);
+            k_max = k_max.max(k);
+            n_values += 1;
+            ints.push(((if neg { -m } else { m }) << 5) | i64::from(k));
+        }
+        if pos != n {
+            return None;
+        }
+        let mut out = FastRow {
+            decimals,
+            max_abs_mm: 0.0,
+            n_values,
+            uniform_digits: None,
+        };
+        if k_min >= k_max {
+            // One digit count for the whole row (or no value at all).
+            let k = if n_values == 0 { 0 } else { k_max };
+            // |m · (10⁻ᵏ · factor)|, the same float the per-value form gives for the largest m.
+            let a = (max_m as f64 * (INV_POW10[k as usize] * self.factor)).abs();
+            if a > MAX_ABS_DISPLACEMENT_MM {
+                return None;
+            }
+            out.max_abs_mm = a;
+            out.uniform_digits = Some(k);
+            return Some(out);
+        }
+        values.clear();
+        for &e in ints.iter() {
+            if e == MISSING_INT {
+                values.push(f64::NAN);
+                continue;
+            }
+            let v = (e >> 5) as f64 * (INV_POW10[(e & 31) as usize] * self.factor);
             let a = v.abs();
             if a > MAX_ABS_DISPLACEMENT_MM {
                 return None;
             }
-            if a > out.max_abs_mm {
-                out.max_abs_mm = a;
-            }
-            out.n_values += 1;
+            out.max_abs_mm = out.max_abs_mm.max(a);
             values.push(v);
         }
-        (pos == n).then_some(out)
+        Some(out)
     }
 
     /// The rest of the file from `first_line` on, through the general CSV reader.
@@ -843,21 +875,60 @@ impl RowParser<'_> {
             return Ok(());
         };
         let id = String::from_utf8_lossy(id_raw);
-        let pushed = acc.store.push(
-            RowMeta {
-                id: &id,
-                line,
-                xy: (ax, ay),
-                association,
-                coherence,
-                incidence_deg: self.inc_col.map(|_| incidence_deg as f32),
-                heading_deg: self.head_col.map(|_| heading_deg as f32),
-                height_m: self.h_col.map(|_| height_m.unwrap_or(f32::NAN)),
-            },
-            &values,
-            decimals,
-            row_max_abs_mm,
-        );
+        let meta = RowMeta {
+            id: &id,
+            line,
+            xy: (ax, ay),
+            association,
+            coherence,
+            incidence_deg: self.inc_col.map(|_| incidence_deg as f32),
+            heading_deg: self.head_col.map(|_| heading_deg as f32),
+            height_m: self.h_col.map(|_| height_m.unwrap_or(f32::NAN)),
+        };
+        let pushed = match pre.and_then(|fr| fr.uniform_digits) {
+            Some(k) => {
+                // Mantissas with k digits after the point each: the exact codes straight from
+                // them when the row is decimal-exact (the codes `quantise` would give), else the
+                // values for the scaled store.
+                let d = decimals.unwrap_or(u32::MAX);
+                match super::store::exact_codes_per_mm(d, row_max_abs_mm) {
+                    Some(per_mm) => {
+                        // code = m · sign · 10^(shift + d − k).
+                        let e = i64::from(self.decimal_shift) + i64::from(d) - i64::from(k);
+                        let p = 10i64.pow(e.unsigned_abs() as u32);
+                        let sign = if self.factor < 0.0 { -1 } else { 1 };
+                        let (mul, div) = if e >= 0 { (sign * p, 1) } else { (sign, p) };
+                        let ints = &acc.ints;
+                        if div == 1 {
+                            acc.store.push_exact(
+                                meta,
+                                ints.iter().map(|&v| FastRow::code(v, mul, 1)),
+                                per_mm as f32,
+                            )
+                        } else {
+                            acc.store.push_exact(
+                                meta,
+                                ints.iter().map(|&v| FastRow::code(v, mul, div)),
+                                per_mm as f32,
+                            )
+                        }
+                    }
+                    None => {
+                        values.clear();
+                        let step = INV_POW10[k as usize] * self.factor;
+                        values.extend(acc.ints.iter().map(|&v| {
+                            if v == MISSING_INT {
+                                f64::NAN
+                            } else {
+                                (v >> 5) as f64 * step
+                            }
+                        }));
+                        acc.store.push(meta, &values, decimals, row_max_abs_mm)
+                    }
+                }
+            }
+            None => acc.store.push(meta, &values, decimals, row_max_abs_mm),
+        };
         acc.scratch = values;
         pushed.map_err(|e| InputError::new(file, loc(), e.0, "split the points file"))
     }
@@ -1565,6 +1636,75 @@ mod tests {
         let text = "point_id,lon,lat,2023-01-01\np1,9,45,1\n\"p1\",9,45,1\n";
         let e = read(text, &spec()).unwrap_err();
         assert_eq!(e.message, "duplicate point id `p1` (first on line 2)");
+    }
+
+    /// The fast path forms codes straight from the written digits; the general path (here: every
+    /// row after a quoted one) goes through floats and `quantise`. Both store the same codes at the
+    /// same codes-per-mm: mm and m, both LOS signs, trailing zeros, mixed digit counts, gaps,
+    /// values at the 16-bit limit and values that need the scaled store.
+    #[test]
+    fn fast_codes_equal_the_general_path() {
+        let rows = [
+            "1.25,-0.50,,3.75",
+            "0.001,0.0100,-0.1000,0",
+            "327.67,-327.67,0.01,",
+            "3276.8,1,2,3",
+            "12.5,3.25,-7,0.125",
+            "0.00001,0.00002,0.5,1",
+            "1,2,3,4",
+            ",,,",
+            "-0,0.0,+2.50,-.5",
+            "1.20,3.40,-5.60,7.00",
+        ];
+        // In metres: the same kinds of rows within the plausibility limit (10 m).
+        let rows_m = [
+            "0.00125,-0.00050,,0.00375",
+            "0.001,0.0100,-0.1000,0",
+            "0.32767,-0.32767,0.00001,",
+            "3.2768,0.001,0.002,0.003",
+            "0.0125,0.00325,-0.007,0.000125",
+            "0.0000001,0.0000002,0.5,1",
+            "1,2,3,4",
+            ",,,",
+            "-0,0.0,+2.50,-.5",
+            "0.00120,0.00340,-0.00560,0.00700",
+        ];
+        let header = "point_id,lon,lat,2023-01-01,2023-01-13,2023-01-25,2023-02-06\n";
+        for (unit, rows) in [(Unit::Mm, rows), (Unit::M, rows_m)] {
+            for positive in [LosSign::Towards, LosSign::Away] {
+                let mut s = spec();
+                s.unit = unit;
+                s.positive = positive;
+                let mut fast = String::from(header);
+                let mut general = format!("{header}\"q\",9,45,0,0,0,0\n");
+                for (i, r) in rows.iter().enumerate() {
+                    fast.push_str(&format!("r{i},9,45,{r}\n"));
+                    general.push_str(&format!("r{i},9,45,{r}\n"));
+                }
+                let (a, b) = (read(&fast, &s).unwrap(), read(&general, &s).unwrap());
+                assert_eq!(a.points.len() + 1, b.points.len());
+                assert_eq!(a.points.len(), rows.len());
+                for (i, pa) in a.iter_points().enumerate() {
+                    let pb = b.point(i + 1);
+                    match (pa.series(), pb.series()) {
+                        (
+                            SeriesRef::Codes {
+                                codes: ca,
+                                per_mm: ma,
+                            },
+                            SeriesRef::Codes {
+                                codes: cb,
+                                per_mm: mb,
+                            },
+                        ) => {
+                            assert_eq!((ca, ma), (cb, mb), "{unit:?} {positive:?} row {i}")
+                        }
+                        _ => panic!("the store keeps codes"),
+                    }
+                }
+                assert_eq!(a.max_rounding_mm, b.max_rounding_mm);
+            }
+        }
     }
 
     #[test]

@@ -77,10 +77,7 @@ pub fn quantise(
     max_abs_mm: f64,
     out: &mut Vec<i16>,
 ) -> Quantised {
-    let exact = decimals
-        .filter(|d| *d <= MAX_DECIMALS)
-        .map(|d| 10f64.powi(d as i32))
-        .filter(|s| max_abs_mm * s <= MAX_CODE);
+    let exact = decimals.and_then(|d| exact_codes_per_mm(d, max_abs_mm));
     let (per_mm, rounding_mm) = match exact {
         Some(s) => (s, 0.0),
         None if max_abs_mm > 0.0 => {
@@ -102,6 +99,16 @@ pub fn quantise(
         per_mm: per_mm as f32,
         rounding_mm,
     }
+}
+
+/// The decimal-exact codes-per-mm [`quantise`] chooses for a row written with `decimals`
+/// decimals (after the unit conversion) and largest |value| `max_abs_mm`: `Some(10^decimals)`
+/// when that store is exact, `None` when the row needs the scaled store.
+pub fn exact_codes_per_mm(decimals: u32, max_abs_mm: f64) -> Option<f64> {
+    Some(decimals)
+        .filter(|d| *d <= MAX_DECIMALS)
+        .map(|d| 10f64.powi(d as i32))
+        .filter(|s| max_abs_mm * s <= MAX_CODE)
 }
 
 /// Decode one code, mm (NaN for a missing epoch).
@@ -358,6 +365,31 @@ impl StoreBuilder {
         decimals: Option<u32>,
         max_abs_mm: f64,
     ) -> Result<(), StoreFull> {
+        let (line, id_at) = self.check_room(&meta)?;
+        let q = quantise(values_mm, decimals, max_abs_mm, &mut self.codes);
+        self.push_record(meta, line, id_at, q);
+        Ok(())
+    }
+
+    /// Push a point whose codes the reader formed itself from the written decimals (the values
+    /// `codes / per_mm` exactly; see [`exact_codes_per_mm`]).
+    pub fn push_exact(
+        &mut self,
+        meta: RowMeta,
+        codes: impl Iterator<Item = i16>,
+        per_mm: f32,
+    ) -> Result<(), StoreFull> {
+        let (line, id_at) = self.check_room(&meta)?;
+        self.codes.extend(codes);
+        let q = Quantised {
+            per_mm,
+            rounding_mm: 0.0,
+        };
+        self.push_record(meta, line, id_at, q);
+        Ok(())
+    }
+
+    fn check_room(&self, meta: &RowMeta) -> Result<(u32, u32), StoreFull> {
         let line = u32::try_from(meta.line).map_err(|_| {
             StoreFull("the file has more than 4 294 967 295 lines; split it into several datasets")
         })?;
@@ -368,8 +400,11 @@ impl StoreBuilder {
                 "the point ids exceed 4 GB of text; split the file",
             ));
         }
+        Ok((line, id_at))
+    }
+
+    fn push_record(&mut self, meta: RowMeta, line: u32, id_at: u32, q: Quantised) {
         self.ids.push_str(meta.id);
-        let q = quantise(values_mm, decimals, max_abs_mm, &mut self.codes);
         self.max_rounding_mm = self.max_rounding_mm.max(q.rounding_mm);
         self.points.push(Point {
             x: meta.xy.0,
@@ -389,7 +424,6 @@ impl StoreBuilder {
         if let Some(v) = meta.height_m {
             self.height_m.push(v);
         }
-        Ok(())
     }
 
     /// Take room for `rows` more points of `n_epochs` values at once, as far as the allocator
