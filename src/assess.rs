@@ -348,6 +348,32 @@ impl CodeSums {
     }
 }
 
+/// Whether a run keeps every point's window statistics ([`PointStats`], 16 bytes a point) or
+/// works each out when asked for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum StatsCache {
+    /// Computed once for every retained point (a run that assesses surroundings asks for the
+    /// same point many times).
+    EveryPoint,
+    /// Computed on each request (screening alone asks once per owned point).
+    OnDemand,
+}
+
+impl RunContext<'_> {
+    /// The window statistics of point `point` of dataset `dataset`.
+    pub fn point_stats(&self, dataset: usize, point: usize) -> PointStats {
+        match &self.point_stats {
+            Some(all) => all[dataset][point],
+            None => PointStats::of(
+                self.datasets[dataset].point(point).series(),
+                &self.window_idx[dataset],
+                &self.window_times[dataset],
+                self.portfolio.datasets[dataset].wavelength_mm,
+            ),
+        }
+    }
+}
+
 /// Outcome of screening one member point.
 #[derive(Debug, Clone, PartialEq)]
 pub struct PointVerdict {
@@ -454,8 +480,11 @@ pub struct RunContext<'a> {
     pub scene_unit: Vec<Option<[f64; 3]>>,
     /// Criteria sets available (built-in + user-defined).
     pub criteria: crate::criteria::CriteriaRegistry,
-    /// Per-point window statistics, `[dataset][point]`.
-    pub point_stats: Vec<Vec<PointStats>>,
+    /// Window epoch times per dataset.
+    pub window_times: Vec<WindowTimes>,
+    /// Per-point window statistics, `[dataset][point]`, when kept for every point (see
+    /// [`StatsCache`]); otherwise worked out when asked for ([`RunContext::point_stats`]).
+    pub point_stats: Option<Vec<Vec<PointStats>>>,
     /// The portfolio's `[works]` converted to the analysis CRS once per run (None without works).
     pub works: Option<crate::works::WorksGeometry>,
 }
@@ -509,9 +538,7 @@ pub fn screen_members(
                 rejected = Some(reason::LOW_COHERENCE);
             }
         }
-        // Per-point quantities are computed once per point for the whole run (a point is in the
-        // surroundings of many structures), see `PointStats::of`.
-        let st = &ctx.point_stats[m.dataset][m.point_index];
+        let st = ctx.point_stats(m.dataset, m.point_index);
         let _ = (ds, idx);
         if rejected.is_none() && st.valid_epochs() < a.min_epochs {
             rejected = Some(reason::TOO_FEW_EPOCHS);

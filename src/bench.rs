@@ -51,9 +51,9 @@ pub struct IngestStages {
     pub structures_s: f64,
     /// Both points files read, reach-filtered and associated, owners grouped.
     pub points_s: f64,
-    /// Window and every point's window statistics.
+    /// Window and run context (criteria, window times).
     pub statistics_s: f64,
-    /// Per-structure screening of the owned points.
+    /// Per-structure screening of the owned points, their window statistics included.
     pub screening_s: f64,
 }
 
@@ -265,7 +265,8 @@ fn read_associate_screen(portfolio: &Path) -> Result<(usize, usize, IngestStages
     let assoc = crate::association::Owners::from_datasets(&ds, structures.len());
     let points_s = t.elapsed().as_secs_f64();
     let window = crate::run::window_for(&pf, &ds, &mut w)?;
-    let ctx = crate::run::run_context(&pf, &ds, window, &crs)?;
+    // Screening asks for each owned point's statistics once: worked out on request.
+    let ctx = crate::run::run_context(&pf, &ds, window, &crs, crate::assess::StatsCache::OnDemand)?;
     let statistics_s = t.elapsed().as_secs_f64();
     let counts = structures
         .par_iter()

@@ -193,6 +193,7 @@ pub fn run_context<'a>(
     datasets: &'a [ingest::Dataset],
     window: Window,
     analysis_crs: &crate::coords::Crs,
+    stats: assess::StatsCache,
 ) -> Result<RunContext<'a>, InputError> {
     let window_idx: Vec<Vec<usize>> = datasets
         .iter()
@@ -214,20 +215,35 @@ pub fn run_context<'a>(
         .as_ref()
         .map(|w| crate::works::WorksGeometry::project(w, analysis_crs, &pf.file))
         .transpose()?;
-    let point_stats: Vec<Vec<assess::PointStats>> = datasets
+    let window_times: Vec<assess::WindowTimes> = datasets
         .iter()
         .zip(&window_idx)
-        .zip(&pf.datasets)
-        .map(|((d, idx), spec)| {
-            let times = assess::window_times(&d.epochs, idx, &window);
-            (0..d.len())
-                .into_par_iter()
-                .map(|i| {
-                    assess::PointStats::of(d.point(i).series(), idx, &times, spec.wavelength_mm)
-                })
-                .collect()
-        })
+        .map(|(d, idx)| assess::window_times(&d.epochs, idx, &window))
         .collect();
+    let point_stats = match stats {
+        assess::StatsCache::OnDemand => None,
+        assess::StatsCache::EveryPoint => Some(
+            datasets
+                .iter()
+                .zip(&window_idx)
+                .zip(&window_times)
+                .zip(&pf.datasets)
+                .map(|(((d, idx), times), spec)| {
+                    (0..d.len())
+                        .into_par_iter()
+                        .map(|i| {
+                            assess::PointStats::of(
+                                d.point(i).series(),
+                                idx,
+                                times,
+                                spec.wavelength_mm,
+                            )
+                        })
+                        .collect()
+                })
+                .collect(),
+        ),
+    };
     Ok(RunContext {
         portfolio: pf,
         datasets,
@@ -236,6 +252,7 @@ pub fn run_context<'a>(
         scene_unit,
         criteria,
         works,
+        window_times,
         point_stats,
     })
 }
@@ -316,7 +333,14 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         }
     }
 
-    let ctx = run_context(&pf, &datasets, window, &analysis_crs)?;
+    // A point is in the surroundings of many structures: its statistics are worked out once.
+    let ctx = run_context(
+        &pf,
+        &datasets,
+        window,
+        &analysis_crs,
+        assess::StatsCache::EveryPoint,
+    )?;
     let ids: Vec<&str> = structures.iter().map(|s| s.raw.id.as_str()).collect();
     let stems = output::safe_names::assign(&ids);
     let bar = if opts.progress {

@@ -182,7 +182,7 @@ fn demo_portfolio_parses_and_loads() {
         inputs
             .structures
             .iter()
-            .any(|s| s.raw.footprint.0.len() == 2),
+            .any(|s| s.footprint_wgs84.0.len() == 2),
         "the MultiPolygon structure"
     );
     for d in &inputs.datasets {

@@ -29,7 +29,8 @@ pub struct RawStructure {
     pub structure_type: String,
     /// Optional criteria set name (`criteria`).
     pub criteria: Option<String>,
-    /// Footprint in the file's CRS.
+    /// Footprint in the file's CRS, as read (`load_structures` empties it once the analysis,
+    /// WGS84 and local copies are made).
     pub footprint: MultiPolygon<f64>,
     /// Which properties fell back to defaults, e.g. `height_m = 6 (default)`.
     pub fallbacks: Vec<String>,

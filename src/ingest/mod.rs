@@ -132,7 +132,9 @@ pub fn load_structures(
     let wgs_to_a = Transformer::new(&wgs, &analysis);
     let a_to_wgs = Transformer::new(&analysis, &wgs);
     let mut structures = Vec::with_capacity(raws.len());
-    for (i, (raw, fw)) in raws.into_iter().zip(wgs_fps).enumerate() {
+    for (i, (mut raw, fw)) in raws.into_iter().zip(wgs_fps).enumerate() {
+        // Only the projected copies are used from here on.
+        raw.footprint = MultiPolygon::new(Vec::new());
         let fa = reproject(&fw, &wgs_to_a, sfile, &raw.id)?;
         let c = fa.centroid().ok_or_else(|| {
             InputError::new(

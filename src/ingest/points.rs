@@ -122,7 +122,7 @@ pub fn read_points(
 }
 
 /// Bytes read per block of the points body (each block is parsed in parallel).
-pub const BLOCK_BYTES: usize = 4 << 20;
+pub const BLOCK_BYTES: usize = 1 << 20;
 
 /// Read the next block of whole lines: `carry` (the partial line left by the previous block) and
 /// then at least [`BLOCK_BYTES`] more, cut after the last line end; the part after it becomes the
@@ -1194,7 +1194,12 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
         let rows_in_block = memchr::memchr_iter(b'\n', &cur).count().max(1) as u64;
         let per_row = (cur.len() as u64 / rows_in_block).max(1);
         let rows = total_bytes / per_row + total_bytes / per_row / 20 + 16;
-        total.store.reserve_rows(rows, epoch_cols.len());
+        total
+            .store
+            .reserve_rows(rows, epoch_cols.len(), per_row.min(32));
+        if let Ok(r) = usize::try_from(rows) {
+            let _ = total.ids.try_reserve_exact(r);
+        }
     }
     let mut spare: Vec<u8> = Vec::new();
     let slow_from: Option<(Vec<u8>, u64)> = loop {

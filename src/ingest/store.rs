@@ -426,9 +426,10 @@ impl StoreBuilder {
         }
     }
 
-    /// Take room for `rows` more points of `n_epochs` values at once, as far as the allocator
-    /// grants it (none taken is fine: the arrays then grow as usual). Capped at 2³¹ codes.
-    pub fn reserve_rows(&mut self, rows: u64, n_epochs: usize) {
+    /// Take room for `rows` more points of `n_epochs` values and `id_bytes` of id text each at
+    /// once, as far as the allocator grants it (none taken is fine: the arrays then grow as
+    /// usual). Capped at 2³¹ codes.
+    pub fn reserve_rows(&mut self, rows: u64, n_epochs: usize, id_bytes: u64) {
         let rows = usize::try_from(rows).unwrap_or(usize::MAX);
         let codes = rows.saturating_mul(n_epochs).min(1 << 31);
         let rows = rows.min(codes / n_epochs.max(1) + 1);
@@ -437,6 +438,9 @@ impl StoreBuilder {
         }
         let _ = self.points.try_reserve_exact(rows);
         let _ = self.association.try_reserve_exact(rows);
+        let _ = self
+            .ids
+            .try_reserve_exact(rows.saturating_mul(usize::try_from(id_bytes).unwrap_or(0)));
     }
 
     /// Append a later piece (its id offsets move by this builder's id text length).
