@@ -37,8 +37,9 @@ pub struct PhaseRun {
     pub seconds: f64,
     /// Bytes of input the phase covered.
     pub bytes: u64,
-    /// Peak resident set of the process running the phase, MB (VmHWM; None where unavailable).
-    pub peak_rss_mb: Option<f64>,
+    /// Peak resident set of the process running the phase, MiB (2²⁰ bytes; VmHWM; None where
+    /// unavailable).
+    pub peak_rss_mib: Option<f64>,
     /// Where the `ingest` phase spent its time (None for the other phases).
     #[serde(default)]
     pub stages: Option<IngestStages>,
@@ -66,8 +67,8 @@ pub struct PhaseSummary {
     pub median_s: f64,
     /// Input bytes.
     pub bytes: u64,
-    /// Largest peak resident set over the runs, MB.
-    pub peak_rss_mb: Option<f64>,
+    /// Largest peak resident set over the runs, MiB.
+    pub peak_rss_mib: Option<f64>,
 }
 
 impl PhaseSummary {
@@ -135,8 +136,9 @@ pub fn ensure_data(dir: &Path, size: BenchSize) -> Result<()> {
     Ok(())
 }
 
-/// Peak resident set of this process, MB, from `/proc/self/status` (Linux); None elsewhere.
-pub fn peak_rss_mb() -> Option<f64> {
+/// Peak resident set of this process, MiB (2²⁰ bytes), from `/proc/self/status` (Linux); None
+/// elsewhere.
+pub fn peak_rss_mib() -> Option<f64> {
     let s = std::fs::read_to_string("/proc/self/status").ok()?;
     let line = s.lines().find(|l| l.starts_with("VmHWM:"))?;
     let kb: f64 = line.split_whitespace().nth(1)?.parse().ok()?;
@@ -360,7 +362,7 @@ pub fn run_phase(phase: &str, dir: &Path, hook: Option<ReportHook>) -> Result<Ph
     Ok(PhaseRun {
         seconds: t0.elapsed().as_secs_f64(),
         bytes,
-        peak_rss_mb: peak_rss_mb(),
+        peak_rss_mib: peak_rss_mib(),
         stages,
     })
 }
@@ -417,9 +419,9 @@ pub fn run_children(
                 phase: ph.to_string(),
                 median_s: median(&secs).unwrap_or(f64::NAN),
                 bytes: runs.first().map_or(0, |r| r.bytes),
-                peak_rss_mb: runs
+                peak_rss_mib: runs
                     .iter()
-                    .filter_map(|r| r.peak_rss_mb)
+                    .filter_map(|r| r.peak_rss_mib)
                     .max_by(|a, b| a.total_cmp(b)),
             }
         })
@@ -434,7 +436,7 @@ pub fn table(summaries: &[PhaseSummary], runs: usize) -> String {
         .map(|s| s.median_s);
     let mut t = format!(
         "{:<10} {:>10} {:>10} {:>12} {:>10} {:>14}\n",
-        "phase", "median s", "MB", "MB/s", "÷ floor", "peak RSS MB"
+        "phase", "median s", "MB", "MB/s", "÷ floor", "peak RSS MiB"
     );
     for s in summaries {
         let ratio = match floor {
@@ -448,7 +450,7 @@ pub fn table(summaries: &[PhaseSummary], runs: usize) -> String {
             s.bytes as f64 / 1e6,
             s.mb_per_s().map_or("-".into(), |v| format!("{v:.0}")),
             ratio,
-            s.peak_rss_mb.map_or("-".into(), |v| format!("{v:.0}")),
+            s.peak_rss_mib.map_or("-".into(), |v| format!("{v:.0}")),
         ));
     }
     t.push_str(&format!(
