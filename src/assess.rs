@@ -182,8 +182,11 @@ impl PointStats {
     }
     /// [`Self::of`] on stored 16-bit codes: the same statistics with every sum in exact integer
     /// arithmetic (codes, and days from the window start), scaled to mm and years once at the end.
-    /// The OLS slope is Sxy/Sxx (Sxx = nΣt² − (Σt)², Sxy = nΣtv − ΣtΣv, all exact), the residual
-    /// scatter s² = (Syy − Sxy²/Sxx)/(n(n − 2)); tested against the general path.
+    /// The ordinary-least-squares slope (insar-methods.md §5.2, [P]) is Sxy/Sxx with
+    /// Sxx = nΣt² − (Σt)², Sxy = nΣtv − ΣtΣv, Syy = nΣv² − (Σv)² (t in days, v in codes; all exact),
+    /// so velocity = Sxy/Sxx · 365.25 / per_mm mm/yr (+ towards the satellite, the store's LOS sign)
+    /// and the residual scatter s² = (Syy − Sxy²/Sxx) / (n(n − 2)) codes²; tested against the general
+    /// path.
     fn of_codes(
         codes: &[i16],
         per_mm: f32,

@@ -366,9 +366,10 @@ const INV_POW10: [f64; 16] = [
 ];
 
 impl FastRow {
-    /// The exact code of one entry of `ints` for codes-per-mm 10^`e_shift` relative to the
-    /// written digits: `mantissa · sign · 10^e` (e ≥ 0) or `/ 10^−e` (e < 0, exact: the digits
-    /// dropped are trailing zeros).
+    /// The exact code of one entry of `ints`: `mantissa · mul / div`, where the caller sets
+    /// `mul / div` = ±10^e for e = (decimals lost by the unit conversion) + (decimals stored) −
+    /// (digits after the point): `mul` = ±10^e, `div` = 1 for e ≥ 0; `mul` = ±1, `div` = 10^−e for
+    /// e < 0, then exact (the digits dropped are trailing zeros). ± is the LOS sign.
     #[inline(always)]
     fn code(entry: i64, mul: i64, div: i64) -> i16 {
         if entry == MISSING_INT {
