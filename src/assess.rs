@@ -172,14 +172,25 @@ impl PointStats {
                 .collect();
             crate::series::jumps::has_jump_candidate(&v, wavelength_mm)
         };
+        Self::from_parts(n as u64, velocity, period, jump_candidate)
+    }
+    /// The compact record of `n` valid epochs, the LOS velocity (mm/yr), the period displacement
+    /// and its σ (mm) and the jump flag.
+    fn from_parts(
+        n: u64,
+        velocity: Option<f64>,
+        period: Option<(f64, f64)>,
+        jump_candidate: bool,
+    ) -> Self {
         PointStats {
             valid_epochs: u16::try_from(n).unwrap_or(u16::MAX),
             los_velocity_mm_per_yr: velocity.map_or(f32::NAN, |x| x as f32),
-            period_mm: period.map_or(f32::NAN, |x: (f64, f64)| x.0 as f32),
+            period_mm: period.map_or(f32::NAN, |x| x.0 as f32),
             period_sigma_mm: period.map_or(f32::NAN, |x| x.1 as f32),
             jump_candidate,
         }
     }
+
     /// [`Self::of`] on stored 16-bit codes: the same statistics with every sum in exact integer
     /// arithmetic (codes, and days from the window start), scaled to mm and years once at the end.
     /// The ordinary-least-squares slope (insar-methods.md §5.2, [P]) is Sxy/Sxx with
@@ -291,13 +302,7 @@ impl PointStats {
                 .collect();
             crate::series::jumps::has_jump_candidate(&v, wavelength_mm)
         };
-        PointStats {
-            valid_epochs: u16::try_from(n).unwrap_or(u16::MAX),
-            los_velocity_mm_per_yr: velocity.map_or(f32::NAN, |x| x as f32),
-            period_mm: period.map_or(f32::NAN, |x: (f64, f64)| x.0 as f32),
-            period_sigma_mm: period.map_or(f32::NAN, |x| x.1 as f32),
-            jump_candidate,
-        }
+        Self::from_parts(n as u64, velocity, period, jump_candidate)
     }
 
     /// Valid (finite) epochs inside the window.

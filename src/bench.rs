@@ -251,9 +251,10 @@ pub fn floor_file(path: &Path) -> Result<FloorCount> {
     Ok(total)
 }
 
-/// The `ingest` phase: read footprints and points (reach filter), associate every point, compute
-/// every point's window statistics and screen every structure's own points (coherence, epochs,
-/// velocity outliers) with the same functions `run::analyse` uses. Returns the kept and rejected
+/// The `ingest` phase: read footprints and points (reach filter, every kept point associated as
+/// it is read), group the owned points by structure and screen every structure's own points (their
+/// window statistics, coherence, epochs, velocity outliers) with the same functions `run::analyse`
+/// uses. Returns the kept and rejected
 /// structure-point counts and the wall time of each stage.
 fn read_associate_screen(portfolio: &Path) -> Result<(usize, usize, IngestStages)> {
     use crate::association::Role;

@@ -900,6 +900,7 @@ impl RowParser<'_> {
                         let sign = if self.factor < 0.0 { -1 } else { 1 };
                         let (mul, div) = if e >= 0 { (sign * p, 1) } else { (sign, p) };
                         let ints = &acc.ints;
+                        // Two loops so that the usual case (no division) compiles without one.
                         if div == 1 {
                             acc.store.push_exact(
                                 meta,
