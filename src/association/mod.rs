@@ -253,8 +253,11 @@ impl SpatialIndex {
         }
     }
 
-    /// True when (x, y) lies within the expanded envelope of some structure (cheap pre-filter).
-    pub fn within_reach(&self, x: f64, y: f64) -> bool {
+    /// True when (x, y) lies within the expanded envelope of some structure: the reach test on its
+    /// own, the tests' reference for [`Self::summarise`] (which the reader uses: it tests the reach
+    /// and associates in the same query).
+    #[cfg(test)]
+    fn within_reach(&self, x: f64, y: f64) -> bool {
         self.tree
             .locate_in_envelope_intersecting(&AABB::from_point([x, y]))
             .next()
