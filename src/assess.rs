@@ -683,6 +683,7 @@ pub fn assess_structure(
             scfg.wavelength_mm =
                 ctx.portfolio.datasets[*by_ds.keys().next().unwrap_or(&0)].wavelength_mm;
             scfg.bootstrap_draws = a.bootstrap_draws;
+            scfg.max_condition_number = a.max_condition_number;
             scfg.seed = a.seed ^ fnv(&s.raw.id);
             let out_s = crate::series::analyse_structure(&geoms, &surr, &scfg);
             for (g, idxs) in out_s.geometries.iter().zip(by_ds.values()) {
@@ -813,9 +814,12 @@ pub fn assess_structure(
                 unit_enu: u,
             });
         }
+        assumptions.extend(reference_note(ctx, &mpts));
         let mcfg = crate::metrics::MetricsConfig {
             monte_carlo_draws: a.monte_carlo_draws,
             seed: a.seed ^ fnv(&s.raw.id),
+            strain_max_condition: a.max_condition_number,
+            strain_axis_max_angle_deg: a.strain_axis_max_angle_deg,
             ..Default::default()
         };
         let met =
@@ -838,48 +842,23 @@ pub fn assess_structure(
             .and_then(|u| u.angular_distortion.as_ref())
             .map(|sp| sp.se);
         out.tilt_azimuth_deg = met.tilt_azimuth_deg;
-        out.angular_distortion = met.angular_distortion;
-        out.deflection_ratio = met.deflection_ratio;
         out.horizontal_strain = met.horizontal_strain;
-        if met.horizontal_strain.is_none() {
-            assumptions.push(
-                "horizontal strain not measured (needs both geometries at both ends of an axis that is not north–south); taken as 0 in the strain relations".into(),
-            );
-        }
+        out.look_directions = met
+            .look_directions
+            .iter()
+            .map(|l| l.label().to_string())
+            .collect();
         match ctx.criteria.get(&criteria_name) {
             Ok(set) => {
-                let zones: Vec<crate::damage::assess::ZoneInput> = met
-                    .damage_zones()
-                    .iter()
-                    .map(|z| crate::damage::assess::ZoneInput {
-                        mode: match z.mode {
-                            crate::metrics::profile::DeflectionMode::Sagging => {
-                                crate::damage::Mode::Sagging
-                            }
-                            crate::metrics::profile::DeflectionMode::Hogging => {
-                                crate::damage::Mode::Hogging
-                            }
-                        },
-                        length_m: z.length_m,
-                        deflection_ratio: z.deflection_ratio,
-                        horizontal_strain: z.horizontal_strain,
-                    })
-                    .collect();
-                let max_slope = match (met.tilt, met.angular_distortion) {
-                    (Some(t), Some(b)) => Some(t + b),
-                    (Some(t), None) => Some(t),
-                    _ => None,
-                };
-                let dmg = crate::damage::assess::assess_damage(
-                    &crate::damage::assess::DamageInput {
-                        zones,
-                        angular_distortion: met.angular_distortion,
-                        height_m: s.raw.height_m,
-                        max_settlement_mm: met.settlement_mm,
-                        max_slope,
-                    },
+                let v = crate::verdict::judge(&crate::verdict::VerdictInput {
+                    metrics: &met,
                     set,
-                );
+                    height_m: s.raw.height_m,
+                    seed: a.seed ^ fnv(&s.raw.id),
+                });
+                let dmg = &v.damage;
+                out.deflection_ratio = v.deflection_ratio;
+                out.angular_distortion = v.angular_distortion;
                 out.governing_strain = dmg.governing_strain;
                 out.damage_category = dmg.category.map(|c| c.number());
                 out.damage_category_name = dmg.category.map(|c| c.label().to_string());
@@ -894,49 +873,53 @@ pub fn assess_structure(
                     }
                 }
                 assumptions.extend(dmg.assumptions.iter().cloned());
-                out.damage = serde_json::to_value(&dmg).unwrap_or_default();
+                out.horizontal_strain_status = Some(v.horizontal_strain_status.key().to_string());
+                out.category_lower_bound = dmg.category.map(|_| v.category_lower_bound);
+                if v.category_lower_bound {
+                    assumptions.push(lower_bound_note(v.horizontal_strain_status));
+                }
+                out.probabilities = v.probabilities.clone();
+                out.damage = serde_json::to_value(dmg).unwrap_or_default();
+                if let Some(p) = &v.probabilities {
+                    if let Some(o) = out.damage.as_object_mut() {
+                        o.insert(
+                            "category_probabilities".into(),
+                            serde_json::to_value(p).unwrap_or_default(),
+                        );
+                    }
+                }
             }
             Err(e) => reasons.push(format!("damage category not computed: {e}")),
         }
         for r in &met.refusals {
             assumptions.push(format!("metric not computed: {r}"));
         }
-        // Evidence grade (grade.rs): the decisive metric is the governing strain, its SE scaled
-        // from the Monte Carlo SE of the deflection ratio.
-        let decisive = match (out.governing_strain, ctx.criteria.get(&criteria_name)) {
-            (Some(g), Ok(set)) if g > 0.0 => {
-                let rel = met
-                    .uncertainty
-                    .as_ref()
-                    .and_then(|u| u.deflection_ratio.as_ref())
-                    .zip(met.deflection_ratio)
-                    .filter(|(_, d)| d.abs() > 0.0)
-                    .map(|(sp, d)| sp.se / d.abs());
-                let nearest = set
-                    .thresholds
-                    .iter()
-                    .copied()
-                    .min_by(|x, y| (x - g).abs().total_cmp(&(y - g).abs()));
-                match (rel, nearest) {
-                    (Some(r), Some(b)) => Some(crate::grade::DecisiveMetric {
-                        name: "governing tensile strain".into(),
-                        value: g,
-                        se: r * g,
-                        nearest_boundary: b,
-                    }),
-                    _ => None,
-                }
-            }
-            _ => None,
-        };
+        // Evidence grade (grade.rs): the stated category's probability decides how certain it is.
+        let certainty = out
+            .damage_category
+            .zip(out.probabilities.as_ref())
+            .map(|(c, p)| crate::grade::CategoryCertainty {
+                category: c,
+                probability: p.of(c),
+                probability_higher: p.above(c),
+            });
         let gi = crate::grade::GradeInputs::from_metrics(
             &met,
             Some(n_window_epochs),
             Some(ctx.window.span_years()),
             (coh_n > 0).then(|| coh_sum / coh_n as f64),
-            decisive,
+            certainty,
         );
         let (g, why) = crate::grade::grade(&gi, &crate::grade::GradeThresholds::default());
+        if g == crate::grade::Grade::Insufficient && out.damage_category.is_some() {
+            reasons
+                .push("damage category withheld: the evidence grade is insufficient".to_string());
+            out.damage_category = None;
+            out.damage_category_name = None;
+            out.governing_strain = None;
+            out.probabilities = None;
+            out.category_lower_bound = None;
+        }
         out.evidence_grade = Some(g.name().to_string());
         out.grade = serde_json::json!({"grade": g.name(), "reasons": why, "inputs": gi});
         out.metrics = serde_json::to_value(&met).unwrap_or_default();
@@ -1015,6 +998,18 @@ pub fn assess_structure(
         damage_category: out.damage_category,
         damage_route: out.damage_route,
         evidence_grade: out.evidence_grade,
+        damage_category_probabilities: out.probabilities.as_ref().map(|p| p.as_map()),
+        damage_category_probability: out
+            .damage_category
+            .zip(out.probabilities.as_ref())
+            .map(|(c, p)| p.of(c)),
+        damage_category_exceedance_probability: out
+            .damage_category
+            .zip(out.probabilities.as_ref())
+            .map(|(c, p)| p.above(c)),
+        horizontal_strain_status: out.horizontal_strain_status,
+        category_lower_bound: out.category_lower_bound,
+        look_directions: out.look_directions,
         vertical_velocity_se_mm_per_yr: out.vertical_velocity_se_mm_per_yr,
         east_velocity_se_mm_per_yr: out.east_velocity_se_mm_per_yr,
         tilt_se: out.tilt_se,
@@ -1079,9 +1074,90 @@ struct Filled {
     east_velocity_mm_per_yr: Option<f64>,
     east_velocity_se_mm_per_yr: Option<f64>,
     evidence_grade: Option<String>,
+    horizontal_strain_status: Option<String>,
+    category_lower_bound: Option<bool>,
+    look_directions: Vec<String>,
+    probabilities: Option<crate::verdict::CategoryProbabilities>,
     grade: serde_json::Value,
     metrics: serde_json::Value,
     damage: serde_json::Value,
+}
+
+/// The assumption line on the datasets' common reference, when points of two or more datasets
+/// are combined: what was done with `[reference]`, or — without it — what a reference drift in
+/// one dataset does to the decomposed east–west and vertical values (from this structure's own
+/// look geometry: the response of the east/up solve to 1 mm in one dataset alone).
+fn reference_note(ctx: &RunContext, pts: &[crate::metrics::MetricPoint]) -> Option<String> {
+    let mut by_ds: BTreeMap<usize, ([f64; 3], usize)> = BTreeMap::new();
+    for p in pts {
+        let e = by_ds.entry(p.geometry).or_insert(([0.0; 3], 0));
+        for (a, u) in e.0.iter_mut().zip(p.unit_enu) {
+            *a += u;
+        }
+        e.1 += 1;
+    }
+    if by_ds.len() < 2 {
+        return None;
+    }
+    if let Some(r) = &ctx.portfolio.reference {
+        return Some(format!(
+            "datasets re-referenced epoch by epoch to the median of their coherent points within \
+             {} m of ({}, {}) in {} before being combined",
+            r.radius_m, r.point[0], r.point[1], r.crs
+        ));
+    }
+    let units: Vec<(usize, [f64; 3])> = by_ds
+        .iter()
+        .map(|(d, (u, n))| (*d, u.map(|c| c / *n as f64)))
+        .collect();
+    let east = units.iter().find(|(_, u)| {
+        crate::series::los::LookDirection::of(*u)
+            == Some(crate::series::los::LookDirection::EastLooking)
+    });
+    let west = units.iter().find(|(_, u)| {
+        crate::series::los::LookDirection::of(*u)
+            == Some(crate::series::los::LookDirection::WestLooking)
+    });
+    let base = "datasets combined without a common reference ([reference] not given): each \
+                keeps the reference point it was processed with";
+    match (east, west) {
+        (Some((da, ua)), Some((_, ub))) => {
+            // Response of (d_E, d_U) to 1 mm in the first dataset: G⁻¹·(1, 0), G = [u_E u_U].
+            let det = ua[0] * ub[2] - ua[2] * ub[0];
+            let (de, du) = (ub[2] / det, -ub[0] / det);
+            Some(format!(
+                "{base}; a reference drift of 1 mm/yr in `{}` alone would appear as {:.2} mm/yr \
+                 of east–west and {:.2} mm/yr of vertical velocity",
+                ctx.datasets[*da].name,
+                de.abs(),
+                du.abs()
+            ))
+        }
+        _ => Some(format!(
+            "{base}; a reference difference between them shifts the vertical values of one \
+             dataset's points against the other's"
+        )),
+    }
+}
+
+/// The assumption line for a category stated without a measured horizontal strain.
+fn lower_bound_note(status: crate::metrics::HorizontalStrainStatus) -> String {
+    use crate::metrics::HorizontalStrainStatus as H;
+    let why = match status {
+        H::NotObservableAxis => {
+            "the building's axis lies too far from east–west for the radar, which does not see \
+             north–south motion"
+        }
+        H::NotObservableGeometry => {
+            "the data lack an east-looking and a west-looking geometry at both ends of the axis, \
+             so east–west motion cannot be separated from vertical"
+        }
+        H::NotMeasured | H::Measured => "it could not be measured",
+    };
+    format!(
+        "horizontal strain not observable ({why}): taken as 0 in the strain relations, so the \
+         category comes from bending and shear alone and may be understated"
+    )
 }
 
 fn series_pass(p: crate::portfolio::Pass) -> crate::series::los::Pass {

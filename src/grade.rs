@@ -3,14 +3,13 @@
 //!
 //! Owns: the grade names, the thresholds (one struct, documented defaults), the pure grading
 //! function and a helper that collects the inputs from the metrics stage. It does not compute
-//! metrics, categories or category boundaries; the caller supplies the decisive metric and its
-//! nearest category boundary from the damage stage, and the epoch count and time span from the
+//! metrics, categories or probabilities; the caller supplies the stated category with its
+//! probability from the verdict stage, and the epoch count and time span from the
 //! time-series stage.
 //!
 //! # Grades (our own names, best first)
-//! - `robust`: enough well-spread points over a long, dense series, both viewing geometries
-//!   agreeing, scatter as expected, and the decisive metric's SE small against the category
-//!   boundaries;
+//! - `robust`: enough well-spread points over a long, dense series, both look directions
+//!   agreeing, scatter as expected, and the stated damage category clearly the most probable;
 //! - `adequate`: a usable assessment with a wider margin of doubt;
 //! - `indicative`: the minimum for an indication of movement; metrics are screening values;
 //! - `insufficient`: not assessable from InSAR.
@@ -25,14 +24,15 @@
 //!   not behave as their time series claim (mixed roof/façade/ground points, thermal response,
 //!   understated σ), and the σ-based Monte Carlo then understates the uncertainty.
 //!   Limits: ≤ 1.5 robust, ≤ 2.5 adequate.
-//! - **Both geometries** are required for `robust`: with one geometry every point is a vertical
-//!   projection that assumes no horizontal motion (insar-methods §3.1, damage-relations §9.4),
-//!   and no consistency check between datasets is possible.
-//! - **SE against the boundary** follows §7.10 literally: SE ≤ 0.25 (robust) / 0.5 (adequate)
-//!   × the value of the nearest category boundary. It measures precision at the scale of the
-//!   thresholds, which is what "evidence" means; the distance of the value to the boundary says
-//!   how certain the *category* is, which the report states separately through category
-//!   probabilities. The margin |value − boundary|/SE is still added to the reasons for reading.
+//! - **Both look directions** (one east-looking and one west-looking geometry) are required for
+//!   `robust`: with one look direction every point is a vertical projection that assumes no
+//!   horizontal motion (insar-methods §3.1, damage-relations §9.4). Two tracks looking the same
+//!   way (two ascending passes) count once: they cannot separate east–west from vertical.
+//! - **Certainty of the category** replaces §7.10's "SE ≤ 0.25 × the nearest boundary": the
+//!   condition is on the Monte Carlo probability of the stated category (≥ 0.8 robust, ≥ 0.5
+//!   adequate), which accounts for the distance to the boundary, the bending and the
+//!   horizontal-strain uncertainty together. The old rule scaled SE(Δ/L) as if the governing
+//!   strain were proportional to Δ/L, which it is not once ε_h enters.
 //! - **Coherence** is optional: when the mean coherence is not supplied, the condition is
 //!   skipped and a reason says so (not every dataset carries coherence). Every other unknown
 //!   input fails the conditions that need it.
@@ -70,17 +70,15 @@ impl Grade {
     }
 }
 
-/// The metric that decides the damage category, with its SE and nearest category boundary.
+/// The stated damage category and how probable it is under the Monte Carlo draws.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-pub struct DecisiveMetric {
-    /// Name, e.g. "limiting tensile strain" or "angular distortion".
-    pub name: String,
-    /// Its value (dimensionless).
-    pub value: f64,
-    /// Its standard error (same unit).
-    pub se: f64,
-    /// Value of the nearest category boundary (same unit, > 0).
-    pub nearest_boundary: f64,
+pub struct CategoryCertainty {
+    /// The stated category (0–4, 4 standing for 4–5).
+    pub category: u8,
+    /// Probability of that category (0–1).
+    pub probability: f64,
+    /// Probability of a higher category (0–1).
+    pub probability_higher: f64,
 }
 
 /// Everything the grade looks at.
@@ -98,14 +96,14 @@ pub struct GradeInputs {
     pub epoch_count: Option<usize>,
     /// Time span of the series (years; the shortest over the datasets used).
     pub time_span_yr: Option<f64>,
-    /// Number of viewing geometries among the points.
-    pub geometry_count: usize,
+    /// Number of look directions among the points (1 or 2; see [`crate::series::los::LookDirection`]).
+    pub look_direction_count: usize,
     /// Whether the geometries agree (tilt within 2σ); `None` when not checkable.
     pub geometries_consistent: Option<bool>,
     /// Mean temporal coherence of the points, when known.
     pub mean_coherence: Option<f64>,
-    /// Decisive metric, when a category was computed.
-    pub decisive: Option<DecisiveMetric>,
+    /// The stated category's probability, when a category was stated.
+    pub category: Option<CategoryCertainty>,
 }
 
 impl GradeInputs {
@@ -119,7 +117,7 @@ impl GradeInputs {
         epoch_count: Option<usize>,
         time_span_yr: Option<f64>,
         mean_coherence: Option<f64>,
-        decisive: Option<DecisiveMetric>,
+        category: Option<CategoryCertainty>,
     ) -> Self {
         let principal = m
             .axis_metrics
@@ -140,10 +138,10 @@ impl GradeInputs {
             expected_noise_mm: m.expected_noise_mm,
             epoch_count,
             time_span_yr,
-            geometry_count: m.geometries.len(),
+            look_direction_count: m.look_directions.len(),
             geometries_consistent: m.geometries_consistent,
             mean_coherence,
-            decisive,
+            category,
         }
     }
 }
@@ -161,12 +159,12 @@ pub struct LevelThresholds {
     pub min_epochs: usize,
     /// Largest residual RMS / expected noise.
     pub max_scatter_ratio: Option<f64>,
-    /// Largest SE of the decisive metric as a fraction of the nearest boundary.
-    pub max_se_to_boundary: Option<f64>,
+    /// Smallest Monte Carlo probability of the stated damage category.
+    pub min_category_probability: Option<f64>,
     /// Minimum mean coherence (skipped when the coherence is not supplied).
     pub min_mean_coherence: Option<f64>,
-    /// Both (≥ 2) viewing geometries required.
-    pub require_two_geometries: bool,
+    /// Both look directions (east-looking and west-looking) required.
+    pub require_both_look_directions: bool,
     /// Geometries must agree where they can be compared.
     pub require_consistent_geometries: bool,
 }
@@ -184,7 +182,9 @@ pub struct GradeThresholds {
 
 impl Default for GradeThresholds {
     /// insar-methods.md §7.10 [D] ("high/medium/low" there → robust/adequate/indicative here),
-    /// plus the scatter-ratio and geometry conditions explained in the module docs (ours).
+    /// plus the scatter-ratio, look-direction and category-probability conditions explained in
+    /// the module docs (ours; 0.8 and 0.5 are our choices: "clearly the most probable" and
+    /// "at least as likely as not").
     fn default() -> Self {
         Self {
             robust: LevelThresholds {
@@ -193,9 +193,9 @@ impl Default for GradeThresholds {
                 min_span_yr: 2.0,
                 min_epochs: 50,
                 max_scatter_ratio: Some(1.5),
-                max_se_to_boundary: Some(0.25),
+                min_category_probability: Some(0.8),
                 min_mean_coherence: Some(0.8),
-                require_two_geometries: true,
+                require_both_look_directions: true,
                 require_consistent_geometries: true,
             },
             adequate: LevelThresholds {
@@ -204,9 +204,9 @@ impl Default for GradeThresholds {
                 min_span_yr: 1.5,
                 min_epochs: 30,
                 max_scatter_ratio: Some(2.5),
-                max_se_to_boundary: Some(0.5),
+                min_category_probability: Some(0.5),
                 min_mean_coherence: None,
-                require_two_geometries: false,
+                require_both_look_directions: false,
                 require_consistent_geometries: false,
             },
             indicative: LevelThresholds {
@@ -215,9 +215,9 @@ impl Default for GradeThresholds {
                 min_span_yr: 1.0,
                 min_epochs: 20,
                 max_scatter_ratio: None,
-                max_se_to_boundary: None,
+                min_category_probability: None,
                 min_mean_coherence: None,
-                require_two_geometries: false,
+                require_both_look_directions: false,
                 require_consistent_geometries: false,
             },
         }
@@ -228,11 +228,11 @@ impl Default for GradeThresholds {
 ///
 /// The grade is the best of robust / adequate / indicative whose conditions all hold, else
 /// insufficient. Reasons: for every grade better than the result, each failed condition
-/// ("robust: 7 points < 10"); then informative lines (margin to the boundary, skipped
-/// coherence). A `robust` result has only informative reasons.
+/// ("robust: 7 points < 10"); then informative lines (probability of the stated and of a
+/// higher category, skipped coherence). A `robust` result has only informative reasons.
 ///
 /// # Units
-/// Counts, fractions of L, years, mm; the decisive metric in its own (dimensionless) unit.
+/// Counts, fractions of L, years, mm; probabilities 0–1.
 ///
 /// # References
 /// insar-methods.md §7.10 [D] (conditions and default thresholds).
@@ -243,7 +243,7 @@ impl Default for GradeThresholds {
 /// let inputs = GradeInputs {
 ///     point_count: 2, principal_axis_coverage: None, residual_rms_mm: None,
 ///     expected_noise_mm: None, epoch_count: Some(100), time_span_yr: Some(3.0),
-///     geometry_count: 1, geometries_consistent: None, mean_coherence: None, decisive: None,
+///     look_direction_count: 1, geometries_consistent: None, mean_coherence: None, category: None,
 /// };
 /// let (g, reasons) = grade(&inputs, &GradeThresholds::default());
 /// assert_eq!(g, Grade::Insufficient);
@@ -268,14 +268,13 @@ pub fn grade(inputs: &GradeInputs, thresholds: &GradeThresholds) -> (Grade, Vec<
     if result == Grade::Insufficient {
         reasons.push("not assessable from InSAR".to_string());
     }
-    if let Some(d) = &inputs.decisive {
-        if d.se > 0.0 && d.se.is_finite() {
-            reasons.push(format!(
-                "{} is {:.1} SE from the nearest category boundary",
-                d.name,
-                (d.value - d.nearest_boundary).abs() / d.se
-            ));
-        }
+    if let Some(c) = &inputs.category {
+        reasons.push(format!(
+            "category {} has probability {:.0} %; a higher category {:.0} %",
+            c.category,
+            c.probability * 100.0,
+            c.probability_higher * 100.0
+        ));
     }
     if inputs.mean_coherence.is_none() && levels.iter().any(|(_, t)| t.min_mean_coherence.is_some())
     {
@@ -324,22 +323,16 @@ fn failed_conditions(i: &GradeInputs, t: &LevelThresholds) -> Vec<String> {
             _ => f.push("residual scatter against expected noise unknown".to_string()),
         }
     }
-    if let Some(max) = t.max_se_to_boundary {
-        match &i.decisive {
-            Some(d) if d.nearest_boundary > 0.0 && d.se.is_finite() => {
-                let r = d.se / d.nearest_boundary;
-                if !(r <= max) {
-                    f.push(format!(
-                        "SE of the {} is {:.2} × the nearest category boundary (limit {max:.2})",
-                        d.name, r
-                    ));
-                }
-            }
-            Some(d) => f.push(format!(
-                "SE of the {} or its category boundary unusable",
-                d.name
+    if let Some(min) = t.min_category_probability {
+        match &i.category {
+            Some(c) if c.probability >= min => {}
+            Some(c) => f.push(format!(
+                "probability of category {} is {:.0} % < {:.0} %",
+                c.category,
+                c.probability * 100.0,
+                min * 100.0
             )),
-            None => f.push("no decisive metric (damage category not computed)".to_string()),
+            None => f.push("no damage category stated".to_string()),
         }
     }
     if let (Some(min), Some(c)) = (t.min_mean_coherence, i.mean_coherence) {
@@ -347,11 +340,10 @@ fn failed_conditions(i: &GradeInputs, t: &LevelThresholds) -> Vec<String> {
             f.push(format!("mean coherence {c:.2} < {min:.2}"));
         }
     }
-    if t.require_two_geometries && i.geometry_count < 2 {
+    if t.require_both_look_directions && i.look_direction_count < 2 {
         f.push(format!(
-            "{} viewing geometr{}; both ascending and descending needed",
-            i.geometry_count,
-            if i.geometry_count == 1 { "y" } else { "ies" }
+            "{} look direction(s); one east-looking and one west-looking geometry needed",
+            i.look_direction_count
         ));
     }
     if t.require_consistent_geometries && i.geometries_consistent == Some(false) {
@@ -372,14 +364,13 @@ mod tests {
             expected_noise_mm: Some(1.0),
             epoch_count: Some(120),
             time_span_yr: Some(4.0),
-            geometry_count: 2,
+            look_direction_count: 2,
             geometries_consistent: Some(true),
             mean_coherence: Some(0.88),
-            decisive: Some(DecisiveMetric {
-                name: "limiting tensile strain".into(),
-                value: 2.0e-4,
-                se: 0.8e-4,
-                nearest_boundary: 5.0e-4,
+            category: Some(CategoryCertainty {
+                category: 1,
+                probability: 0.9,
+                probability_higher: 0.04,
             }),
         }
     }
@@ -388,8 +379,11 @@ mod tests {
     fn strong_evidence_is_robust() {
         let (g, r) = grade(&strong(), &GradeThresholds::default());
         assert_eq!(g, Grade::Robust, "{r:?}");
-        // Margin (5e-4 − 2e-4)/0.8e-4 = 3.75 SE (hand-computed).
-        assert!(r.iter().any(|x| x.contains("3.8 SE")), "{r:?}");
+        assert!(
+            r.iter()
+                .any(|x| x == "category 1 has probability 90 %; a higher category 4 %"),
+            "{r:?}"
+        );
         assert!(r.iter().all(|x| !x.starts_with("robust:")));
     }
 
@@ -407,12 +401,15 @@ mod tests {
             ("span", Box::new(|i| i.time_span_yr = Some(1.9))),
             ("epochs", Box::new(|i| i.epoch_count = Some(49))),
             ("scatter", Box::new(|i| i.residual_rms_mm = Some(1.6))),
-            ("se", Box::new(|i| i.decisive.as_mut().unwrap().se = 1.3e-4)),
+            (
+                "probability",
+                Box::new(|i| i.category.as_mut().unwrap().probability = 0.7),
+            ),
             ("coherence", Box::new(|i| i.mean_coherence = Some(0.75))),
             (
                 "geometries",
                 Box::new(|i| {
-                    i.geometry_count = 1;
+                    i.look_direction_count = 1;
                     i.geometries_consistent = None;
                 }),
             ),
@@ -445,10 +442,10 @@ mod tests {
             expected_noise_mm: Some(1.0),
             epoch_count: Some(25),
             time_span_yr: Some(1.2),
-            geometry_count: 1,
+            look_direction_count: 1,
             geometries_consistent: None,
             mean_coherence: None,
-            decisive: None,
+            category: None,
         };
         let (g, r) = grade(&i, &t);
         assert_eq!(g, Grade::Indicative, "{r:?}");
@@ -507,11 +504,11 @@ mod tests {
         let m = structure_metrics(&pts, &fp, 10.0, &cfg);
         let i = GradeInputs::from_metrics(&m, Some(60), Some(2.5), None, None);
         assert_eq!(i.point_count, 10);
-        assert_eq!(i.geometry_count, 1);
+        assert_eq!(i.look_direction_count, 0); // vertical test points look nowhere
         assert!(i.residual_rms_mm.unwrap() <= 0.7523 + 1e-4);
         assert_eq!(i.expected_noise_mm, Some(1.0));
         assert!((i.principal_axis_coverage.unwrap() - 0.90).abs() < 1e-3);
-        // One geometry and no category: not robust, not adequate (no decisive metric).
+        // One geometry and no category: not robust, not adequate (no category stated).
         let (g, r) = grade(&i, &GradeThresholds::default());
         assert_eq!(g, Grade::Indicative, "{r:?}");
     }

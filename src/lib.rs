@@ -2,7 +2,7 @@
 //!
 //! Data flows one way; each stage hands the next a named struct:
 //! `portfolio` → `ingest` → `coords` → `association` → `series` → `metrics` → `damage`
-//! (+ `criteria`) → `grade`/`triggers` → `results` → `output`/`report`.
+//! (+ `criteria`) → `verdict` → `grade`/`triggers` → `results` → `output`/`report`.
 //! `assess` joins the computation stages for one structure; `run` drives a whole job; `cli` is the
 //! command line.
 pub mod assess;
@@ -26,4 +26,5 @@ pub mod run;
 pub mod series;
 pub mod synth;
 pub mod triggers;
+pub mod verdict;
 pub mod works;

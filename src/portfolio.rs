@@ -37,6 +37,16 @@ struct RawFile {
     triggers: Vec<TriggerLevel>,
     #[serde(default)]
     works: Option<crate::works::RawWorks>,
+    #[serde(default)]
+    reference: Option<RawReference>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawReference {
+    point: Vec<f64>,
+    crs: Option<String>,
+    radius_m: Option<f64>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -101,6 +111,8 @@ struct RawAssessment {
     seed: Option<u64>,
     monte_carlo_draws: Option<usize>,
     bootstrap_draws: Option<usize>,
+    max_condition_number: Option<f64>,
+    strain_axis_max_angle_deg: Option<f64>,
 }
 
 /// Orbit direction of a dataset, as written in the portfolio file.
@@ -243,6 +255,14 @@ pub struct AssessmentSettings {
     pub monte_carlo_draws: usize,
     /// Bootstrap draws for the breakpoint test (default 199).
     pub bootstrap_draws: usize,
+    /// Largest condition number of the geometry matrix for an east–west + vertical
+    /// decomposition (default 3.0, insar-methods §4.2 [D]); one east-looking and one
+    /// west-looking geometry are required whatever the value.
+    pub max_condition_number: f64,
+    /// Largest angle between a footprint axis and east–west for a horizontal strain along it,
+    /// degrees (default 20: the unseen north–south normal strain then weighs at most
+    /// sin² 20° ≈ 12 %; docs/methods.md).
+    pub strain_axis_max_angle_deg: f64,
 }
 
 /// The `[report]` section: who signs and how reports look.
@@ -281,6 +301,18 @@ pub struct TriggerLevel {
     pub severity: Option<u32>,
     /// Optional action text shown in reports.
     pub action: Option<String>,
+}
+
+/// The `[reference]` section: one stable area every dataset is re-referenced to before datasets
+/// are combined (insar-methods §4.6, §6.6).
+#[derive(Debug, Clone, Serialize)]
+pub struct ReferenceSpec {
+    /// Centre of the reference area, in `crs` (x = easting or longitude).
+    pub point: [f64; 2],
+    /// CRS of `point` (default `EPSG:4326`).
+    pub crs: String,
+    /// Radius of the reference area, m (required: there is no safe default).
+    pub radius_m: f64,
 }
 
 /// A record that a default was applied (written to the manifest and the report).
@@ -322,6 +354,61 @@ pub struct Portfolio {
     pub defaults_applied: Vec<AppliedDefault>,
     /// Planned or ongoing works (`[works]`, validated by `works::model`); None without the section.
     pub works: Option<crate::works::WorksSpec>,
+    /// Common reference area (`[reference]`); None without the section.
+    pub reference: Option<ReferenceSpec>,
+}
+
+/// Check the `[reference]` section; `def` records the defaults applied.
+fn validate_reference(
+    r: &RawReference,
+    path: &Path,
+    def: &mut impl FnMut(&str, String),
+) -> Result<ReferenceSpec, InputError> {
+    let [x, y] = r.point[..] else {
+        return Err(InputError::new(
+            path,
+            "key reference.point",
+            format!("expected two numbers [x, y], got {}", r.point.len()),
+            "e.g. point = [9.1834, 45.4712] (longitude, latitude with the default crs)",
+        ));
+    };
+    if !(x.is_finite() && y.is_finite()) {
+        return Err(InputError::new(
+            path,
+            "key reference.point",
+            "the coordinates are not finite numbers",
+            "e.g. point = [9.1834, 45.4712]",
+        ));
+    }
+    let crs = match &r.crs {
+        Some(c) => c.clone(),
+        None => {
+            def("reference.crs", "EPSG:4326".into());
+            "EPSG:4326".to_string()
+        }
+    };
+    check_crs(&crs, path, "reference.crs")?;
+    let Some(radius_m) = r.radius_m else {
+        return Err(InputError::new(
+            path,
+            "key reference.radius_m",
+            "the radius of the reference area is missing",
+            "give the radius in metres of a stable area around the point, e.g. radius_m = 150.0",
+        ));
+    };
+    if !(radius_m > 0.0 && radius_m <= 5000.0) {
+        return Err(InputError::new(
+            path,
+            "key reference.radius_m",
+            format!("{radius_m} m is outside (0, 5000] m"),
+            "a reference area is a stable patch of ground, typically 50–500 m across",
+        ));
+    }
+    Ok(ReferenceSpec {
+        point: [x, y],
+        crs,
+        radius_m,
+    })
 }
 
 /// Parse a date given as a TOML string `"2023-01-03"` or a TOML date literal.
@@ -659,6 +746,8 @@ impl Portfolio {
             seed: take!(seed, 20_240_101u64),
             monte_carlo_draws: take!(monte_carlo_draws, 300usize),
             bootstrap_draws: take!(bootstrap_draws, 199usize),
+            max_condition_number: take!(max_condition_number, 3.0),
+            strain_axis_max_angle_deg: take!(strain_axis_max_angle_deg, 20.0),
         };
         let bad = |key: &str, msg: String, hint: &str| {
             Err(InputError::new(
@@ -725,6 +814,26 @@ impl Portfolio {
                 "3.0 is the default",
             );
         }
+        if !(assessment.max_condition_number >= 1.0 && assessment.max_condition_number <= 10.0) {
+            return bad(
+                "max_condition_number",
+                format!(
+                    "{} is outside 1–10 (a condition number is at least 1)",
+                    assessment.max_condition_number
+                ),
+                "3.0 is the default; ascending + descending pairs give about 1.0–1.8",
+            );
+        }
+        if !(assessment.strain_axis_max_angle_deg >= 0.0
+            && assessment.strain_axis_max_angle_deg <= 45.0)
+        {
+            return bad(
+                "strain_axis_max_angle_deg",
+                format!("{}° is outside 0–45°", assessment.strain_axis_max_angle_deg),
+                "20 is the default; beyond 45° the unseen north–south motion would weigh more \
+                 than the east–west motion that is measured",
+            );
+        }
         if !["masonry", "frame"].contains(&assessment.default_structure.as_str())
             && !raw.criteria.contains_key(&assessment.default_structure)
         {
@@ -786,6 +895,12 @@ impl Portfolio {
             .map(|w| crate::works::model::validate(w, path))
             .transpose()?;
 
+        let reference = raw
+            .reference
+            .as_ref()
+            .map(|r| validate_reference(r, path, &mut def))
+            .transpose()?;
+
         Ok(Portfolio {
             file: path.to_path_buf(),
             name: raw.portfolio.name.trim().to_string(),
@@ -800,6 +915,7 @@ impl Portfolio {
             triggers: raw.triggers,
             defaults_applied: defaults,
             works,
+            reference,
         })
     }
 }

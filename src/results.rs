@@ -110,6 +110,28 @@ pub struct StructureResult {
     pub damage_route: Option<String>,
     /// Evidence grade.
     pub evidence_grade: Option<String>,
+    /// Probability of each damage category, `{"0": p, …, "4": p}` ("4" stands for 4–5), from
+    /// the Monte Carlo draws through the whole chain; sums to 1; null without a category.
+    #[serde(default)]
+    pub damage_category_probabilities: Option<BTreeMap<String, f64>>,
+    /// Probability of the stated category (0–1).
+    #[serde(default)]
+    pub damage_category_probability: Option<f64>,
+    /// Probability of a category above the stated one (0–1).
+    #[serde(default)]
+    pub damage_category_exceedance_probability: Option<f64>,
+    /// Whether the horizontal strain was observed: `measured`, `not_observable_axis` (axis too
+    /// far from east–west), `not_observable_geometry` (no east-looking + west-looking pair) or
+    /// `not_measured`; null when no metrics were computed.
+    #[serde(default)]
+    pub horizontal_strain_status: Option<String>,
+    /// True when the category was stated without a measured horizontal strain, so it may be
+    /// understated; null without a category.
+    #[serde(default)]
+    pub category_lower_bound: Option<bool>,
+    /// Look directions of the kept points (`east-looking`, `west-looking`).
+    #[serde(default)]
+    pub look_directions: Vec<String>,
 
     /// Standard error of the vertical velocity, mm/yr.
     pub vertical_velocity_se_mm_per_yr: Option<f64>,
@@ -198,6 +220,11 @@ pub const SCALAR_FIELDS: &[&str] = &[
     "damage_category",
     "damage_route",
     "evidence_grade",
+    "damage_category_probability",
+    "damage_category_exceedance_probability",
+    "horizontal_strain_status",
+    "category_lower_bound",
+    "look_directions",
     "vertical_velocity_se_mm_per_yr",
     "east_velocity_se_mm_per_yr",
     "tilt_se",
@@ -230,6 +257,8 @@ impl StructureResult {
             "horizontal_strain" => self.horizontal_strain,
             "governing_strain" => self.governing_strain,
             "damage_category" => self.damage_category.map(f64::from),
+            "damage_category_probability" => self.damage_category_probability,
+            "damage_category_exceedance_probability" => self.damage_category_exceedance_probability,
             "predicted_settlement_mm" => self.predicted_settlement_mm,
             "predicted_category" => self.predicted_category.map(f64::from),
             "observed_to_predicted_settlement" => self.observed_to_predicted_settlement,
@@ -313,6 +342,47 @@ pub struct PortfolioResult {
     pub gone_since_previous: Vec<String>,
     /// Shard `K/N` if this run was one shard.
     pub shard: Option<String>,
+    /// Every dataset's viewing geometry: pass, look direction and unit vector.
+    #[serde(default)]
+    pub datasets: Vec<DatasetGeometry>,
+    /// The common reference area (`[reference]`); null when the datasets keep their own.
+    #[serde(default)]
+    pub common_reference: Option<CommonReference>,
+}
+
+/// One dataset's viewing geometry as the assessment used it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DatasetGeometry {
+    /// Dataset name.
+    pub name: String,
+    /// `ascending` or `descending`.
+    pub pass: String,
+    /// `east-looking` or `west-looking` (from the sign of u_E); null when |u_E| is too small.
+    pub look_direction: Option<String>,
+    /// Ground→satellite unit vector (east, north, up); with per-point angles, the normalised
+    /// mean over the dataset's retained points. Null when no point was retained.
+    pub unit_enu: Option<[f64; 3]>,
+    /// `scene angles` or `mean of per-point angles`.
+    pub unit_vector_from: String,
+    /// Scene incidence angle, degrees (null with per-point angles).
+    pub incidence_deg: Option<f64>,
+    /// Scene heading, degrees clockwise from north (null with per-point angles).
+    pub heading_deg: Option<f64>,
+    /// What re-referencing to the common area did; null without `[reference]`.
+    pub reference: Option<crate::ingest::reference::DatasetReference>,
+}
+
+/// The `[reference]` area as used.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CommonReference {
+    /// Centre, in `crs`.
+    pub point: [f64; 2],
+    /// CRS of the centre.
+    pub crs: String,
+    /// Radius, m.
+    pub radius_m: f64,
+    /// Fewest coherent points required per dataset.
+    pub min_points: usize,
 }
 
 /// The whole results.json document.

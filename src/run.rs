@@ -257,6 +257,56 @@ pub fn run_context<'a>(
     })
 }
 
+/// Every dataset's viewing geometry for the results' portfolio block and the report.
+pub fn dataset_geometries(
+    pf: &Portfolio,
+    datasets: &[ingest::Dataset],
+) -> Vec<crate::results::DatasetGeometry> {
+    use crate::series::los::{LookDirection, unit_vector_from_angles};
+    pf.datasets
+        .iter()
+        .zip(datasets)
+        .map(|(spec, d)| {
+            let look = to_series_look(spec.look);
+            let per_point = spec.columns.incidence.is_some() || spec.columns.heading.is_some();
+            let unit = if per_point {
+                let mut sum = [0.0f64; 3];
+                for p in d.iter_points() {
+                    let inc = p.incidence_deg();
+                    let head = p.heading_deg();
+                    if let Ok(u) = unit_vector_from_angles(inc, head, look) {
+                        for (a, c) in sum.iter_mut().zip(u) {
+                            *a += c;
+                        }
+                    }
+                }
+                let norm = sum.iter().map(|c| c * c).sum::<f64>().sqrt();
+                (norm > 0.0).then(|| sum.map(|c| c / norm))
+            } else {
+                spec.incidence_deg
+                    .zip(spec.heading_deg)
+                    .and_then(|(i, h)| unit_vector_from_angles(i, h, look).ok())
+            };
+            crate::results::DatasetGeometry {
+                name: spec.name.clone(),
+                pass: to_series_pass(spec.pass).label().to_string(),
+                look_direction: unit
+                    .and_then(LookDirection::of)
+                    .map(|l| l.label().to_string()),
+                unit_enu: unit.map(|u| u.map(|c| (c * 1e6).round() / 1e6)),
+                unit_vector_from: if per_point {
+                    "mean of per-point angles".into()
+                } else {
+                    "scene angles".into()
+                },
+                incidence_deg: spec.incidence_deg.filter(|_| !per_point),
+                heading_deg: spec.heading_deg.filter(|_| !per_point),
+                reference: d.reference.clone(),
+            }
+        })
+        .collect()
+}
+
 /// Read, associate and assess. Nothing is written.
 pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
     let mut warnings = Warnings::default();
@@ -508,6 +558,16 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         previous: opts.previous.as_ref().map(|p| p.display().to_string()),
         gone_since_previous: gone,
         shard: opts.shard.map(|(k, n)| format!("{k}/{n}")),
+        datasets: dataset_geometries(&pf, &datasets),
+        common_reference: pf
+            .reference
+            .as_ref()
+            .map(|r| crate::results::CommonReference {
+                point: r.point,
+                crs: r.crs.clone(),
+                radius_m: r.radius_m,
+                min_points: crate::ingest::reference::MIN_REFERENCE_POINTS,
+            }),
     };
     let results = Results {
         portfolio,
@@ -659,6 +719,12 @@ pub fn manifest(a: &Analysis, opts: &RunOptions) -> Result<serde_json::Value> {
             "portfolio": pf,
         },
         "defaults_applied": pf.defaults_applied,
+        "common_reference": {
+            "area": pf.reference,
+            "datasets": a.results.portfolio.datasets.iter()
+                .map(|d| serde_json::json!({"name": d.name, "reference": d.reference}))
+                .collect::<Vec<_>>(),
+        },
         "options": {
             "previous": opts.previous.as_ref().map(|p| p.display().to_string()),
             "no_reports": opts.no_reports,

@@ -476,6 +476,68 @@ pub fn assess_damage(input: &DamageInput, set: &CriteriaSet) -> DamageAssessment
     }
 }
 
+/// The route's category and governing strain alone, without the report texts of
+/// [`assess_damage`]: the same relations and rules (worst zone for the limiting-tensile-strain
+/// route; ε_p from |β| and the largest measured zone ε_h for Son & Cording), for the Monte Carlo
+/// draws of the category probabilities. Tested equal to `assess_damage` on random inputs.
+///
+/// # Units
+/// As [`assess_damage`]: strains absolute, + tension / extension.
+///
+/// # References
+/// As [`assess_damage`].
+///
+/// `None` when the route cannot give a category (no computable zone, no β, invalid set).
+pub fn route_category(
+    input: &DamageInput,
+    set: &CriteriaSet,
+    thresholds: &StrainThresholds,
+) -> Option<(DamageCategory, f64)> {
+    match set.route {
+        Route::LimitingTensileStrain => {
+            let mut worst: Option<f64> = None;
+            for z in &input.zones {
+                let axis = set.neutral_axis.for_mode(z.mode);
+                let Ok(beam) = beam_strains(
+                    z.deflection_ratio,
+                    z.length_m,
+                    input.height_m,
+                    set.e_over_g,
+                    axis,
+                ) else {
+                    continue;
+                };
+                let used = match z.horizontal_strain {
+                    Some(v) if v.is_finite() => set.compressive_strain.apply(v),
+                    Some(_) => continue,
+                    None => 0.0,
+                };
+                let Ok(r) = resultant_strains(&beam, used, set.poisson) else {
+                    continue;
+                };
+                if thresholds.classify(r.governing).is_err() {
+                    continue;
+                }
+                worst = Some(worst.map_or(r.governing, |w: f64| w.max(r.governing)));
+            }
+            let g = worst?;
+            Some((thresholds.classify(g).ok()?, g))
+        }
+        Route::SonCording => {
+            let beta = input.angular_distortion.filter(|b| b.is_finite())?.abs();
+            let eh = input
+                .zones
+                .iter()
+                .filter_map(|z| z.horizontal_strain)
+                .filter(|v| v.is_finite())
+                .fold(None::<f64>, |m, v| Some(m.map_or(v, |m| m.max(v))));
+            let lateral = set.compressive_strain.apply(eh.unwrap_or(0.0));
+            let p = principal_strain(beta, lateral).ok()?;
+            Some((thresholds.classify(p.strain).ok()?, p.strain))
+        }
+    }
+}
+
 type ZoneOutcome = (ZoneAssessment, Vec<String>, Vec<String>);
 
 /// One zone: strains and category, plus assumption and warning strings.
@@ -557,6 +619,52 @@ fn assess_zone(
 mod tests {
     use super::*;
     use crate::criteria::builtin;
+
+    #[test]
+    fn route_category_equals_assess_damage() {
+        // The lean path of the Monte Carlo against the full assessment, on seeded random
+        // zones, β and ε_h (both routes, both modes, ε_h missing, compressive and tensile).
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        let mut son = builtin("masonry").unwrap();
+        son.route = Route::SonCording;
+        for set in [builtin("masonry").unwrap(), builtin("frame").unwrap(), son] {
+            let t = set.strain_thresholds().unwrap();
+            for _ in 0..2000 {
+                let n = rng.random_range(0..4);
+                let zones = (0..n)
+                    .map(|_| {
+                        let d: f64 = rng.random_range(-3e-3..3e-3);
+                        ZoneInput {
+                            mode: if d >= 0.0 {
+                                Mode::Sagging
+                            } else {
+                                Mode::Hogging
+                            },
+                            length_m: rng.random_range(3.0..40.0),
+                            deflection_ratio: d,
+                            horizontal_strain: rng
+                                .random_bool(0.7)
+                                .then(|| rng.random_range(-2e-3..2e-3)),
+                        }
+                    })
+                    .collect();
+                let input = DamageInput {
+                    zones,
+                    angular_distortion: rng.random_bool(0.8).then(|| rng.random_range(0.0..8e-3)),
+                    height_m: rng.random_range(3.0..20.0),
+                    max_settlement_mm: None,
+                    max_slope: None,
+                };
+                let full = assess_damage(&input, &set);
+                let lean = route_category(&input, &set, &t);
+                assert_eq!(full.category, lean.map(|x| x.0), "{input:?}");
+                if let (Some(a), Some((_, b))) = (full.governing_strain, lean) {
+                    assert!((a - b).abs() <= 1e-15 * a.abs().max(1.0));
+                }
+            }
+        }
+    }
 
     fn zone(mode: Mode, length_m: f64, dr: f64, eh: Option<f64>) -> ZoneInput {
         ZoneInput {

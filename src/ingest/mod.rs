@@ -9,6 +9,7 @@
 pub mod decimal;
 pub mod footprints;
 pub mod points;
+pub mod reference;
 pub mod store;
 
 use geo::{Centroid, MapCoords, MultiPolygon};
@@ -181,17 +182,41 @@ pub fn read_datasets(
     warnings: &mut Warnings,
 ) -> Result<Vec<Dataset>, InputError> {
     let mut out = Vec::with_capacity(pf.datasets.len());
+    let area = pf
+        .reference
+        .as_ref()
+        .map(|r| reference::ReferenceArea::project(r, analysis, &pf.file))
+        .transpose()?;
     for (i, spec) in pf.datasets.iter().enumerate() {
         let dcrs = crs_or_input_error(&spec.crs, &pf.file, &format!("datasets[{i}].crs"))?;
         let to_a = Transformer::new(&dcrs, analysis);
-        let reach = |x: f64, y: f64| index.summarise(x, y);
-        out.push(points::read_points(
-            spec,
-            &to_a,
-            dcrs.is_geographic(),
-            &reach,
-            warnings,
-        )?);
+        // The reference area's points are kept as well (no link to any structure), however
+        // far they lie from the structures.
+        let reach = |x: f64, y: f64| {
+            index.summarise(x, y).or_else(|| {
+                area.filter(|a| a.contains(x, y))
+                    .map(|_| crate::association::PointAssociation::default())
+            })
+        };
+        let mut ds = points::read_points(spec, &to_a, dcrs.is_geographic(), &reach, warnings)?;
+        if let Some(a) = &area {
+            ds.reference = Some(reference::rereference(
+                &mut ds,
+                a,
+                pf.assessment.min_coherence,
+                &spec.path,
+            )?);
+        }
+        out.push(ds);
+    }
+    if area.is_none() && pf.datasets.len() >= 2 {
+        warnings.push(
+            "no_common_reference",
+            "several datasets and no [reference] section: each dataset keeps the reference \
+             point it was processed with; a reference that moves in one of them biases the \
+             combined vertical and east–west values (docs/methods.md, \"A common reference\")"
+                .to_string(),
+        );
     }
     Ok(out)
 }

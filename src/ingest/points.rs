@@ -1363,6 +1363,7 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
         has_coherence: coh_col.is_some(),
         ignored_columns: ignored,
         max_rounding_mm: store.max_rounding_mm,
+        reference: None,
     })
 }
 

@@ -220,6 +220,8 @@ pub struct Dataset {
     pub ignored_columns: Vec<String>,
     /// Largest rounding error of any stored value, mm (0 when every series is decimal-exact).
     pub max_rounding_mm: f64,
+    /// What re-referencing to the common area did (`[reference]`); `None` without it.
+    pub reference: Option<super::reference::DatasetReference>,
 }
 
 impl Dataset {
@@ -232,6 +234,39 @@ impl Dataset {
     pub fn iter_points(&self) -> impl Iterator<Item = PointRef<'_>> {
         (0..self.points.len()).map(move |i| self.point(i))
     }
+    /// Subtract a per-epoch offset (mm; one per epoch) from every point's series, in place.
+    ///
+    /// The differences are stored again with [`quantise`] in the scaled store (their decimals
+    /// are not known), so the dataset's [`Dataset::max_rounding_mm`] grows to at most
+    /// max|value| / 65 534 mm per point (module doc). Missing epochs stay missing; an offset
+    /// that is NaN makes that epoch missing for every point.
+    pub fn subtract_per_epoch(&mut self, offset_mm: &[f64]) {
+        let n = self.epochs.len();
+        if n == 0 || offset_mm.len() != n {
+            return;
+        }
+        let mut values = Vec::with_capacity(n);
+        let mut out = Vec::with_capacity(n);
+        for (p, chunk) in self.points.iter_mut().zip(self.codes.chunks_mut(n)) {
+            values.clear();
+            values.extend(
+                chunk
+                    .iter()
+                    .zip(offset_mm)
+                    .map(|(c, o)| f64::from(decode(*c, p.per_mm)) - o),
+            );
+            let max_abs = values
+                .iter()
+                .filter(|v| v.is_finite())
+                .fold(0.0f64, |m, v| m.max(v.abs()));
+            out.clear();
+            let q = quantise(&values, None, max_abs, &mut out);
+            chunk.copy_from_slice(&out);
+            p.per_mm = q.per_mm;
+            self.max_rounding_mm = self.max_rounding_mm.max(q.rounding_mm);
+        }
+    }
+
     /// Number of retained points.
     pub fn len(&self) -> usize {
         self.points.len()
@@ -555,6 +590,7 @@ mod tests {
             has_coherence: true,
             ignored_columns: vec![],
             max_rounding_mm: a.max_rounding_mm,
+            reference: None,
         };
         assert_eq!(ds.point(0).id(), "P1");
         assert_eq!(ds.point(1).id(), "Q22");
@@ -563,5 +599,52 @@ mod tests {
         assert_eq!(ds.point(0).coherence(), Some(0.9));
         assert_eq!(ds.point(0).incidence_deg(), 38.0);
         assert_eq!(ds.point(0).height_m(), None);
+    }
+
+    #[test]
+    fn subtracting_an_offset_keeps_gaps_and_rounds_within_the_bound() {
+        let mut out = Vec::new();
+        let q = quantise(&[0.0, -2.5, f64::NAN, 4.25], Some(2), 4.25, &mut out);
+        let mut points = vec![Point {
+            x: 0.0,
+            y: 0.0,
+            line: 2,
+            id_at: 0,
+            coherence: 0.9,
+            per_mm: q.per_mm,
+        }];
+        points[0].per_mm = q.per_mm;
+        let mut ds = Dataset {
+            name: "d".into(),
+            epochs: (0..4)
+                .map(|i| {
+                    NaiveDate::from_ymd_opt(2024, 1, 1).unwrap() + chrono::Duration::days(12 * i)
+                })
+                .collect(),
+            points,
+            ids: "P".into(),
+            codes: out,
+            association: vec![Default::default()],
+            incidence_deg: PerPoint::Constant(38.0),
+            heading_deg: PerPoint::Constant(-12.0),
+            height_m: vec![],
+            rows_read: 1,
+            rows_out_of_reach: 0,
+            has_coherence: true,
+            ignored_columns: vec![],
+            max_rounding_mm: 0.0,
+            reference: None,
+        };
+        ds.subtract_per_epoch(&[0.0, 1.0, 1.0, 0.333]);
+        let v = ds.point(0).series().to_vec();
+        let want = [0.0, -3.5, f32::NAN, 3.917];
+        let bound = ds.max_rounding_mm as f32 + 1e-6;
+        assert!(ds.max_rounding_mm > 0.0 && ds.max_rounding_mm <= 3.917 / 65_534.0 + 1e-12);
+        for (a, b) in v.iter().zip(want) {
+            assert!(
+                a.is_nan() == b.is_nan() && (b.is_nan() || (a - b).abs() <= bound),
+                "{v:?}"
+            );
+        }
     }
 }

@@ -135,11 +135,21 @@ pub struct MetricsConfig {
     pub residual_outlier_z: Option<f64>,
     /// Minimum points for the residual outlier pass (§7.3: n ≥ 6).
     pub min_points_outlier_pass: usize,
-    /// Smallest |sin az| of an axis for horizontal strain (§7.8: 0.5).
-    pub strain_min_abs_sin_azimuth: f64,
-    /// Largest condition number of the geometry matrix for the east/up split (our choice 10;
-    /// ascending/descending pairs give 1.0–1.8, §4.2).
+    /// Largest angle between an axis and east–west for horizontal strain (degrees; our choice
+    /// 20°, see `strain.rs` for the arithmetic: the unseen north–south normal strain then
+    /// weighs at most sin² 20° ≈ 12 %). Replaces the |sin az| ≥ 0.5 rule of §7.8, which let the
+    /// unseen component weigh up to 75 %.
+    pub strain_axis_max_angle_deg: f64,
+    /// Largest condition number of the geometry matrix for the east/up split (default 3, as
+    /// the series decomposition, insar-methods §4.2 [D]; ascending/descending pairs give
+    /// 1.0–1.8). Both an east-looking and a west-looking geometry are required as well.
     pub strain_max_condition: f64,
+    /// Fewest residual degrees of freedom of a profile fit for its Δ/L to support a damage
+    /// category (our choice 2: with one, the scatter that sets the SE is a single number).
+    pub min_profile_residual_dof: usize,
+    /// Largest distance, as a fraction of L, from each end of the axis to the nearest point for
+    /// the profile to support a damage category (our choice 0.2, see [`ProfileSupport`]).
+    pub max_end_gap_fraction: f64,
     /// Monte Carlo draws (0 switches the Monte Carlo off).
     pub monte_carlo_draws: usize,
     /// Seed of the Monte Carlo.
@@ -163,8 +173,10 @@ impl Default for MetricsConfig {
             min_across_spread_m: 1.0,
             residual_outlier_z: Some(3.0),
             min_points_outlier_pass: 6,
-            strain_min_abs_sin_azimuth: 0.5,
-            strain_max_condition: 10.0,
+            strain_axis_max_angle_deg: 20.0,
+            strain_max_condition: 3.0,
+            min_profile_residual_dof: 2,
+            max_end_gap_fraction: 0.2,
             monte_carlo_draws: 500,
             seed: 0x5EED_0F71_17A5,
             curve_samples: 41,
@@ -215,6 +227,12 @@ pub struct AxisMetrics {
     pub pairwise_angular_distortion: Option<PairBeta>,
     /// Horizontal strain along the axis (+ extension); `None` when not measurable.
     pub horizontal_strain: Option<AxisStrain>,
+    /// Why there is no horizontal strain along this axis; `None` when it was measured.
+    pub horizontal_strain_status: HorizontalStrainStatus,
+    /// Whether the profile's Δ/L can support a damage category; `None` without a profile.
+    pub profile_support: Option<ProfileSupport>,
+    /// Why no profile was fitted; `None` when one was.
+    pub profile_unavailable_because: Option<String>,
     /// Monte Carlo spread of Δ/L.
     pub deflection_ratio_spread: Option<Spread>,
     /// Whether |Δ/L| ≥ 2·SE (Monte Carlo SE, else the least-squares SE of the quadratic):
@@ -222,6 +240,112 @@ pub struct AxisMetrics {
     pub deflection_ratio_resolved: Option<bool>,
     /// Monte Carlo spread of β (signed).
     pub angular_distortion_spread: Option<Spread>,
+}
+
+/// Whether the horizontal strain along an axis was measured, and if not, why.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum HorizontalStrainStatus {
+    /// Measured from east–west displacements at both ends.
+    Measured,
+    /// The axis lies too far from east–west: the radar does not see the north–south part.
+    NotObservableAxis,
+    /// The data lack an east-looking and a west-looking geometry (or they are too alike) at an
+    /// end of the axis: east–west cannot be separated from vertical motion.
+    NotObservableGeometry,
+    /// Not measured for another reason (no footprint axes, a failed solve).
+    NotMeasured,
+}
+
+impl HorizontalStrainStatus {
+    /// Stable key as written in results.
+    pub fn key(self) -> &'static str {
+        match self {
+            HorizontalStrainStatus::Measured => "measured",
+            HorizontalStrainStatus::NotObservableAxis => "not_observable_axis",
+            HorizontalStrainStatus::NotObservableGeometry => "not_observable_geometry",
+            HorizontalStrainStatus::NotMeasured => "not_measured",
+        }
+    }
+
+    fn of(r: &Result<AxisStrain, strain::StrainError>) -> Self {
+        use strain::StrainError as E;
+        match r {
+            Ok(_) => HorizontalStrainStatus::Measured,
+            Err(E::AxisOffEastWest { .. }) => HorizontalStrainStatus::NotObservableAxis,
+            Err(E::NoOppositeLooks { .. } | E::IllConditioned { .. }) => {
+                HorizontalStrainStatus::NotObservableGeometry
+            }
+            Err(E::Solve(_)) => HorizontalStrainStatus::NotMeasured,
+        }
+    }
+}
+
+/// Whether a profile's deflection ratio is resolved well enough to give a damage category.
+///
+/// Rule (ours; insar-methods §7.7 and §7.10 [D] as a basis): at least
+/// [`MetricsConfig::min_profile_residual_dof`] residual degrees of freedom after the profile
+/// model (polynomial terms, one intercept per geometry, the across-axis term), and a point
+/// within [`MetricsConfig::max_end_gap_fraction`]·L of **each** end of the axis. Reason: Δ/L is
+/// the largest departure of the profile from the chord between the ends of a zone; where no
+/// point lies near an end, that end of the chord is an extrapolated polynomial value, and the
+/// extrapolation error grows with the cube of the gap for a cubic. A profile from five points
+/// in the west 40 % of a terrace can then produce any category.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ProfileSupport {
+    /// Points minus fitted parameters.
+    pub residual_dof: usize,
+    /// Gap from the start of the extent to the first point, fraction of L.
+    pub start_gap_fraction: f64,
+    /// Gap from the last point to the end of the extent, fraction of L.
+    pub end_gap_fraction: f64,
+    /// Both conditions hold.
+    pub resolved: bool,
+    /// Why not, in words ("points cover 40 % of the length; …"); `None` when resolved.
+    pub reason: Option<String>,
+}
+
+impl ProfileSupport {
+    /// Judge a fitted profile against the rule above.
+    pub fn of(p: &ProfileFit, cfg: &MetricsConfig) -> Self {
+        let k = p.degree + p.geometries.len() + usize::from(p.across_slope_mm_per_m.is_some());
+        let residual_dof = p.point_count.saturating_sub(k);
+        let (lo, hi) = p
+            .points
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), q| {
+                (a.min(q.s_m), b.max(q.s_m))
+            });
+        let start_gap_fraction = ((lo - p.s_min_m) / p.length_m).max(0.0);
+        let end_gap_fraction = ((p.s_max_m - hi) / p.length_m).max(0.0);
+        let mut why = Vec::new();
+        if start_gap_fraction > cfg.max_end_gap_fraction
+            || end_gap_fraction > cfg.max_end_gap_fraction
+        {
+            why.push(format!(
+                "points cover {:.0} % of the length (gaps of {:.0} % and {:.0} % at the ends; at \
+                 most {:.0} % allowed)",
+                (p.coverage_fraction * 100.0).round(),
+                start_gap_fraction * 100.0,
+                end_gap_fraction * 100.0,
+                cfg.max_end_gap_fraction * 100.0
+            ));
+        }
+        if residual_dof < cfg.min_profile_residual_dof {
+            why.push(format!(
+                "{residual_dof} residual degree(s) of freedom after the profile model ({} points, \
+                 {k} parameters; at least {} needed)",
+                p.point_count, cfg.min_profile_residual_dof
+            ));
+        }
+        ProfileSupport {
+            residual_dof,
+            start_gap_fraction,
+            end_gap_fraction,
+            resolved: why.is_empty(),
+            reason: (!why.is_empty()).then(|| why.join("; ")),
+        }
+    }
 }
 
 /// Tilt from one geometry's points alone (comparison of datasets, insar-methods §7.4).
@@ -304,6 +428,13 @@ pub struct StructureMetrics {
     pub excluded_points: Vec<ExcludedPoint>,
     /// Geometries among the used points, ascending.
     pub geometries: Vec<usize>,
+    /// Look directions among the used points (east-looking first): what the evidence grade
+    /// counts, since two tracks looking the same way cannot separate east–west from vertical.
+    pub look_directions: Vec<crate::series::los::LookDirection>,
+    /// Building-level horizontal-strain status: `measured` when every axis whose zones go to
+    /// the damage stage has a measured ε_h, else the status of the first that has not
+    /// (principal first).
+    pub horizontal_strain_status: HorizontalStrainStatus,
     /// Structure height used downstream (m), as given.
     pub height_m: f64,
     /// Footprint axes; `None` when the footprint is unusable.
@@ -619,6 +750,7 @@ pub fn structure_metrics(
             ));
         }
     }
+    let look_directions = crate::series::los::look_directions(pts.iter().map(|p| p.unit_enu));
     let horizontal_strain = axis_metrics
         .iter()
         .filter_map(|a| a.horizontal_strain.as_ref().map(|s| s.horizontal_strain))
@@ -802,6 +934,16 @@ pub fn structure_metrics(
         }
     });
 
+    let horizontal_strain_status = axis_metrics
+        .iter()
+        .filter(|a| axis_counts_for_damage(a, deflection_ratio_axis))
+        .map(|a| a.horizontal_strain_status)
+        .find(|s| *s != HorizontalStrainStatus::Measured)
+        .unwrap_or(if axis_metrics.is_empty() {
+            HorizontalStrainStatus::NotMeasured
+        } else {
+            HorizontalStrainStatus::Measured
+        });
     let tilt_top_offset_mm = plane
         .as_ref()
         .filter(|_| height_m.is_finite() && height_m > 0.0)
@@ -811,6 +953,8 @@ pub fn structure_metrics(
         point_count: n,
         excluded_points: excluded,
         geometries,
+        look_directions,
+        horizontal_strain_status,
         height_m,
         axes,
         settlement_mm: settlement.as_ref().map(|s| s.max_settlement_mm),
@@ -877,9 +1021,11 @@ fn axis_result(
             .fold(f64::NEG_INFINITY, f64::max);
         (hi - lo) / axis.length_m
     };
+    let mut profile_unavailable_because = None;
     let profile = match profile::fit_profile(&samples, axis.s_min_m, axis.s_max_m, pcfg) {
         Ok(p) => Some(p),
         Err(e) => {
+            profile_unavailable_because = Some(e.to_string());
             refusals.push(format!(
                 "{name} axis (azimuth {:.1}°) profile: {e}",
                 axis.azimuth_deg
@@ -904,12 +1050,14 @@ fn axis_result(
         }
         direct::pairwise_beta_max(&x, &s, p.chord_tilt, cfg.min_pair_spacing_m)
     });
-    let horizontal_strain = match strain::axis_strain(
+    let strain_result = strain::axis_strain(
         pts,
         axis,
-        cfg.strain_min_abs_sin_azimuth,
+        cfg.strain_axis_max_angle_deg,
         cfg.strain_max_condition,
-    ) {
+    );
+    let horizontal_strain_status = HorizontalStrainStatus::of(&strain_result);
+    let horizontal_strain = match strain_result {
         Ok(s) => Some(s),
         Err(e) => {
             refusals.push(format!(
@@ -919,6 +1067,7 @@ fn axis_result(
             None
         }
     };
+    let profile_support = profile.as_ref().map(|p| ProfileSupport::of(p, cfg));
     AxisMetrics {
         kind,
         azimuth_deg: axis.azimuth_deg,
@@ -930,6 +1079,9 @@ fn axis_result(
         profile,
         pairwise_angular_distortion: pairwise,
         horizontal_strain,
+        horizontal_strain_status,
+        profile_support,
+        profile_unavailable_because,
         deflection_ratio_spread: None,
         deflection_ratio_resolved: None,
         angular_distortion_spread: None,
@@ -1281,11 +1433,7 @@ mod tests {
         let e = m.axis_metrics[0].horizontal_strain.as_ref().unwrap();
         assert!((e.horizontal_strain - 5e-5).abs() < 1e-12, "{e:?}");
         assert_eq!(m.horizontal_strain, Some(e.horizontal_strain));
-        assert!(
-            m.refusals
-                .iter()
-                .any(|r| r.contains("north–south not observable"))
-        );
+        assert!(m.refusals.iter().any(|r| r.contains("90° from east–west")));
         // The 3 mm dataset offset does not bias the tilt (0.02 mm/m eastwards → 2e-5 at 90°).
         assert!((m.tilt.unwrap() - 2e-5).abs() < 1e-12);
         assert!((m.tilt_azimuth_deg.unwrap() - 90.0).abs() < 1e-6);

@@ -18,10 +18,20 @@
 //!   with end thirds the groups sit roughly 2L/3 apart, and dividing by L would understate the
 //!   strain by about a third. The relation itself ([`horizontal_strain`]) takes whatever length
 //!   it is given, and reproduces the §7.8 check with L.
-//! - **Refusal**: |sin az| < 0.5 (axis closer to north–south than 30°: "east–west only;
-//!   north–south not observable"), an end with fewer than two geometries, or an end whose
-//!   geometry matrix [u_E, u_U] has a condition number above the limit (geometries too alike to
-//!   separate east from up). A refusal means *unknown*, never zero strain (damage-relations §9.4).
+//! - **Refusal**: an axis more than `max_axis_angle_deg` (default 20°) from east–west, an end
+//!   without at least one east-looking and one west-looking geometry, or an end whose geometry
+//!   matrix [u_E, u_U] has a condition number above the limit (default 3, as the series
+//!   decomposition). A refusal means *unknown*, never zero strain (damage-relations §9.4).
+//! - **Why 20°**: the radar does not see north–south motion. Along an axis at angle φ from
+//!   east–west the axial strain is ε_ss = ε_EE·cos²φ + (∂u_E/∂N + ∂u_N/∂E)·sin φ·cos φ +
+//!   ε_NN·sin²φ, and the east displacements measure only the terms in u_E. The unseen normal
+//!   strain ε_NN weighs sin²φ of itself: 12 % at 20°, 25 % at 30°, 50 % at 45°; the unseen
+//!   shear gradient ∂u_N/∂E weighs sin φ·cos φ (0.32 at 20°, 0.5 at 45°). Beyond 20° the value
+//!   would be reported as a measured strain while a north–south strain of the same size (a
+//!   tunnel or excavation running east–west beside the building) goes unseen; Plinth then gives
+//!   no ε_h and says the category may be understated. 20° is our choice (derivation above,
+//!   insar-methods §4.3 for why north is not observable); `[assessment] strain_axis_max_angle_deg`
+//!   changes it.
 //! - A constant reference offset of one dataset biases d_E at both ends almost equally and
 //!   cancels in the difference; north motion leaks into d_U mostly, not d_E (§4.3).
 
@@ -110,38 +120,51 @@ pub struct AxisStrain {
 /// Why no strain can be given.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum StrainError {
+    /// The axis is too far from east–west: the unseen north–south motion would weigh too much.
     #[error(
-        "east–west only; north–south not observable (axis azimuth {azimuth_deg:.1}°, |sin az| {abs_sin:.2} < {min:.2})"
+        "not observable along this axis: it lies {angle_deg:.0}° from east–west (limit {max_deg:.0}°) and the radar does not see north–south motion"
     )]
-    NorthSouthAxis {
+    AxisOffEastWest {
+        /// Axis azimuth (degrees clockwise from north).
         azimuth_deg: f64,
-        abs_sin: f64,
-        min: f64,
+        /// Angle between the axis and east–west (degrees, 0–90).
+        angle_deg: f64,
+        /// The limit applied (degrees).
+        max_deg: f64,
     },
+    /// An end lacks an east-looking or a west-looking geometry.
     #[error(
-        "{end} third of the axis has points from {geometries} viewing geometry(ies); both geometries are needed at both ends"
+        "{end} third of the axis has points looking {looks}; one east-looking and one west-looking geometry are needed at both ends to separate east–west from vertical motion"
     )]
-    MissingGeometry {
+    NoOppositeLooks {
+        /// "start" or "end".
         end: &'static str,
-        geometries: usize,
+        /// The look directions present, in words.
+        looks: String,
     },
+    /// The geometries are too alike to separate east from up.
     #[error(
         "{end} third: viewing geometries too similar to separate east from up (condition {condition:.1} > {max:.1})"
     )]
     IllConditioned {
+        /// "start" or "end".
         end: &'static str,
+        /// Condition number of the [u_E, u_U] matrix.
         condition: f64,
+        /// The limit applied.
         max: f64,
     },
+    /// The least-squares solve failed.
     #[error("decomposition failed: {0}")]
     Solve(String),
 }
 
 /// Horizontal strain along an axis from the points of both viewing geometries at its two ends.
 ///
-/// See the module docs for the choices. `min_abs_sin` is the §7.8 limit (0.5), `max_condition`
-/// the largest accepted condition number of the geometry matrix (typical ascending/descending
-/// pairs give 1.0–1.8, §4.2).
+/// See the module docs for the choices. `max_axis_angle_deg` is the largest angle between the
+/// axis and east–west (default 20°, module docs), `max_condition` the largest accepted
+/// condition number of the geometry matrix (default 3; typical ascending/descending pairs give
+/// 1.0–1.8, §4.2).
 ///
 /// # Units
 /// Points' LOS in mm (+ towards the satellite), unit vectors ground→satellite (E, N, U);
@@ -152,15 +175,16 @@ pub enum StrainError {
 pub fn axis_strain(
     points: &[MetricPoint],
     axis: &Axis,
-    min_abs_sin: f64,
+    max_axis_angle_deg: f64,
     max_condition: f64,
 ) -> Result<AxisStrain, StrainError> {
     let (sin_az, _) = axis.direction();
-    if !(sin_az.abs() >= min_abs_sin) {
-        return Err(StrainError::NorthSouthAxis {
+    let angle_deg = angle_from_east_west_deg(axis.azimuth_deg);
+    if !(angle_deg <= max_axis_angle_deg + 1e-9) {
+        return Err(StrainError::AxisOffEastWest {
             azimuth_deg: axis.azimuth_deg,
-            abs_sin: sin_az.abs(),
-            min: min_abs_sin,
+            angle_deg,
+            max_deg: max_axis_angle_deg,
         });
     }
     let third = axis.length_m / 3.0;
@@ -188,6 +212,20 @@ pub fn axis_strain(
     })
 }
 
+/// Angle between an axis of the given azimuth and the east–west line (degrees, 0–90).
+///
+/// # Examples
+/// ```
+/// use plinth::metrics::strain::angle_from_east_west_deg;
+/// assert!((angle_from_east_west_deg(90.0) - 0.0).abs() < 1e-12);
+/// assert!((angle_from_east_west_deg(45.0) - 45.0).abs() < 1e-12);
+/// assert!((angle_from_east_west_deg(250.0) - 20.0).abs() < 1e-9);
+/// ```
+pub fn angle_from_east_west_deg(azimuth_deg: f64) -> f64 {
+    let a = azimuth_deg.rem_euclid(180.0);
+    (a - 90.0).abs()
+}
+
 /// WLS (d_E, d_U) from per-geometry means of one end group (north neglected).
 pub fn decompose_end(
     pts: &[&MetricPoint],
@@ -198,10 +236,16 @@ pub fn decompose_end(
     let mut geoms: Vec<usize> = pts.iter().map(|p| p.geometry).collect();
     geoms.sort_unstable();
     geoms.dedup();
-    if geoms.len() < 2 {
-        return Err(StrainError::MissingGeometry {
+    let looks = crate::series::los::look_directions(pts.iter().map(|p| p.unit_enu));
+    if looks.len() < 2 {
+        let words: Vec<&str> = looks.iter().map(|l| l.label()).collect();
+        return Err(StrainError::NoOppositeLooks {
             end,
-            geometries: geoms.len(),
+            looks: if words.is_empty() {
+                "in no usable direction".to_string()
+            } else {
+                format!("{} only", words.join(", "))
+            },
         });
     }
     let mut rows = Vec::new();
@@ -310,7 +354,7 @@ mod tests {
         let (u1, u2) = (los_unit(39.0, -12.0), los_unit(37.0, 192.0));
         let a = point(0.0, 0.0, 3.0, -10.0, u1, 0);
         let b = point(0.0, 0.0, 3.0, -10.0, u2, 1);
-        let d = decompose_end(&[&a, &b], &|_| 0.0, "start", 10.0).unwrap();
+        let d = decompose_end(&[&a, &b], &|_| 0.0, "start", 3.0).unwrap();
         assert!((d.east_mm - 3.0).abs() < 1e-9 && (d.up_mm + 10.0).abs() < 1e-9);
         assert!((d.east_se_mm - 1.174).abs() < 2e-3, "{d:?}");
         assert!((d.up_se_mm - 0.8974).abs() < 2e-4);
@@ -343,7 +387,12 @@ mod tests {
             // Same axis coordinate, 0.7 m across the axis.
             pts.push(point(x + 0.7 * un, y - 0.7 * ue, d_e, -5.0, u2, 1));
         }
-        let r = axis_strain(&pts, &ax, 0.5, 10.0).unwrap();
+        // The 60° axis lies 30° from east–west: accepted only with the limit raised to 30°.
+        assert!(matches!(
+            axis_strain(&pts, &ax, 20.0, 3.0),
+            Err(StrainError::AxisOffEastWest { .. })
+        ));
+        let r = axis_strain(&pts, &ax, 30.0, 3.0).unwrap();
         let want = k_mm_per_m * ue * 1e-3;
         assert!((r.horizontal_strain - want).abs() < 1e-12, "{r:?}");
         assert!((r.gauge_length_m - 22.0).abs() < 1e-6);
@@ -358,8 +407,21 @@ mod tests {
             s_min_m: -15.0,
             s_max_m: 15.0,
         };
-        let e = axis_strain(&[], &ax, 0.5, 10.0).unwrap_err();
-        assert!(e.to_string().contains("north–south not observable"));
+        let e = axis_strain(&[], &ax, 20.0, 3.0).unwrap_err();
+        assert!(e.to_string().contains("80° from east–west"), "{e}");
+        // 45° from east–west: refused at the default 20° (module docs: the unseen ε_NN would
+        // weigh sin² 45° = 50 %).
+        let e = axis_strain(
+            &[],
+            &Axis {
+                azimuth_deg: 45.0,
+                ..ax
+            },
+            20.0,
+            3.0,
+        )
+        .unwrap_err();
+        assert!(matches!(e, StrainError::AxisOffEastWest { .. }), "{e}");
         let ax = Axis {
             azimuth_deg: 90.0,
             ..ax
@@ -370,8 +432,29 @@ mod tests {
             .map(|&x| point(x, 0.0, 0.0, -3.0, u1, 0))
             .collect();
         assert!(matches!(
-            axis_strain(&pts, &ax, 0.5, 10.0),
-            Err(StrainError::MissingGeometry { geometries: 1, .. })
+            axis_strain(&pts, &ax, 20.0, 3.0),
+            Err(StrainError::NoOppositeLooks { .. })
         ));
+    }
+
+    #[test]
+    fn two_same_look_tracks_are_refused() {
+        // Two ascending right-looking tracks (θ 33° and 45°, α −12°): both east-looking. Their
+        // geometry matrix has condition ≈ 9.6 (insar-methods §4.2 check: the old limit of 10
+        // accepted it), yet they cannot separate east from up.
+        let ax = Axis {
+            azimuth_deg: 90.0,
+            length_m: 30.0,
+            s_min_m: -15.0,
+            s_max_m: 15.0,
+        };
+        let (u1, u2) = (los_unit(33.0, -12.0), los_unit(45.0, -12.0));
+        let mut pts = Vec::new();
+        for x in [-14.0, -12.0, 12.0, 14.0] {
+            pts.push(point(x, 0.0, 0.0, -3.0, u1, 0));
+            pts.push(point(x, 0.5, 0.0, -3.0, u2, 1));
+        }
+        let e = axis_strain(&pts, &ax, 20.0, 10.0).unwrap_err();
+        assert!(e.to_string().contains("east-looking only"), "{e}");
     }
 }

@@ -61,6 +61,44 @@ fn missing_reason(r: &StructureResult) -> &'static str {
 }
 
 /// Text and colour code of the trigger state.
+/// What the radar could not observe and what it does to the verdict, for the verdict box.
+pub fn observability_notes(r: &StructureResult) -> Vec<String> {
+    let mut notes = Vec::new();
+    let stated = r.damage_category.is_some();
+    match r.horizontal_strain_status.as_deref() {
+        Some("not_observable_axis") => notes.push(format!(
+            "Horizontal strain was not observable along this building's axis: the radar does not \
+             see north–south motion.{}",
+            if stated {
+                " The category comes from bending and shear alone and may be understated."
+            } else {
+                ""
+            }
+        )),
+        Some("not_observable_geometry") => notes.push(format!(
+            "Horizontal strain was not observable: the data lack an east-looking and a \
+             west-looking geometry at both ends of the building.{}",
+            if stated {
+                " The category comes from bending and shear alone and may be understated."
+            } else {
+                ""
+            }
+        )),
+        Some("not_measured") if stated => notes.push(
+            "Horizontal strain could not be measured; the category comes from bending and shear \
+             alone and may be understated."
+                .to_string(),
+        ),
+        _ => {}
+    }
+    if r.look_directions.len() < 2 && r.n_points > 0 {
+        notes.push(
+            "One look direction only: vertical values assume no east–west motion.".to_string(),
+        );
+    }
+    notes
+}
+
 fn trigger(r: &StructureResult) -> (String, String) {
     match r.trigger_status.as_deref() {
         Some("not_evaluated") => ("not evaluated".to_string(), "not_evaluated".to_string()),
@@ -286,8 +324,18 @@ pub fn asset_report(
             status: st,
             status_reasons: r.status_reasons.clone(),
             category_index: r.damage_category,
-            category_probability: None,
-            category_distribution: vec![],
+            category_probability: r.damage_category_probability,
+            category_distribution: r
+                .damage_category_probabilities
+                .as_ref()
+                .map(|m| {
+                    (0..crate::verdict::CATEGORY_COUNT)
+                        .map(|k| m.get(&k.to_string()).copied().unwrap_or(0.0))
+                        .collect()
+                })
+                .unwrap_or_default(),
+            higher_probability: r.damage_category_exceedance_probability,
+            observability_notes: observability_notes(r),
             governing_route: r.damage_route.clone(),
             evidence_grade: r
                 .evidence_grade
@@ -321,6 +369,8 @@ pub fn asset_report(
                 .map(|name| DatasetView {
                     name: name.clone(),
                     geometry: "see input files".to_string(),
+                    look: "see input files".to_string(),
+                    unit_vector: "see input files".to_string(),
                     incidence: "see input files".to_string(),
                     epochs: "not stated".to_string(),
                     first_epoch: "not stated".to_string(),
@@ -376,6 +426,9 @@ pub fn rank_input(r: &StructureResult) -> RankInput {
         velocity_mm_per_yr: r
             .vertical_velocity_mm_per_yr
             .map(|v| (v, r.vertical_velocity_se_mm_per_yr)),
+        category_probability: r
+            .damage_category_probability
+            .zip(r.damage_category_exceedance_probability),
         evidence_grade: r
             .evidence_grade
             .clone()

@@ -413,6 +413,11 @@ pub struct VerdictView {
     pub category_probability: Option<String>,
     /// Probability of each category, in category order (empty when not computed).
     pub category_distribution: Vec<Param>,
+    /// Probability of any higher category, e.g. "6 %"; `None` without a category.
+    pub higher_probability: Option<String>,
+    /// What the radar could not observe and what that does to the verdict, in plain words
+    /// (horizontal strain not observable, category a lower bound); shown in the verdict box.
+    pub observability_notes: Vec<String>,
     /// Which relation decided the category, or "not computed: ...".
     pub governing_route: String,
     /// Evidence grade (high / medium / low / insufficient).
@@ -438,6 +443,10 @@ pub struct VerdictInput {
     pub category_probability: Option<f64>,
     /// Probabilities of categories 0..=4 (4 = "4–5"); empty when not computed.
     pub category_distribution: Vec<f64>,
+    /// Probability of a category above the stated one.
+    pub higher_probability: Option<f64>,
+    /// Observability notes (see [`VerdictView::observability_notes`]).
+    pub observability_notes: Vec<String>,
     /// Governing route, e.g. "limiting tensile strain, hogging, diagonal".
     pub governing_route: Option<String>,
     /// Evidence grade label.
@@ -499,6 +508,11 @@ impl VerdictView {
                 .as_ref()
                 .and(input.category_probability)
                 .map(super::format::probability),
+            higher_probability: category
+                .as_ref()
+                .and(input.higher_probability)
+                .map(super::format::probability),
+            observability_notes: input.observability_notes,
             category,
             category_distribution,
             governing_route: match input.governing_route {
@@ -584,6 +598,10 @@ pub struct DatasetView {
     pub name: String,
     /// "ascending" / "descending".
     pub geometry: String,
+    /// "east-looking" / "west-looking" (from the sign of the unit vector's east component).
+    pub look: String,
+    /// Ground→satellite unit vector (east, north, up), e.g. "(−0.616, −0.131, 0.777)".
+    pub unit_vector: String,
     /// Incidence angle, e.g. "39.0°".
     pub incidence: String,
     /// Number of epochs (text: "not stated" when the adapter does not know it).
@@ -1013,6 +1031,9 @@ pub struct RankRow {
     pub category_colour: Option<String>,
     /// Governing tensile strain, e.g. "0.081 %", or "not computed".
     pub governing_strain: String,
+    /// Probability of the stated category and of a higher one, e.g. "p 84 %; higher 6 %";
+    /// empty without a category.
+    pub category_probability: String,
     /// Vertical velocity, e.g. "-3.2 ± 0.4 mm/yr".
     pub velocity: String,
     /// Evidence grade.
@@ -1041,6 +1062,8 @@ pub struct RankInput {
     pub governing_strain: Option<f64>,
     /// Vertical velocity, mm/yr, + up, with its standard error.
     pub velocity_mm_per_yr: Option<(f64, Option<f64>)>,
+    /// Probability of the stated category and of a higher one.
+    pub category_probability: Option<(f64, f64)>,
     /// Evidence grade label.
     pub evidence_grade: String,
     /// Trigger status text.
@@ -1098,6 +1121,14 @@ pub fn rank_rows(mut inputs: Vec<RankInput>) -> Vec<RankRow> {
                 governing_strain: match key_strain(&r) {
                     Some(s) if assessable => super::format::percent(s, 3),
                     _ => NOT_COMPUTED.to_string(),
+                },
+                category_probability: match (&category, r.category_probability) {
+                    (Some(_), Some((p, hi))) => format!(
+                        "p {}; higher {}",
+                        super::format::probability(p),
+                        super::format::probability(hi)
+                    ),
+                    _ => String::new(),
                 },
                 velocity: match r.velocity_mm_per_yr {
                     Some((v, se)) if v.is_finite() => {
@@ -1466,6 +1497,8 @@ mod tests {
             category_index: cat,
             category_probability: Some(0.7),
             category_distribution: vec![0.2, 0.7, 0.1, 0.0, 0.0],
+            higher_probability: Some(0.1),
+            observability_notes: vec![],
             governing_route: Some("limiting tensile strain".into()),
             evidence_grade: "medium".into(),
             trigger: None,
@@ -1532,6 +1565,7 @@ mod tests {
             category_index: cat,
             governing_strain: strain,
             velocity_mm_per_yr: Some((-1.0, None)),
+            category_probability: None,
             evidence_grade: "low".into(),
             trigger_status: "none".into(),
         };

@@ -1162,12 +1162,32 @@ fn enrich_model(
                 .flatten()
                 .filter(|row| row.dataset == d.name && row.status == "kept")
                 .count();
+            let g = a
+                .results
+                .portfolio
+                .datasets
+                .iter()
+                .find(|g| g.name == spec.name);
             DatasetView {
                 name: one_line(&spec.name),
                 geometry: match spec.pass {
                     crate::portfolio::Pass::Ascending => "ascending".into(),
                     crate::portfolio::Pass::Descending => "descending".into(),
                 },
+                look: g
+                    .and_then(|g| g.look_direction.clone())
+                    .unwrap_or_else(|| "not determined".into()),
+                unit_vector: g
+                    .and_then(|g| g.unit_enu)
+                    .map(|u| {
+                        format!(
+                            "({}, {}, {})",
+                            fixed(u[0], 3),
+                            fixed(u[1], 3),
+                            fixed(u[2], 3)
+                        )
+                    })
+                    .unwrap_or_else(|| "not determined".into()),
                 incidence: spec
                     .incidence_deg
                     .map(|i| format!("{}°", fixed(i, 1)))

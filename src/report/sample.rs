@@ -125,6 +125,8 @@ pub fn assessed_asset(name: &str) -> Result<(AssetReport, AssetCharts), ReportEr
             category_index: Some(0),
             category_probability: Some(0.94),
             category_distribution: vec![0.94, 0.05, 0.01, 0.0, 0.0],
+            higher_probability: Some(0.06),
+            observability_notes: vec![],
             governing_route: Some("limiting tensile strain (Burland 1995), hogging zone, bending".into()),
             evidence_grade: "adequate".into(),
             trigger: Some(("below alert level (alert at 5.0 mm/yr)".into(), "none".into())),
@@ -166,6 +168,8 @@ pub fn assessed_asset(name: &str) -> Result<(AssetReport, AssetCharts), ReportEr
                 DatasetView {
                     name: "asc-track-A".into(),
                     geometry: "ascending".into(),
+                    look: "east-looking".into(),
+                    unit_vector: "(−0.616, −0.131, 0.777)".into(),
                     incidence: "39.0°".into(),
                     epochs: "92".into(),
                     first_epoch: start.to_string(),
@@ -175,6 +179,8 @@ pub fn assessed_asset(name: &str) -> Result<(AssetReport, AssetCharts), ReportEr
                 DatasetView {
                     name: "desc-track-B".into(),
                     geometry: "descending".into(),
+                    look: "west-looking".into(),
+                    unit_vector: "(0.589, −0.125, 0.799)".into(),
                     incidence: "37.0°".into(),
                     epochs: "90".into(),
                     first_epoch: start.to_string(),
@@ -405,6 +411,8 @@ pub fn insufficient_asset() -> Result<(AssetReport, AssetCharts), ReportError> {
         category_index: None,
         category_probability: None,
         category_distribution: vec![],
+        higher_probability: None,
+        observability_notes: vec![],
         governing_route: None,
         evidence_grade: "insufficient".into(),
         trigger: None,
@@ -502,6 +510,7 @@ pub fn portfolio() -> Result<(PortfolioReport, PortfolioCharts), ReportError> {
                 category_index: cat,
                 governing_strain: strain,
                 velocity_mm_per_yr: vel,
+                category_probability: cat.map(|_| (0.9, 0.04)),
                 evidence_grade: grade.into(),
                 trigger_status: if cat.is_none() {
                     "not evaluated".into()

@@ -177,6 +177,15 @@ fn wls_svd(
 /// assert!((x.condition_number - 1.309).abs() < 1e-3);
 /// ```
 pub fn decompose_east_up(obs: &[LosObservation]) -> Result<EastUp, DecomposeError> {
+    decompose_east_up_within(obs, MAX_CONDITION_NUMBER)
+}
+
+/// [`decompose_east_up`] with a chosen condition-number limit (`[assessment]
+/// max_condition_number`); the opposite-look requirement holds whatever the limit.
+pub fn decompose_east_up_within(
+    obs: &[LosObservation],
+    max_condition: f64,
+) -> Result<EastUp, DecomposeError> {
     if obs.len() < 2 {
         return Err(DecomposeError::TooFewGeometries {
             needed: 2,
@@ -196,17 +205,17 @@ pub fn decompose_east_up(obs: &[LosObservation]) -> Result<EastUp, DecomposeErro
         }
     });
     let cond = condition_number(&g);
-    if !(cond <= MAX_CONDITION_NUMBER) {
+    if !(cond <= max_condition) {
         return Err(DecomposeError::IllConditioned {
             condition_number: cond,
-            limit: MAX_CONDITION_NUMBER,
+            limit: max_condition,
         });
     }
     let y = DVector::from_iterator(k, obs.iter().map(|o| o.los_mm));
     let sigma: Vec<f64> = obs.iter().map(|o| o.sigma_mm).collect();
     let (x, cov) = wls_svd(&g, &y, &sigma).ok_or(DecomposeError::IllConditioned {
         condition_number: f64::INFINITY,
-        limit: MAX_CONDITION_NUMBER,
+        limit: max_condition,
     })?;
     let r = &y - &g * &x;
     let residuals_mm: Vec<f64> = r.iter().cloned().collect();

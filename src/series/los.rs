@@ -47,6 +47,67 @@ pub enum LookSide {
     Left,
 }
 
+/// Which way a geometry looks across the ground, from the sign of the east component of its
+/// ground→satellite unit vector: `u_E < 0` means the satellite is west of the target, so the
+/// radar looks towards the east.
+///
+/// Only geometries that look in opposite directions can separate east–west from vertical
+/// motion: two east-looking tracks (two ascending right-looking passes at 33° and 45°, say)
+/// both see east motion with the same sign as uplift, and their geometry matrix is nearly
+/// singular (insar-methods.md §4.2, §4.3).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum LookDirection {
+    /// The radar looks eastwards (`u_E < 0`; ascending right-looking passes).
+    EastLooking,
+    /// The radar looks westwards (`u_E > 0`; descending right-looking passes).
+    WestLooking,
+}
+
+impl LookDirection {
+    /// Smallest |u_E| for a look direction to count (a geometry looking due north or south
+    /// sees no east–west motion at all). Plinth choice: 0.05 ≈ sin 3°, far below any
+    /// side-looking SAR (|u_E| ≈ 0.3–0.8, insar-methods.md §2.5).
+    pub const MIN_ABS_EAST: f64 = 0.05;
+
+    /// Look direction of a ground→satellite unit vector; `None` when |u_E| is below
+    /// [`Self::MIN_ABS_EAST`] or the vector is not finite.
+    ///
+    /// # Examples
+    /// ```
+    /// use plinth::series::los::LookDirection;
+    /// // insar-methods.md Appendix A LOS-1 (ascending, right-looking): u_E = −0.6156.
+    /// assert_eq!(LookDirection::of([-0.6156, -0.1308, 0.7771]), Some(LookDirection::EastLooking));
+    /// assert_eq!(LookDirection::of([0.5887, -0.1251, 0.7986]), Some(LookDirection::WestLooking));
+    /// ```
+    pub fn of(unit_enu: [f64; 3]) -> Option<LookDirection> {
+        let e = unit_enu[0];
+        if !e.is_finite() || e.abs() < Self::MIN_ABS_EAST {
+            None
+        } else if e < 0.0 {
+            Some(LookDirection::EastLooking)
+        } else {
+            Some(LookDirection::WestLooking)
+        }
+    }
+
+    /// Label as written in outputs (`east-looking` / `west-looking`).
+    pub fn label(self) -> &'static str {
+        match self {
+            LookDirection::EastLooking => "east-looking",
+            LookDirection::WestLooking => "west-looking",
+        }
+    }
+}
+
+/// Distinct look directions among unit vectors, east-looking first.
+pub fn look_directions(units: impl IntoIterator<Item = [f64; 3]>) -> Vec<LookDirection> {
+    let mut v: Vec<LookDirection> = units.into_iter().filter_map(LookDirection::of).collect();
+    v.sort_unstable();
+    v.dedup();
+    v
+}
+
 /// Why a LOS geometry was refused.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum LosError {

@@ -36,14 +36,16 @@ use serde::Serialize;
 
 use aggregate::{AggregateSeries, aggregate_epochs};
 use breakpoint::{BreakpointConfig, BreakpointTest, Cusum, breakpoint_test, ols_cusum};
-use decompose::{AscDescConsistency, LosObservation, asc_desc_consistency, decompose_east_up};
+use decompose::{
+    AscDescConsistency, LosObservation, asc_desc_consistency, decompose_east_up_within,
+};
 use fit::{
     AnnualFit, AnnualPolicy, HUBER_K, HuberFit, LinearFit, ModelComparison, QuadraticFit, TheilSen,
     compare_models, decimal_years, fit_linear, fit_linear_annual, fit_quadratic, huber_line,
     theil_sen,
 };
 use jumps::{C_BAND_FREQUENCY_HZ, JumpFlag, detect_jumps, wavelength_mm};
-pub use los::Pass;
+pub use los::{LookDirection, Pass};
 use period::{PeriodDisplacement, PeriodMethod, period_displacement, window_velocity};
 
 /// One measurement point's LOS series as handed over by the association stage.
@@ -104,6 +106,9 @@ pub struct SeriesConfig {
     pub breakpoint_min_change_in_se: f64,
     /// Exclude points with an unshared unwrapping jump from the aggregate (default true).
     pub exclude_jump_points: bool,
+    /// Largest condition number of the geometry matrix for an east + up decomposition (default
+    /// [`decompose::MAX_CONDITION_NUMBER`] = 3); opposite look directions are required as well.
+    pub max_condition_number: f64,
 }
 
 impl SeriesConfig {
@@ -121,6 +126,7 @@ impl SeriesConfig {
             seed: bp.seed,
             fit_annual: AnnualPolicy::Auto,
             max_gap_days: resample::DEFAULT_MAX_GAP_DAYS,
+            max_condition_number: decompose::MAX_CONDITION_NUMBER,
             period_method: PeriodMethod::LocalMeans,
             breakpoint_min_points_each_side: bp.min_points_each_side,
             breakpoint_alpha: bp.alpha,
@@ -436,9 +442,16 @@ pub fn analyse_structure(
             ));
         }
     }
-    let first_of = |pass: Pass| usable.iter().copied().find(|&i| geometries[i].pass == pass);
-    let asc = first_of(Pass::Ascending);
-    let desc = first_of(Pass::Descending);
+    // The two geometries of the decomposed series: the first usable of each look direction
+    // (by the sign of u_E, not the pass label: only opposite looks separate east from up).
+    let first_of = |look: LookDirection| {
+        usable
+            .iter()
+            .copied()
+            .find(|&i| LookDirection::of(geometries[i].mean_unit_enu) == Some(look))
+    };
+    let asc = first_of(LookDirection::EastLooking);
+    let desc = first_of(LookDirection::WestLooking);
 
     // Vertical series.
     let mut vertical = None;
@@ -525,6 +538,7 @@ pub fn analyse_structure(
         preferred,
         &mut assumptions,
         "velocity",
+        cfg.max_condition_number,
     );
     let per = combine(
         &per_obs,
@@ -532,6 +546,7 @@ pub fn analyse_structure(
         preferred,
         &mut assumptions,
         "period displacement",
+        cfg.max_condition_number,
     );
     if let Some(c) = vel.as_ref() {
         if c.east.is_some() {
@@ -832,18 +847,21 @@ fn decomposed_series(
     let mut east_mm = Vec::with_capacity(common.dates.len());
     for i in 0..common.dates.len() {
         let solved = match (common.first_mm[i], common.second_mm[i]) {
-            (Some(la), Some(lb)) => decompose_east_up(&[
-                LosObservation {
-                    los_mm: la,
-                    sigma_mm: sa,
-                    unit_enu: first.mean_unit_enu,
-                },
-                LosObservation {
-                    los_mm: lb,
-                    sigma_mm: sb,
-                    unit_enu: second.mean_unit_enu,
-                },
-            ])
+            (Some(la), Some(lb)) => decompose_east_up_within(
+                &[
+                    LosObservation {
+                        los_mm: la,
+                        sigma_mm: sa,
+                        unit_enu: first.mean_unit_enu,
+                    },
+                    LosObservation {
+                        los_mm: lb,
+                        sigma_mm: sb,
+                        unit_enu: second.mean_unit_enu,
+                    },
+                ],
+                cfg.max_condition_number,
+            )
             .map_err(|e| e.to_string())
             .map(Some)?,
             _ => None,
@@ -957,12 +975,12 @@ fn combine(
     preferred: Option<usize>,
     notes: &mut Vec<String>,
     what: &str,
+    max_condition: f64,
 ) -> Option<Combined> {
     if obs.is_empty() {
         return None;
     }
-    let has_both = obs.iter().any(|(_, o)| o.unit_enu[0] < 0.0)
-        && obs.iter().any(|(_, o)| o.unit_enu[0] > 0.0);
+    let has_both = los::look_directions(obs.iter().map(|(_, o)| o.unit_enu)).len() == 2;
     if has_both && preferred.is_none() {
         let mut list: Vec<LosObservation> = obs.iter().map(|(_, o)| *o).collect();
         let equal_weights = list.iter().any(|o| !(o.sigma_mm > 0.0));
@@ -975,7 +993,7 @@ fn combine(
                 o.sigma_mm = 1.0;
             }
         }
-        match decompose_east_up(&list) {
+        match decompose_east_up_within(&list, max_condition) {
             Ok(x) => {
                 let names: Vec<&str> = obs
                     .iter()
@@ -1062,8 +1080,23 @@ fn relative_movement(
         ));
     }
     let mut notes = Vec::new();
-    let r = combine(&rel, geometries, None, &mut notes, "relative velocity")?;
-    let s = combine(&surr, geometries, None, &mut notes, "surroundings velocity")?;
+    let limit = cfg.max_condition_number;
+    let r = combine(
+        &rel,
+        geometries,
+        None,
+        &mut notes,
+        "relative velocity",
+        limit,
+    )?;
+    let s = combine(
+        &surr,
+        geometries,
+        None,
+        &mut notes,
+        "surroundings velocity",
+        limit,
+    )?;
     Some(RelativeMovement {
         vertical_velocity_mm_per_yr: r.up,
         se_vertical_velocity_mm_per_yr: r.sigma_up,

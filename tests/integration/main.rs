@@ -8,4 +8,5 @@ mod metrics;
 mod reports;
 mod series;
 mod sharding;
+mod verdict;
 mod works;
