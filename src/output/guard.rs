@@ -157,7 +157,7 @@ impl Refused {
     pub fn fix(&self) -> &'static str {
         match &self.reason {
             Reason::IsInput(_) | Reason::ContainsInput(_) | Reason::InsideInput(_) => {
-                "choose a new folder outside the inputs, e.g. `out` beside the portfolio file"
+                "choose a new folder that neither holds nor lies inside an input, e.g. a new `out` folder next to the portfolio file"
             }
             Reason::IsSymlink => {
                 "give the folder the link points to, or choose a new folder, or delete it yourself"
@@ -351,8 +351,16 @@ pub fn remove_replaced(dir: &Path) -> io::Result<Option<String>> {
     if std::fs::remove_dir(dir).is_ok() {
         return Ok(None);
     }
-    let mut left = list(dir).map_err(|r| io::Error::other(format!("{r:?}")))?;
-    Ok(Some(left.drain(..).next().unwrap_or_default()))
+    let left = list(dir).map_err(|r| {
+        io::Error::other(
+            Refused {
+                path: dir.to_path_buf(),
+                reason: r,
+            }
+            .why(),
+        )
+    })?;
+    Ok(Some(left.into_iter().next().unwrap_or_default()))
 }
 
 /// A path resolved for comparison.
@@ -515,7 +523,10 @@ mod tests {
         let t = tempfile::tempdir().unwrap();
         let f = t.path().join("notes.txt");
         std::fs::write(&f, "x").unwrap();
-        assert_eq!(reason(check(&f, Policy::ReplaceOutput, &[])), Reason::IsFile);
+        assert_eq!(
+            reason(check(&f, Policy::ReplaceOutput, &[])),
+            Reason::IsFile
+        );
         assert!(matches!(
             reason(check(&f.join("out"), Policy::ReplaceOutput, &[])),
             Reason::InsideFile(_)
@@ -547,12 +558,20 @@ mod tests {
         ));
         // The input file itself.
         assert!(matches!(
-            reason(check(&job.join("data/p.csv"), Policy::ReplaceOutput, &inputs)),
+            reason(check(
+                &job.join("data/p.csv"),
+                Policy::ReplaceOutput,
+                &inputs
+            )),
             Reason::IsInput(_)
         ));
         // Inside an input folder that does not exist yet is still inside it.
         assert!(matches!(
-            reason(check(&t.path().join("prev/x"), Policy::ReplaceOutput, &inputs)),
+            reason(check(
+                &t.path().join("prev/x"),
+                Policy::ReplaceOutput,
+                &inputs
+            )),
             Reason::InsideInput(_)
         ));
         // A new folder inside the job folder is fine.

@@ -395,3 +395,60 @@ pub fn points_geojson_to(rows: &[PointRow], w: &mut dyn Write) -> Result<()> {
     w.write_all(b"]}\n")?;
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn previous_output(dir: &Path) {
+        std::fs::create_dir_all(dir).unwrap();
+        let m = serde_json::json!({"tool": "plinth", (guard::FORMAT_KEY): guard::FORMAT_MARKER});
+        std::fs::write(dir.join("manifest.json"), m.to_string()).unwrap();
+        std::fs::write(dir.join("results.json"), "old").unwrap();
+    }
+
+    #[test]
+    fn commit_replaces_a_previous_output_and_leaves_nothing_beside_it() {
+        let t = tempfile::tempdir().unwrap();
+        let out = t.path().join("out");
+        previous_output(&out);
+        let target = guard::check(&out, guard::Policy::ReplaceOutput, &[]).unwrap();
+        let s = Staging::new(&target).unwrap();
+        write_file(&s.dir, "results.json", b"new").unwrap();
+        s.commit().unwrap();
+        assert_eq!(std::fs::read(out.join("results.json")).unwrap(), b"new");
+        assert!(!out.join("manifest.json").exists());
+        let names: Vec<_> = std::fs::read_dir(t.path()).unwrap().collect();
+        assert_eq!(names.len(), 1, "only `out` is left");
+    }
+
+    #[test]
+    fn failed_swap_restores_the_previous_output_and_says_where_the_new_one_is() {
+        let t = tempfile::tempdir().unwrap();
+        let out = t.path().join("out");
+        previous_output(&out);
+        let target = guard::check(&out, guard::Policy::ReplaceOutput, &[]).unwrap();
+        let s = Staging::new(&target).unwrap();
+        let staged = s.dir.clone();
+        // The staging folder vanishes before the swap: moving it into place fails.
+        std::fs::remove_dir(&staged).unwrap();
+        let msg = format!("{:#}", s.commit().unwrap_err());
+        assert!(msg.contains("previous output is back in place"), "{msg}");
+        assert!(msg.contains(&staged.display().to_string()), "{msg}");
+        assert_eq!(std::fs::read(out.join("results.json")).unwrap(), b"old");
+    }
+
+    #[test]
+    fn a_stale_staging_folder_is_never_removed() {
+        let t = tempfile::tempdir().unwrap();
+        let out = t.path().join("out");
+        let stale = t
+            .path()
+            .join(format!(".out.partial-{}", std::process::id()));
+        std::fs::create_dir(&stale).unwrap();
+        std::fs::write(stale.join("keep.txt"), "x").unwrap();
+        let target = guard::check(&out, guard::Policy::ReplaceOutput, &[]).unwrap();
+        assert!(Staging::new(&target).is_err());
+        assert!(stale.join("keep.txt").is_file());
+    }
+}

@@ -108,7 +108,10 @@ fn assert_refused(tree: &Path, args: &[&Path], named: &Path) -> String {
         "the message must name {}: {err}",
         named.display()
     );
-    assert!(err.contains("hint:"), "the message must give the fix: {err}");
+    assert!(
+        err.contains("hint:"),
+        "the message must give the fix: {err}"
+    );
     assert_eq!(
         snapshot(tree),
         before,
@@ -185,7 +188,10 @@ fn a_plinth_output_with_a_foreign_file_is_refused() {
     let (fx, pf) = job();
     let out = fx.path("out");
     assess(&pf, &out, &["--no-reports"]);
-    fx.write("out/reports/my-notes.txt", "written by the user into the output");
+    fx.write(
+        "out/reports/my-notes.txt",
+        "written by the user into the output",
+    );
     let err = assert_refused(
         fx.dir.path(),
         &[p("assess"), &pf, p("--out"), &out, p("--no-reports")],
@@ -356,7 +362,10 @@ fn a_previous_plinth_output_is_replaced_as_a_whole() {
     let inputs_before = snapshot(&fx.path("job"));
     let r = assess(&pf, &out, &["--no-reports"]);
     assert_eq!(r["portfolio"]["name"], "Output safety fixture, second run");
-    assert!(!out.join("reports").exists(), "the old reports folder is replaced");
+    assert!(
+        !out.join("reports").exists(),
+        "the old reports folder is replaced"
+    );
     no_hidden_siblings(&out);
     assert_eq!(snapshot(&fx.path("job")), inputs_before, "inputs changed");
 }
