@@ -124,14 +124,15 @@ fn file_len(p: &Path) -> Result<u64> {
         .len())
 }
 
-/// Generate the benchmark data in `dir` unless it is already there.
+/// Generate the benchmark data in `dir` unless it is already there. Data is generated only into a
+/// new or empty folder (`output::guard`); a folder holding some other content is refused.
 pub fn ensure_data(dir: &Path, size: BenchSize) -> Result<()> {
     let have = dir.join("portfolio.toml").is_file()
         && dir.join("structures.geojson").is_file()
         && points_files(dir).iter().all(|p| p.is_file());
     if !have {
         eprintln!("generating benchmark data in {} ...", dir.display());
-        write_bench(dir, size)?;
+        crate::output::write_new_folder(dir, |d| write_bench(d, size))?;
     }
     Ok(())
 }

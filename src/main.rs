@@ -5,6 +5,7 @@ use std::process::ExitCode;
 use clap::{CommandFactory, Parser};
 use plinth::cli::{Cli, Command};
 use plinth::error::InputError;
+use plinth::output::guard::Refused;
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
@@ -19,6 +20,9 @@ fn main() -> ExitCode {
         Err(e) => {
             if let Some(ie) = e.downcast_ref::<InputError>() {
                 eprintln!("error: {ie}");
+                ExitCode::from(2)
+            } else if let Some(r) = e.downcast_ref::<Refused>() {
+                eprintln!("error: {r}");
                 ExitCode::from(2)
             } else {
                 eprintln!("error: {e:#}");
@@ -63,7 +67,9 @@ fn dispatch(cli: &Cli) -> anyhow::Result<()> {
             Ok(())
         }
         Command::Init { dir } => plinth::init::scaffold(dir),
-        Command::Demo { dir } => plinth::synth::demo::write_demo(dir),
+        Command::Demo { dir } => {
+            plinth::output::write_new_folder(dir, plinth::synth::demo::write_demo)
+        }
         Command::Completions { shell } => {
             let mut cmd = Cli::command();
             clap_complete::generate(*shell, &mut cmd, "plinth", &mut std::io::stdout());

@@ -21,7 +21,8 @@ use std::path::{Path, PathBuf};
 use anyhow::{Context, Result, bail};
 use serde_json::Value;
 
-use crate::output;
+use crate::error::InputError;
+use crate::output::{self, guard};
 
 /// The files of an output folder that are merged rather than copied.
 pub const MERGED_FILES: [&str; 6] = [
@@ -119,6 +120,11 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
     if shards.is_empty() {
         bail!("merge needs at least one shard folder");
     }
+    // The output folder is checked before anything is read, and again once the portfolio is known.
+    check_out(out, shards, portfolio, None)?;
+    for d in shards {
+        check_shard(d)?;
+    }
     let manifests: Vec<Value> = shards
         .iter()
         .map(|d| read_json(&d.join("manifest.json")))
@@ -128,8 +134,9 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
         None => manifest_portfolio(&manifests[0])
             .context("the first shard's manifest.json names no portfolio; pass --portfolio")?,
     };
-    let order = input_order(&pf_path)?;
     let pf = crate::portfolio::Portfolio::load(&pf_path)?;
+    check_out(out, shards, portfolio, Some(&pf))?;
+    let order = input_order(&pf_path)?;
     let dataset_order: HashMap<String, usize> = pf
         .datasets
         .iter()
@@ -312,11 +319,14 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
     if let Some(o) = manifest.get_mut("options") {
         o["shard"] = Value::Null;
     }
+    // The merged folder holds only the names this version writes (shards are checked above).
+    manifest[guard::FORMAT_KEY] = Value::from(guard::FORMAT_MARKER);
     manifest["shards"] = Value::Array(shard_labels);
 
     let collection =
         |feats: Vec<Value>| serde_json::json!({"type": "FeatureCollection", "features": feats});
-    let staging = output::Staging::new(out)?;
+    let target = check_out(out, shards, portfolio, Some(&pf))?;
+    let staging = output::Staging::new(&target)?;
     let res = (|| -> Result<()> {
         let d = &staging.dir;
         output::write_file(
@@ -359,6 +369,56 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
             Err(e)
         }
     }
+}
+
+/// Check the merge's output folder: never a shard, never the portfolio or (once it is read) any
+/// input it names.
+fn check_out(
+    out: &Path,
+    shards: &[PathBuf],
+    portfolio: Option<&Path>,
+    pf: Option<&crate::portfolio::Portfolio>,
+) -> Result<guard::Target, guard::Refused> {
+    let mut inputs: Vec<guard::Input> = shards
+        .iter()
+        .map(|d| guard::Input::new("a shard folder being merged", d))
+        .collect();
+    match (pf, portfolio) {
+        (Some(pf), _) => inputs.extend(crate::run::portfolio_inputs(pf)),
+        (None, Some(p)) => inputs.push(guard::Input::new("the portfolio file", p)),
+        (None, None) => {}
+    }
+    guard::check(out, guard::Policy::ReplaceOutput, &inputs)
+}
+
+/// A shard folder must hold only what Plinth writes: everything but the merged files is copied
+/// into the merged folder, which must stay a Plinth output folder.
+fn check_shard(dir: &Path) -> Result<()> {
+    let entry = guard::foreign_entry(dir).map_err(|r| {
+        InputError::new(
+            dir,
+            "",
+            match r {
+                guard::Reason::Unreadable(e) => format!("cannot read the shard folder: {e}"),
+                other => guard::Refused {
+                    path: dir.to_path_buf(),
+                    reason: other,
+                }
+                .why(),
+            },
+            "pass the output folders of `plinth assess --shard K/N`",
+        )
+    })?;
+    if let Some(e) = entry {
+        return Err(InputError::new(
+            dir,
+            "",
+            format!("the shard folder holds `{e}`, which Plinth does not write"),
+            "move it out of the shard folder (merge copies every report file of the shards)",
+        )
+        .into());
+    }
+    Ok(())
 }
 
 fn point_key(

@@ -14,7 +14,7 @@ use crate::assess::{self, Member, RunContext, Window};
 use crate::association::Role;
 use crate::error::{InputError, Warnings};
 use crate::ingest::{self, Inputs};
-use crate::output::{self, PointRow};
+use crate::output::{self, PointRow, guard};
 use crate::portfolio::{LookSide, Pass, Portfolio};
 use crate::results::{Change, Coverage, PortfolioResult, Results, Status, StructureResult};
 
@@ -310,7 +310,15 @@ pub fn dataset_geometries(
 /// Read, associate and assess. Nothing is written.
 pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
     let mut warnings = Warnings::default();
+    // The output folder is checked before any input is read, and again against every input the
+    // portfolio names before the data files are opened.
+    if let Some(out) = &opts.out {
+        check_out(out, portfolio_path, None, opts)?;
+    }
     let pf = Portfolio::load(portfolio_path)?;
+    if let Some(out) = &opts.out {
+        check_out(out, portfolio_path, Some(&pf), opts)?;
+    }
     let (mut structures, analysis_crs, index) = ingest::load_structures(&pf, &mut warnings)?;
     if let Some((k, n)) = opts.shard {
         structures.retain(|s| shard_of(&s.raw.id, n) == k);
@@ -686,6 +694,43 @@ pub fn compare_previous(prev_dir: &Path, current: &mut [StructureResult]) -> Res
         .collect())
 }
 
+/// Every file and folder a portfolio names as an input: the portfolio file, the footprints, each
+/// points file and the report template folder.
+pub fn portfolio_inputs(pf: &Portfolio) -> Vec<guard::Input> {
+    let mut v = vec![
+        guard::Input::new("the portfolio file", &pf.file),
+        guard::Input::new("the footprints file", &pf.structures.path),
+    ];
+    for d in &pf.datasets {
+        v.push(guard::Input::new(
+            format!("the points file of dataset `{}`", d.name),
+            &d.path,
+        ));
+    }
+    if let Some(t) = &pf.report.template_dir {
+        v.push(guard::Input::new("the report template folder", t));
+    }
+    v
+}
+
+/// Check the output folder of an `assess` run against the rule of [`guard`]: before the portfolio
+/// is read (`pf` None) against the portfolio file and `--previous`; after, against every input.
+pub fn check_out(
+    out: &Path,
+    portfolio_path: &Path,
+    pf: Option<&Portfolio>,
+    opts: &RunOptions,
+) -> Result<guard::Target, guard::Refused> {
+    let mut inputs = match pf {
+        Some(pf) => portfolio_inputs(pf),
+        None => vec![guard::Input::new("the portfolio file", portfolio_path)],
+    };
+    if let Some(p) = &opts.previous {
+        inputs.push(guard::Input::new("the --previous folder", p));
+    }
+    guard::check(out, guard::Policy::ReplaceOutput, &inputs)
+}
+
 /// The manifest document.
 pub fn manifest(a: &Analysis, opts: &RunOptions) -> Result<serde_json::Value> {
     let pf = &a.portfolio;
@@ -709,6 +754,7 @@ pub fn manifest(a: &Analysis, opts: &RunOptions) -> Result<serde_json::Value> {
     }
     Ok(serde_json::json!({
         "tool": "plinth",
+        (guard::FORMAT_KEY): guard::FORMAT_MARKER,
         "tool_version": env!("CARGO_PKG_VERSION"),
         "analysis_date": a.results.portfolio.analysis_date,
         "analysis_date_source": "last acquisition in the assessment window (never the clock)",
@@ -734,9 +780,10 @@ pub fn manifest(a: &Analysis, opts: &RunOptions) -> Result<serde_json::Value> {
     }))
 }
 
-/// Write every output into `out` atomically.
+/// Write every output into `out` atomically (the folder is checked by [`check_out`] first).
 pub fn write(a: &Analysis, opts: &RunOptions, out: &Path) -> Result<()> {
-    let staging = output::Staging::new(out)?;
+    let target = check_out(out, &a.portfolio.file, Some(&a.portfolio), opts)?;
+    let staging = output::Staging::new(&target)?;
     let res = (|| -> Result<()> {
         let d = &staging.dir;
         output::write_with(d, "results.json", |w| {

@@ -6,6 +6,8 @@
 //! - 1: the run failed after reading its inputs (e.g. an output could not be written); the
 //!   output folder keeps its previous contents.
 //! - 2: bad input or usage: a file, line/feature or key is named with a hint; nothing was written.
+//!   Also a refused output folder (`output::guard`): an existing file, a folder Plinth cannot
+//!   prove it wrote, or one that is, holds or lies inside an input.
 
 use std::io::IsTerminal;
 use std::path::PathBuf;
@@ -37,7 +39,8 @@ pub enum Command {
     Assess {
         /// The portfolio file (TOML).
         portfolio: PathBuf,
-        /// Output folder; replaced as a whole only when the run succeeds.
+        /// Output folder: a new or empty folder, or an earlier Plinth output folder (replaced as a
+        /// whole only when the run succeeds). Anything else is refused.
         #[arg(long, short, value_name = "DIR")]
         out: PathBuf,
         /// Output folder of an earlier run to compare against (what changed since then).
@@ -62,7 +65,7 @@ pub enum Command {
     },
     /// Write the invented demo portfolio (deterministic) into a folder.
     Demo {
-        /// Folder to write (created if missing; generated files are replaced).
+        /// Folder to create (must not exist or be empty).
         dir: PathBuf,
     },
     /// Print shell completions to stdout.
@@ -77,7 +80,8 @@ pub enum Command {
         /// The shard output folders.
         #[arg(required = true, value_name = "SHARD_DIR")]
         shards: Vec<PathBuf>,
-        /// Output folder; replaced as a whole only when the merge succeeds.
+        /// Output folder: a new or empty folder, or an earlier Plinth output folder (replaced as a
+        /// whole only when the merge succeeds). Never one of the shards.
         #[arg(long, short, value_name = "DIR")]
         out: PathBuf,
         /// The portfolio the shards were run with (default: the path in the first shard's
@@ -91,7 +95,8 @@ pub enum Command {
         /// small, medium, large or custom:STRUCTURES:POINTS:EPOCHS.
         #[arg(long, default_value = "small")]
         size: String,
-        /// Folder for the generated data and the analysis output.
+        /// Folder for the generated data and the analysis output (new, empty, or a folder an
+        /// earlier `bench` filled).
         #[arg(long, value_name = "DIR")]
         dir: PathBuf,
         /// Runs per phase (the median is reported).

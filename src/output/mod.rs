@@ -4,8 +4,9 @@
 //! Owns the on-disk formats (documented in docs/formats.md) and the rule that a run either
 //! replaces the output folder completely or leaves it untouched: everything is written into a
 //! temporary sibling folder, which is swapped in by rename only when the whole run succeeded.
-//! It does not compute anything.
+//! Which folder may be written at all is decided first, by [`guard`]. It does not compute anything.
 
+pub mod guard;
 pub mod safe_names;
 
 use std::io::Write;
@@ -54,65 +55,111 @@ pub fn write_with(
 }
 
 /// A staging folder next to the final output folder.
+///
+/// Built only from a [`guard::Target`]: the guard has already decided that the final folder is
+/// new, empty, or a previous Plinth output folder.
 pub struct Staging {
     /// Where files are written during the run.
     pub dir: PathBuf,
-    /// The final folder.
+    /// The final folder (resolved path).
     pub target: PathBuf,
 }
 
+/// `(parent, name)` of a resolved target path.
+fn parent_and_name(target: &Path) -> Result<(PathBuf, String)> {
+    let parent = target
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .with_context(|| format!("{} has no parent folder to write beside", target.display()))?;
+    let name = target
+        .file_name()
+        .with_context(|| format!("{} does not end in a folder name", target.display()))?;
+    Ok((parent.to_path_buf(), name.to_string_lossy().into_owned()))
+}
+
 impl Staging {
-    /// Create `.NAME.partial-PID` next to `target`.
-    pub fn new(target: &Path) -> Result<Staging> {
-        let parent = match target.parent() {
-            Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
-            _ => PathBuf::from("."),
-        };
+    /// Create `.NAME.partial-PID` next to the accepted target.
+    pub fn new(target: &guard::Target) -> Result<Staging> {
+        let (parent, name) = parent_and_name(&target.path)?;
         std::fs::create_dir_all(&parent)
             .with_context(|| format!("cannot create {}", parent.display()))?;
-        let name = target
-            .file_name()
-            .map(|n| n.to_string_lossy().to_string())
-            .unwrap_or_else(|| "out".into());
         let dir = parent.join(format!(".{name}.partial-{}", std::process::id()));
-        if dir.exists() {
-            std::fs::remove_dir_all(&dir).ok();
-        }
-        std::fs::create_dir_all(&dir)
-            .with_context(|| format!("cannot create the staging folder {}", dir.display()))?;
+        // `create_dir` (not `_all`) fails on anything already there: it is never reused or removed.
+        std::fs::create_dir(&dir).with_context(|| {
+            format!(
+                "cannot create the staging folder {} (if it is left from an earlier run, delete it)",
+                dir.display()
+            )
+        })?;
         Ok(Staging {
             dir,
-            target: target.to_path_buf(),
+            target: target.path.clone(),
         })
     }
 
-    /// Swap the staging folder in place of the target (old contents removed only after success).
+    /// Swap the staging folder in place of the target. A folder already there (empty, or a
+    /// previous output the guard accepted) is moved aside first and removed only after the new
+    /// one is in place, and then only the names Plinth writes ([`guard::remove_replaced`]).
     pub fn commit(self) -> Result<()> {
-        let parent = self.dir.parent().unwrap_or(Path::new(".")).to_path_buf();
-        let name = self
-            .target
-            .file_name()
-            .map(|n| n.to_string_lossy().to_string())
-            .unwrap_or_else(|| "out".into());
-        if self.target.exists() {
-            let old = parent.join(format!(".{name}.old-{}", std::process::id()));
-            if old.exists() {
-                std::fs::remove_dir_all(&old).ok();
-            }
-            std::fs::rename(&self.target, &old).with_context(|| {
-                format!("cannot move the previous {} aside", self.target.display())
-            })?;
-            if let Err(e) = std::fs::rename(&self.dir, &self.target) {
-                // Put the previous contents back.
-                std::fs::rename(&old, &self.target).ok();
-                return Err(e).with_context(|| {
-                    format!("cannot move the new results into {}", self.target.display())
-                });
-            }
-            std::fs::remove_dir_all(&old).ok();
-        } else {
-            std::fs::rename(&self.dir, &self.target)
-                .with_context(|| format!("cannot create {}", self.target.display()))?;
+        let (parent, name) = parent_and_name(&self.target)?;
+        if std::fs::symlink_metadata(&self.target).is_err() {
+            return std::fs::rename(&self.dir, &self.target).with_context(|| {
+                format!(
+                    "cannot move the new output from {} to {}; it is left in {}",
+                    self.dir.display(),
+                    self.target.display(),
+                    self.dir.display()
+                )
+            });
+        }
+        let old = parent.join(format!(".{name}.old-{}", std::process::id()));
+        if std::fs::symlink_metadata(&old).is_ok() {
+            anyhow::bail!(
+                "cannot move the previous {} aside: {} is already there (delete it yourself); the \
+                 new output is left in {}",
+                self.target.display(),
+                old.display(),
+                self.dir.display()
+            );
+        }
+        std::fs::rename(&self.target, &old).with_context(|| {
+            format!(
+                "cannot move the previous {} aside; it is unchanged, and the new output is left in {}",
+                self.target.display(),
+                self.dir.display()
+            )
+        })?;
+        if let Err(e) = std::fs::rename(&self.dir, &self.target) {
+            return Err(match std::fs::rename(&old, &self.target) {
+                Ok(()) => anyhow::anyhow!(
+                    "cannot move the new output into {}: {e}; the previous output is back in \
+                     place, and the new output is left in {}",
+                    self.target.display(),
+                    self.dir.display()
+                ),
+                Err(e2) => anyhow::anyhow!(
+                    "cannot move the new output into {}: {e}; nor the previous output back: {e2}. \
+                     The previous output is in {} and the new output in {}: move one of them to {} \
+                     yourself",
+                    self.target.display(),
+                    old.display(),
+                    self.dir.display(),
+                    self.target.display()
+                ),
+            });
+        }
+        match guard::remove_replaced(&old) {
+            Ok(None) => {}
+            Ok(Some(entry)) => eprintln!(
+                "warning: the previous output was moved to {} and not deleted: it now holds `{entry}`, \
+                 which Plinth did not write; check it and delete it yourself",
+                old.display()
+            ),
+            Err(e) => eprintln!(
+                "warning: the previous output was moved to {} and could not be fully deleted ({e}); \
+                 delete it yourself",
+                old.display()
+            ),
         }
         Ok(())
     }
@@ -120,6 +167,21 @@ impl Staging {
     /// Remove the staging folder (on failure); the target is untouched.
     pub fn abandon(self) {
         std::fs::remove_dir_all(&self.dir).ok();
+    }
+}
+
+/// Write a new folder for `init`, `demo` and `bench`: accepted only when it does not exist or is
+/// empty ([`guard::Policy::NewOrEmpty`]), filled by `fill` in a staging folder, swapped in on
+/// success.
+pub fn write_new_folder(dir: &Path, fill: impl FnOnce(&Path) -> Result<()>) -> Result<()> {
+    let target = guard::check(dir, guard::Policy::NewOrEmpty, &[])?;
+    let staging = Staging::new(&target)?;
+    match fill(&staging.dir) {
+        Ok(()) => staging.commit(),
+        Err(e) => {
+            staging.abandon();
+            Err(e)
+        }
     }
 }
 
@@ -332,4 +394,61 @@ pub fn points_geojson_to(rows: &[PointRow], w: &mut dyn Write) -> Result<()> {
     }
     w.write_all(b"]}\n")?;
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn previous_output(dir: &Path) {
+        std::fs::create_dir_all(dir).unwrap();
+        let m = serde_json::json!({"tool": "plinth", (guard::FORMAT_KEY): guard::FORMAT_MARKER});
+        std::fs::write(dir.join("manifest.json"), m.to_string()).unwrap();
+        std::fs::write(dir.join("results.json"), "old").unwrap();
+    }
+
+    #[test]
+    fn commit_replaces_a_previous_output_and_leaves_nothing_beside_it() {
+        let t = tempfile::tempdir().unwrap();
+        let out = t.path().join("out");
+        previous_output(&out);
+        let target = guard::check(&out, guard::Policy::ReplaceOutput, &[]).unwrap();
+        let s = Staging::new(&target).unwrap();
+        write_file(&s.dir, "results.json", b"new").unwrap();
+        s.commit().unwrap();
+        assert_eq!(std::fs::read(out.join("results.json")).unwrap(), b"new");
+        assert!(!out.join("manifest.json").exists());
+        let names: Vec<_> = std::fs::read_dir(t.path()).unwrap().collect();
+        assert_eq!(names.len(), 1, "only `out` is left");
+    }
+
+    #[test]
+    fn failed_swap_restores_the_previous_output_and_says_where_the_new_one_is() {
+        let t = tempfile::tempdir().unwrap();
+        let out = t.path().join("out");
+        previous_output(&out);
+        let target = guard::check(&out, guard::Policy::ReplaceOutput, &[]).unwrap();
+        let s = Staging::new(&target).unwrap();
+        let staged = s.dir.clone();
+        // The staging folder vanishes before the swap: moving it into place fails.
+        std::fs::remove_dir(&staged).unwrap();
+        let msg = format!("{:#}", s.commit().unwrap_err());
+        assert!(msg.contains("previous output is back in place"), "{msg}");
+        assert!(msg.contains(&staged.display().to_string()), "{msg}");
+        assert_eq!(std::fs::read(out.join("results.json")).unwrap(), b"old");
+    }
+
+    #[test]
+    fn a_stale_staging_folder_is_never_removed() {
+        let t = tempfile::tempdir().unwrap();
+        let out = t.path().join("out");
+        let stale = t
+            .path()
+            .join(format!(".out.partial-{}", std::process::id()));
+        std::fs::create_dir(&stale).unwrap();
+        std::fs::write(stale.join("keep.txt"), "x").unwrap();
+        let target = guard::check(&out, guard::Policy::ReplaceOutput, &[]).unwrap();
+        assert!(Staging::new(&target).is_err());
+        assert!(stale.join("keep.txt").is_file());
+    }
 }

@@ -845,7 +845,9 @@ fn readme(sc: &Scenario, t: &Truth) -> String {
          (3.45° E, 55.32° N) on purpose. The files are written by Plinth's own generator with a fixed seed, so\n\
          they can be checked against the planted truth in `truth.json`.\n\n",
     );
-    r.push_str("Regenerate (byte-identical):\n\n```\nplinth demo demo-portfolio\n```\n\n");
+    r.push_str(
+        "Regenerate (byte-identical) into a new or empty folder:\n\n```\nplinth demo demo-copy\n```\n\n",
+    );
     r.push_str(
         "Assess:\n\n```\nplinth assess demo-portfolio/portfolio.toml --out demo-out\n```\n\n",
     );

@@ -5,6 +5,7 @@ mod fixture;
 mod foundation;
 mod limits;
 mod metrics;
+mod output_safety;
 mod reports;
 mod series;
 mod sharding;
