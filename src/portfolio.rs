@@ -241,7 +241,8 @@ pub struct AssessmentSettings {
     pub seed: u64,
     /// Monte Carlo draws for metric uncertainty (default 300).
     pub monte_carlo_draws: usize,
-    /// Bootstrap draws for the breakpoint test (default 199).
+    /// Largest number of bootstrap draws B for the breakpoint test (default 999, insar-methods
+    /// §5.8 [D]; the test stops earlier once its decision is known, see `series::breakpoint`).
     pub bootstrap_draws: usize,
 }
 
@@ -658,7 +659,7 @@ impl Portfolio {
             default_structure: take!(default_structure, "masonry".to_string()),
             seed: take!(seed, 20_240_101u64),
             monte_carlo_draws: take!(monte_carlo_draws, 300usize),
-            bootstrap_draws: take!(bootstrap_draws, 199usize),
+            bootstrap_draws: take!(bootstrap_draws, 999usize),
         };
         let bad = |key: &str, msg: String, hint: &str| {
             Err(InputError::new(
