@@ -1092,6 +1092,10 @@ fn series_pass(p: crate::portfolio::Pass) -> crate::series::los::Pass {
 }
 
 /// LOS unit vector of a member point: per-point angles when mapped, else the dataset's.
+///
+/// Per-point angles were validated when the points were read (ranges and pass, insar-methods
+/// §2.4; `ingest::points`), so the construction cannot fail here; were it to, the vector is NaN,
+/// which the series stage refuses with its reason, never a vertical-only stand-in.
 fn point_unit(ctx: &RunContext, m: &Member) -> [f64; 3] {
     if let Some(u) = ctx.scene_unit[m.dataset] {
         if ctx.portfolio.datasets[m.dataset]
@@ -1112,7 +1116,7 @@ fn point_unit(ctx: &RunContext, m: &Member) -> [f64; 3] {
         m.point.heading_deg(),
         look,
     )
-    .unwrap_or([0.0, 0.0, m.point.incidence_deg().to_radians().cos()])
+    .unwrap_or([f64::NAN; 3])
 }
 
 fn branch_label(b: crate::damage::Branch) -> &'static str {
