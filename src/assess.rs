@@ -737,7 +737,13 @@ pub fn assess_structure(
     datasets.sort();
     datasets.dedup();
 
-    let n_window_epochs = ctx.window_idx.iter().map(Vec::len).max().unwrap_or(0);
+    let used_ds: Vec<usize> = {
+        let mut v: Vec<usize> = kept.iter().map(|v| v.dataset).collect();
+        v.sort_unstable();
+        v.dedup();
+        v
+    };
+    let (n_window_epochs, series_span_yr) = series_extent(ctx, &used_ds);
     if n_points == 0 {
         reasons.push("no measurement points kept on the structure".into());
     } else if n_points < a.min_points {
@@ -950,7 +956,7 @@ pub fn assess_structure(
         let gi = crate::grade::GradeInputs::from_metrics(
             &met,
             Some(n_window_epochs),
-            Some(ctx.window.span_years()),
+            series_span_yr,
             (coh_n > 0).then(|| coh_sum / coh_n as f64),
             decisive,
         );
@@ -1100,6 +1106,33 @@ struct Filled {
     grade: serde_json::Value,
     metrics: serde_json::Value,
     damage: serde_json::Value,
+}
+
+/// Epochs in the window and their span (years), the smallest over the datasets `used` (those
+/// of the structure's kept points), as the evidence grade defines them (`grade::GradeInputs`).
+/// With no dataset used: the largest epoch count of any dataset (for the status message) and no
+/// span.
+fn series_extent(ctx: &RunContext, used: &[usize]) -> (usize, Option<f64>) {
+    if used.is_empty() {
+        let n = ctx.window_idx.iter().map(Vec::len).max().unwrap_or(0);
+        return (n, None);
+    }
+    let n = used
+        .iter()
+        .map(|&d| ctx.window_idx[d].len())
+        .min()
+        .unwrap_or(0);
+    let span = used
+        .iter()
+        .map(|&d| match (ctx.window_idx[d].first(), ctx.window_idx[d].last()) {
+            (Some(&a), Some(&b)) => {
+                let e = &ctx.datasets[d].epochs;
+                (e[b] - e[a]).num_days() as f64 / 365.25
+            }
+            _ => 0.0,
+        })
+        .min_by(f64::total_cmp);
+    (n, span)
 }
 
 fn series_pass(p: crate::portfolio::Pass) -> crate::series::los::Pass {
