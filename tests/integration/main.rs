@@ -6,6 +6,7 @@ mod foundation;
 mod limits;
 mod metrics;
 mod reports;
+mod review;
 mod series;
 mod sharding;
 mod works;
