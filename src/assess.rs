@@ -178,12 +178,7 @@ impl PointStats {
                 .collect();
             crate::series::jumps::has_jump_candidate(&v, wavelength_mm)
         };
-        Self::from_parts(
-            n as u64,
-            velocity.zip(velocity_se),
-            period,
-            jump_candidate,
-        )
+        Self::from_parts(n as u64, velocity.zip(velocity_se), period, jump_candidate)
     }
     /// The compact record of `n` valid epochs, the LOS velocity and its white-noise SE (mm/yr),
     /// the period displacement and its σ (mm) and the jump flag.
@@ -632,8 +627,7 @@ pub fn screen_members(
         };
         let se: Vec<f64> = list.iter().map(|x| x.2).filter(|x| x.is_finite()).collect();
         let floor = crate::metrics::settlement::median(&se).unwrap_or(0.0);
-        let screen =
-            crate::metrics::outliers::mad_screen_with_floor(&resid, a.outlier_z, 5, floor);
+        let screen = crate::metrics::outliers::mad_screen_with_floor(&resid, a.outlier_z, 5, floor);
         for r in screen.rejected {
             verdicts[list[r].0].rejected = Some(reason::OUTLIER_VELOCITY);
         }
@@ -1124,13 +1118,15 @@ fn series_extent(ctx: &RunContext, used: &[usize]) -> (usize, Option<f64>) {
         .unwrap_or(0);
     let span = used
         .iter()
-        .map(|&d| match (ctx.window_idx[d].first(), ctx.window_idx[d].last()) {
-            (Some(&a), Some(&b)) => {
-                let e = &ctx.datasets[d].epochs;
-                (e[b] - e[a]).num_days() as f64 / 365.25
-            }
-            _ => 0.0,
-        })
+        .map(
+            |&d| match (ctx.window_idx[d].first(), ctx.window_idx[d].last()) {
+                (Some(&a), Some(&b)) => {
+                    let e = &ctx.datasets[d].epochs;
+                    (e[b] - e[a]).num_days() as f64 / 365.25
+                }
+                _ => 0.0,
+            },
+        )
         .min_by(f64::total_cmp);
     (n, span)
 }

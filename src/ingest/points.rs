@@ -1464,7 +1464,10 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
 /// `2023-01-15_std`) are left as ignored columns.
 fn looks_like_date(header: &str, format: &str, kind: chrono::format::ParseErrorKind) -> bool {
     use chrono::format::ParseErrorKind;
-    if matches!(kind, ParseErrorKind::OutOfRange | ParseErrorKind::Impossible) {
+    if matches!(
+        kind,
+        ParseErrorKind::OutOfRange | ParseErrorKind::Impossible
+    ) {
         return true;
     }
     let mut literals = String::new();
@@ -1606,7 +1609,11 @@ mod tests {
                 &spec(),
             )
             .unwrap_err();
-            assert_eq!(e.location, format!("line 1 (header), column 5 `{bad}`"), "{e}");
+            assert_eq!(
+                e.location,
+                format!("line 1 (header), column 5 `{bad}`"),
+                "{e}"
+            );
             assert!(e.message.contains("not a valid date"), "{e}");
         }
         let mut s = spec();
@@ -1644,13 +1651,23 @@ mod tests {
     fn per_point_angles_are_validated() {
         let s = angle_spec(true, true);
         let head = "point_id,lon,lat,inc,head,2023-01-01\n";
-        let d = read(&format!("{head}p,9,45,39.0,-12.0,0\nq,9,45,41.0,-11.0,0\n"), &s).unwrap();
+        let d = read(
+            &format!("{head}p,9,45,39.0,-12.0,0\nq,9,45,41.0,-11.0,0\n"),
+            &s,
+        )
+        .unwrap();
         assert_eq!(d.points.len(), 2);
         // Descending heading in an ascending dataset (θ = 37°, α = 192° → u_E > 0; LOS-2).
-        let e = read(&format!("{head}p,9,45,39.0,-12.0,0\nq,9,45,37.0,192.0,0\n"), &s)
-            .unwrap_err();
+        let e = read(
+            &format!("{head}p,9,45,39.0,-12.0,0\nq,9,45,37.0,192.0,0\n"),
+            &s,
+        )
+        .unwrap_err();
         assert_eq!(e.location, "line 3, column `head`");
-        assert!(e.message.contains("192") && e.message.contains("ascending"), "{e}");
+        assert!(
+            e.message.contains("192") && e.message.contains("ascending"),
+            "{e}"
+        );
         let e = read(&format!("{head}p,9,45,39.0,400.0,0\n"), &s).unwrap_err();
         assert_eq!(e.location, "line 2, column `head`");
         assert!(e.message.contains("400"), "{e}");

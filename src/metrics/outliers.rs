@@ -179,7 +179,12 @@ mod tests {
             for _ in 0..6 {
                 let d: Vec<f64> = t.iter().map(|_| noise.sample(&mut rng)).collect();
                 let dm = d.iter().sum::<f64>() / d.len() as f64;
-                let v = t.iter().zip(&d).map(|(x, y)| (x - tm) * (y - dm)).sum::<f64>() / sxx;
+                let v = t
+                    .iter()
+                    .zip(&d)
+                    .map(|(x, y)| (x - tm) * (y - dm))
+                    .sum::<f64>()
+                    / sxx;
                 let rss: f64 = t
                     .iter()
                     .zip(&d)

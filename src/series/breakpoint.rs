@@ -131,10 +131,7 @@ impl HingeBasis {
             let h = |x: f64| (x - tk).max(0.0);
             let hm = tau.iter().map(|&x| h(x)).sum::<f64>() / nf;
             let beta = tau.iter().map(|&x| (h(x) - hm) * x).sum::<f64>() / sxx;
-            let ss: f64 = tau
-                .iter()
-                .map(|&x| (h(x) - hm - beta * x).powi(2))
-                .sum();
+            let ss: f64 = tau.iter().map(|&x| (h(x) - hm - beta * x).powi(2)).sum();
             if ss > 0.0 {
                 candidates.push((k, tk, 1.0 / ss));
             }
@@ -640,7 +637,12 @@ mod tests {
     fn suffix_sum_search_equals_plain_refits() {
         let mut cases: Vec<(Vec<f64>, Vec<f64>)> = vec![series_a(), series_b(), series_d()];
         let mut rng = ChaCha8Rng::seed_from_u64(9);
-        for (n, phi, irregular) in [(60, 0.0, false), (150, 0.6, false), (80, 0.3, true), (900, 0.2, false)] {
+        for (n, phi, irregular) in [
+            (60, 0.0, false),
+            (150, 0.6, false),
+            (80, 0.3, true),
+            (900, 0.2, false),
+        ] {
             let mut t: Vec<f64> = Vec::with_capacity(n);
             let mut x = 0.0f64;
             for i in 0..n {
@@ -664,12 +666,19 @@ mod tests {
             let (k, rss, f) = plain_search(t, d, 5);
             assert_eq!(fast.break_index, k, "case {i}");
             assert!((fast.rss_hinge_mm2 - rss).abs() <= 1e-9 * rss, "case {i}");
-            assert!((fast.f_sup - f).abs() <= 1e-9 * f, "case {i}: {} vs {f}", fast.f_sup);
+            assert!(
+                (fast.f_sup - f).abs() <= 1e-9 * f,
+                "case {i}: {} vs {f}",
+                fast.f_sup
+            );
             // The per-draw path (`best`) gives the same statistic as the refit.
             let basis = HingeBasis::new(t, 5);
             let (kb, rss_b, rss_lin) = basis.best(d).unwrap();
             assert_eq!(kb, k, "case {i}");
-            assert!((f_sup_of(rss_lin, rss_b, t.len()) - f).abs() <= 1e-9 * f, "case {i}");
+            assert!(
+                (f_sup_of(rss_lin, rss_b, t.len()) - f).abs() <= 1e-9 * f,
+                "case {i}"
+            );
         }
     }
 
@@ -680,7 +689,10 @@ mod tests {
         let stream = [1.0, 6.0, 2.0, 7.0, 9.0, 0.5];
         let mut it = stream.iter().copied();
         // observed 5: exceedances at draws 2 and 4 → h = 2 stops at L = 4, p = 2/4.
-        assert_eq!(sequential_p_value(5.0, 6, 2, || it.next().unwrap()), (0.5, 4));
+        assert_eq!(
+            sequential_p_value(5.0, 6, 2, || it.next().unwrap()),
+            (0.5, 4)
+        );
         let mut it = stream.iter().copied();
         // observed 8: one exceedance (draw 5) in B = 6 draws, h = 2 not reached: p = 2/7.
         assert_eq!(
@@ -707,8 +719,8 @@ mod tests {
         for j in 0..300 {
             let stream: Vec<f64> = (0..b).map(|_| rng.random::<f64>()).collect();
             let observed = 0.9 + 0.1 * j as f64 / 300.0; // full p from ≈ 0.1 down to ≈ 0.001
-            let full = (1 + stream.iter().filter(|&&x| x >= observed).count()) as f64
-                / (b + 1) as f64;
+            let full =
+                (1 + stream.iter().filter(|&&x| x >= observed).count()) as f64 / (b + 1) as f64;
             let mut it = stream.iter().copied();
             let (p, used) = sequential_p_value(observed, b, h, || it.next().unwrap());
             assert_eq!(p < alpha, full < alpha, "stream {j}: {p} vs {full}");
@@ -739,10 +751,16 @@ mod tests {
             })
             .collect();
         let h = hinge_search(&t, &d, 5).unwrap();
-        assert!(h.lag1_autocorrelation > 0.3, "r1 {}", h.lag1_autocorrelation);
+        assert!(
+            h.lag1_autocorrelation > 0.3,
+            "r1 {}",
+            h.lag1_autocorrelation
+        );
         let se_adj = h.se_slope_change_adjusted_mm_per_yr.unwrap();
         let n_eff = effective_sample_size(92, h.lag1_autocorrelation);
-        assert!((se_adj - h.se_slope_change_mm_per_yr * (89.0 / (n_eff - 3.0)).sqrt()).abs() < 1e-12);
+        assert!(
+            (se_adj - h.se_slope_change_mm_per_yr * (89.0 / (n_eff - 3.0)).sqrt()).abs() < 1e-12
+        );
         assert!(se_adj > 1.3 * h.se_slope_change_mm_per_yr);
         let c = h.slope_change_mm_per_yr.abs();
         let k = 0.5 * (c / se_adj + c / h.se_slope_change_mm_per_yr);
@@ -770,11 +788,19 @@ mod tests {
         assert_eq!(cfg.bootstrap_draws, 999);
         let (t, d) = series_d();
         let r = breakpoint_test(&t, &d, &cfg).unwrap();
-        assert_eq!((r.draws, r.max_draws, r.stop_at_exceedances), (999, 999, 50));
+        assert_eq!(
+            (r.draws, r.max_draws, r.stop_at_exceedances),
+            (999, 999, 50)
+        );
         assert!(r.p_value < 0.01 && r.significant, "p {}", r.p_value);
         let (t, d) = series_a();
         let r = breakpoint_test(&t, &d, &cfg).unwrap();
-        assert!(r.draws < 999 && r.p_value >= 0.05, "{} draws, p {}", r.draws, r.p_value);
+        assert!(
+            r.draws < 999 && r.p_value >= 0.05,
+            "{} draws, p {}",
+            r.draws,
+            r.p_value
+        );
         // Stopped at the 50th exceedance: p = 50/L (Besag & Clifford).
         assert!((r.p_value - 50.0 / r.draws as f64).abs() < 1e-12);
         assert_eq!(breakpoint_test(&t, &d, &cfg).unwrap(), r);

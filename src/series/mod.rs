@@ -1456,9 +1456,12 @@ mod tests {
         assert!(!none.status.sufficient && !none.status.reasons.is_empty());
     }
 
+    /// Points as (LOS values, unit vector).
+    type TestPoints = Vec<(Vec<f32>, [f64; 3])>;
+
     /// Five points whose LOS is u_U × a vertical series d(t), on 12-day dates from 1 January
     /// (the time origin), so that t matches insar-methods §5.12 exactly.
-    fn seasonal_structure(d: &[f64]) -> (Vec<NaiveDate>, Vec<(Vec<f32>, [f64; 3])>) {
+    fn seasonal_structure(d: &[f64]) -> (Vec<NaiveDate>, TestPoints) {
         let origin = NaiveDate::from_ymd_opt(2020, 1, 1).unwrap();
         let dates: Vec<NaiveDate> = (0..d.len())
             .map(|i| origin + chrono::Duration::days(12 * i as i64))
@@ -1479,7 +1482,10 @@ mod tests {
         let r = analyse_structure(&[input("asc", Pass::Ascending, &dates, &pts)], &[], &cfg);
         assert!(r.status.sufficient, "{:?}", r.status.reasons);
         let fits = r.vertical.as_ref().unwrap().fits.as_ref().unwrap();
-        assert_eq!(fits.model_comparison.as_ref().unwrap().selected, "linear+annual");
+        assert_eq!(
+            fits.model_comparison.as_ref().unwrap().selected,
+            "linear+annual"
+        );
         assert_eq!(r.velocity_model, Some("linear+annual"));
         let v = r.vertical_velocity_mm_per_yr.unwrap();
         assert!((v + 4.061).abs() < 1e-3, "v {v}"); // §5.12: −4.061

@@ -36,8 +36,15 @@ fn block(id: &str, cx: f64) -> FxStructure {
 
 /// Six points on a 20 m × 10 m block centred at `cx`.
 fn six(cx: f64) -> [(f64, f64); 6] {
-    [(-7.0, -3.0), (0.0, -3.0), (7.0, -3.0), (-7.0, 3.0), (0.0, 3.0), (7.0, 3.0)]
-        .map(|(e, n)| (cx + e, n))
+    [
+        (-7.0, -3.0),
+        (0.0, -3.0),
+        (7.0, -3.0),
+        (-7.0, 3.0),
+        (0.0, 3.0),
+        (7.0, 3.0),
+    ]
+    .map(|(e, n)| (cx + e, n))
 }
 
 /// A block settling at 4 mm/yr with an annual swing 2.5·sin 2πt + 1.0·cos 2πt mm (vertical; t from
@@ -93,7 +100,10 @@ fn seasonal_block_reports_the_selected_models_velocity() {
     // ≈ 0.3·√12/(3·√92) ≈ 0.036 mm/yr (insar-methods §5.2 rule of thumb); 4 SE ≈ 0.15. The
     // straight line is 0.5 mm/yr off here (its own SE is inflated by the seasonal residuals).
     assert!((v + 4.0).abs() < 0.15, "v {v}");
-    assert!((lin + 4.0).abs() > 0.3, "the straight line is biased here: {lin}");
+    assert!(
+        (lin + 4.0).abs() > 0.3,
+        "the straight line is biased here: {lin}"
+    );
     // Period displacement: −4 mm/yr over the effective period (first-3 to last-3 mean dates).
     let pd = &s["series"]["geometries"][0]["period_los"];
     let dt = pd["effective_end_yr"].as_f64().unwrap() - pd["effective_start_yr"].as_f64().unwrap();
@@ -104,7 +114,11 @@ fn seasonal_block_reports_the_selected_models_velocity() {
     assert!(bp["draws"].as_u64().unwrap() <= 999);
     // The annual cycle left in the hinge residuals makes them strongly autocorrelated: the
     // AR(1)-adjusted SE of the slope change is then not estimable and no break is reported.
-    assert!(bp["hinge"].get("se_slope_change_adjusted_mm_per_yr").is_some());
+    assert!(
+        bp["hinge"]
+            .get("se_slope_change_adjusted_mm_per_yr")
+            .is_some()
+    );
     assert_eq!(bp["significant"], false);
 }
 
@@ -115,7 +129,12 @@ fn seasonal_block_reports_the_selected_models_velocity() {
 fn grade_counts_the_epochs_of_the_datasets_a_structure_uses() {
     let asc_dates = dates("2021-01-01", 6, 250);
     let desc_dates = dates("2021-01-05", 12, 120);
-    let mk = |name: &str, pass: &str, inc: f64, head: f64, ds: &Vec<chrono::NaiveDate>, blocks: &[f64]| {
+    let mk = |name: &str,
+              pass: &str,
+              inc: f64,
+              head: f64,
+              ds: &Vec<chrono::NaiveDate>,
+              blocks: &[f64]| {
         let t = years(ds);
         let u = unit(inc, head);
         let points = blocks
@@ -150,7 +169,10 @@ fn grade_counts_the_epochs_of_the_datasets_a_structure_uses() {
     let r = assess(&p, &fx.path("out"), &["--no-reports"]);
     // The window runs over the common epochs: desc's first to its last date.
     let (w0, w1) = (desc_dates[0], *desc_dates.last().unwrap());
-    let asc_in: Vec<_> = asc_dates.iter().filter(|d| **d >= w0 && **d <= w1).collect();
+    let asc_in: Vec<_> = asc_dates
+        .iter()
+        .filter(|d| **d >= w0 && **d <= w1)
+        .collect();
     let span = |a: &chrono::NaiveDate, b: &chrono::NaiveDate| (*b - *a).num_days() as f64 / 365.25;
     let b1 = structure(&r, "B1");
     assert_eq!(b1["datasets"], serde_json::json!(["asc", "desc"]));
@@ -233,5 +255,9 @@ fn still_points_are_not_velocity_outliers() {
         );
     }
     let s = structure(&r, &format!("B{}", n_blocks - 1));
-    assert_eq!(s["n_rejected"]["outlier_velocity"], 1, "{}", s["n_rejected"]);
+    assert_eq!(
+        s["n_rejected"]["outlier_velocity"], 1,
+        "{}",
+        s["n_rejected"]
+    );
 }
