@@ -61,13 +61,14 @@ pub struct Member<'a> {
 }
 
 /// Per-point window statistics, computed once per point and shared by every structure the point
-/// is linked to. Held compactly (16 bytes a point: `f32` values, NaN = not computable), since a
+/// is linked to. Held compactly (20 bytes a point: `f32` values, NaN = not computable), since a
 /// run keeps one per retained point; `f32` keeps 7 significant digits, far below the precision of
 /// any InSAR velocity. Valid epochs saturate at 65 535.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct PointStats {
     valid_epochs: u16,
     los_velocity_mm_per_yr: f32,
+    los_velocity_se_mm_per_yr: f32,
     period_mm: f32,
     period_sigma_mm: f32,
     jump_candidate: bool,
@@ -153,6 +154,11 @@ impl PointStats {
         let sxy = stv - nf * tm * vm;
         let syy = svv - nf * vm * vm;
         let velocity = (n >= 3 && sxx > 0.0).then(|| sxy / sxx);
+        // White-noise SE of the slope, s/√Sxx (insar-methods.md §5.2).
+        let velocity_se = velocity.map(|slope| {
+            let rss = (syy - slope * sxy).max(0.0);
+            (rss / (nf - 2.0) / sxx).sqrt() * unit_mm
+        });
         let period = match velocity {
             Some(slope) if n >= 6 => {
                 let rss = (syy - slope * sxy).max(0.0);
@@ -172,19 +178,20 @@ impl PointStats {
                 .collect();
             crate::series::jumps::has_jump_candidate(&v, wavelength_mm)
         };
-        Self::from_parts(n as u64, velocity, period, jump_candidate)
+        Self::from_parts(n as u64, velocity.zip(velocity_se), period, jump_candidate)
     }
-    /// The compact record of `n` valid epochs, the LOS velocity (mm/yr), the period displacement
-    /// and its σ (mm) and the jump flag.
+    /// The compact record of `n` valid epochs, the LOS velocity and its white-noise SE (mm/yr),
+    /// the period displacement and its σ (mm) and the jump flag.
     fn from_parts(
         n: u64,
-        velocity: Option<f64>,
+        velocity: Option<(f64, f64)>,
         period: Option<(f64, f64)>,
         jump_candidate: bool,
     ) -> Self {
         PointStats {
             valid_epochs: u16::try_from(n).unwrap_or(u16::MAX),
-            los_velocity_mm_per_yr: velocity.map_or(f32::NAN, |x| x as f32),
+            los_velocity_mm_per_yr: velocity.map_or(f32::NAN, |x| x.0 as f32),
+            los_velocity_se_mm_per_yr: velocity.map_or(f32::NAN, |x| x.1 as f32),
             period_mm: period.map_or(f32::NAN, |x| x.0 as f32),
             period_sigma_mm: period.map_or(f32::NAN, |x| x.1 as f32),
             jump_candidate,
@@ -293,7 +300,12 @@ impl PointStats {
             }
             _ => None,
         };
-        let velocity = slope_per_day.map(|b| b * 365.25 * unit_mm);
+        // White-noise SE of the slope: SE² = s²/Σ(d − d̄)² = rss_n / ((n − 2)·Sxx) codes²/day².
+        let velocity = slope_per_day.map(|b| {
+            let rss_n = (syy as f64 - (sxy as f64) * (sxy as f64) / sxx as f64).max(0.0);
+            let se_per_day = (rss_n / ((n as f64 - 2.0) * sxx as f64)).sqrt();
+            (b * 365.25 * unit_mm, se_per_day * 365.25 * unit_mm)
+        });
         let jump_candidate = big_step && {
             let v: Vec<f64> = idx
                 .iter()
@@ -312,6 +324,12 @@ impl PointStats {
     /// OLS LOS velocity over the window, mm/yr.
     pub fn los_velocity_mm_per_yr(&self) -> Option<f64> {
         let v = self.los_velocity_mm_per_yr;
+        (!v.is_nan()).then_some(f64::from(v))
+    }
+    /// White-noise standard error of [`Self::los_velocity_mm_per_yr`], s/√Σ(t − t̄)², mm/yr
+    /// (insar-methods.md §5.2).
+    pub fn los_velocity_se_mm_per_yr(&self) -> Option<f64> {
+        let v = self.los_velocity_se_mm_per_yr;
         (!v.is_nan()).then_some(f64::from(v))
     }
     /// Period LOS displacement and its σ, mm (see [`period_displacement`]).
@@ -535,7 +553,8 @@ pub fn screen_members(
     let a = &ctx.portfolio.assessment;
     let mut verdicts = Vec::with_capacity(members.len());
     // Screening, per member point.
-    let mut kept_by_ds: BTreeMap<usize, Vec<(usize, f64)>> = BTreeMap::new(); // ds -> (verdict idx, v_los)
+    // ds -> (verdict idx, v_los, its white-noise SE)
+    let mut kept_by_ds: BTreeMap<usize, Vec<(usize, f64, f64)>> = BTreeMap::new();
     let mut period: Vec<Option<(f64, f64)>> = Vec::with_capacity(members.len());
     for m in members {
         let ds = &ctx.datasets[m.dataset];
@@ -568,10 +587,11 @@ pub fn screen_members(
         let jump_candidate = rejected.is_none() && st.jump_candidate();
         if rejected.is_none() && m.role == Role::Structure && !jump_candidate {
             if let Some(vl) = vel {
+                let se = st.los_velocity_se_mm_per_yr().unwrap_or(f64::NAN);
                 kept_by_ds
                     .entry(m.dataset)
                     .or_default()
-                    .push((verdicts.len(), vl));
+                    .push((verdicts.len(), vl, se));
             }
         }
         verdicts.push(PointVerdict {
@@ -583,17 +603,18 @@ pub fn screen_members(
         });
     }
     // MAD outliers on LOS velocity per geometry (insar-methods §7.3): robust z > outlier_z; no
-    // rejection when MAD = 0 or fewer than 5 points. With 6 or more points the screen runs on the
+    // rejection with fewer than 5 points. With 6 or more points the screen runs on the
     // residuals of a least-squares plane through the velocities (the §7.3 second pass [D]): a
     // genuinely tilting or bending building spreads raw velocities, and its extreme but correct
-    // points must not be rejected as outliers.
+    // points must not be rejected as outliers. The robust scale is floored at the median of the
+    // points' own velocity SEs (`metrics::outliers::mad_screen_with_floor` gives the reason).
     for list in kept_by_ds.values() {
         if list.len() < 5 {
             continue;
         }
         let xy: Vec<(f64, f64)> = list
             .iter()
-            .map(|(vi, _)| {
+            .map(|(vi, _, _)| {
                 s.frame
                     .to_local(members[*vi].point.x(), members[*vi].point.y())
             })
@@ -604,20 +625,11 @@ pub fn screen_members(
         } else {
             raw.clone()
         };
-        let mut vals = resid.clone();
-        vals.sort_by(f64::total_cmp);
-        let med = median_sorted(&vals);
-        let mut dev: Vec<f64> = vals.iter().map(|v| (v - med).abs()).collect();
-        dev.sort_by(f64::total_cmp);
-        let mad = median_sorted(&dev);
-        if mad <= 0.0 {
-            continue;
-        }
-        let sigma = 1.4826 * mad;
-        for ((vi, _), r) in list.iter().zip(&resid) {
-            if ((r - med) / sigma).abs() > a.outlier_z {
-                verdicts[*vi].rejected = Some(reason::OUTLIER_VELOCITY);
-            }
+        let se: Vec<f64> = list.iter().map(|x| x.2).filter(|x| x.is_finite()).collect();
+        let floor = crate::metrics::settlement::median(&se).unwrap_or(0.0);
+        let screen = crate::metrics::outliers::mad_screen_with_floor(&resid, a.outlier_z, 5, floor);
+        for r in screen.rejected {
+            verdicts[list[r].0].rejected = Some(reason::OUTLIER_VELOCITY);
         }
     }
     (verdicts, period)
@@ -720,7 +732,13 @@ pub fn assess_structure(
     datasets.sort();
     datasets.dedup();
 
-    let n_window_epochs = ctx.window_idx.iter().map(Vec::len).max().unwrap_or(0);
+    let used_ds: Vec<usize> = {
+        let mut v: Vec<usize> = kept.iter().map(|v| v.dataset).collect();
+        v.sort_unstable();
+        v.dedup();
+        v
+    };
+    let (n_window_epochs, series_span_yr) = series_extent(ctx, &used_ds);
     if n_points == 0 {
         reasons.push("no measurement points kept on the structure".into());
     } else if n_points < a.min_points {
@@ -906,7 +924,7 @@ pub fn assess_structure(
         let gi = crate::grade::GradeInputs::from_metrics(
             &met,
             Some(n_window_epochs),
-            Some(ctx.window.span_years()),
+            series_span_yr,
             (coh_n > 0).then(|| coh_sum / coh_n as f64),
             certainty,
         );
@@ -1160,6 +1178,35 @@ fn lower_bound_note(status: crate::metrics::HorizontalStrainStatus) -> String {
     )
 }
 
+/// Epochs in the window and their span (years), the smallest over the datasets `used` (those
+/// of the structure's kept points), as the evidence grade defines them (`grade::GradeInputs`).
+/// With no dataset used: the largest epoch count of any dataset (for the status message) and no
+/// span.
+fn series_extent(ctx: &RunContext, used: &[usize]) -> (usize, Option<f64>) {
+    if used.is_empty() {
+        let n = ctx.window_idx.iter().map(Vec::len).max().unwrap_or(0);
+        return (n, None);
+    }
+    let n = used
+        .iter()
+        .map(|&d| ctx.window_idx[d].len())
+        .min()
+        .unwrap_or(0);
+    let span = used
+        .iter()
+        .map(
+            |&d| match (ctx.window_idx[d].first(), ctx.window_idx[d].last()) {
+                (Some(&a), Some(&b)) => {
+                    let e = &ctx.datasets[d].epochs;
+                    (e[b] - e[a]).num_days() as f64 / 365.25
+                }
+                _ => 0.0,
+            },
+        )
+        .min_by(f64::total_cmp);
+    (n, span)
+}
+
 fn series_pass(p: crate::portfolio::Pass) -> crate::series::los::Pass {
     match p {
         crate::portfolio::Pass::Ascending => crate::series::los::Pass::Ascending,
@@ -1168,6 +1215,10 @@ fn series_pass(p: crate::portfolio::Pass) -> crate::series::los::Pass {
 }
 
 /// LOS unit vector of a member point: per-point angles when mapped, else the dataset's.
+///
+/// Per-point angles were validated when the points were read (ranges and pass, insar-methods
+/// §2.4; `ingest::points`), so the construction cannot fail here; were it to, the vector is NaN,
+/// which the series stage refuses with its reason, never a vertical-only stand-in.
 fn point_unit(ctx: &RunContext, m: &Member) -> [f64; 3] {
     if let Some(u) = ctx.scene_unit[m.dataset] {
         if ctx.portfolio.datasets[m.dataset]
@@ -1188,7 +1239,7 @@ fn point_unit(ctx: &RunContext, m: &Member) -> [f64; 3] {
         m.point.heading_deg(),
         look,
     )
-    .unwrap_or([0.0, 0.0, m.point.incidence_deg().to_radians().cos()])
+    .unwrap_or([f64::NAN; 3])
 }
 
 fn branch_label(b: crate::damage::Branch) -> &'static str {
@@ -1230,18 +1281,6 @@ fn plane_residuals(xy: &[(f64, f64)], v: &[f64]) -> Option<Vec<f64>> {
     Some((0..n).map(|i| v[i] - fit[i]).collect())
 }
 
-fn median_sorted(v: &[f64]) -> f64 {
-    let n = v.len();
-    if n == 0 {
-        return f64::NAN;
-    }
-    if n % 2 == 1 {
-        v[n / 2]
-    } else {
-        0.5 * (v[n / 2 - 1] + v[n / 2])
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1280,6 +1319,12 @@ mod tests {
             assert_eq!(st.valid_epochs(), t.len());
             let vel = ols_velocity_mm_per_yr(&t, &vv).unwrap();
             assert!((st.los_velocity_mm_per_yr().unwrap() - vel).abs() < 1e-5 * vel.abs().max(1.0));
+            // White-noise SE against the OLS reference (insar-methods §5.2).
+            let se = crate::series::fit::fit_linear(&t, &vv)
+                .unwrap()
+                .se_velocity_mm_per_yr;
+            let se1 = st.los_velocity_se_mm_per_yr().unwrap();
+            assert!((se1 - se).abs() < 1e-5 * se, "case {case}: {se1} vs {se}");
             let (d, s) = period_displacement(&t, &vv).unwrap();
             let (d1, s1) = st.period().unwrap();
             assert!((d1 - d).abs() < 1e-5 * d.abs().max(1.0), "case {case}");
@@ -1369,6 +1414,11 @@ mod tests {
                 (va - vb).abs() < 1e-5 * vb.abs().max(1.0),
                 "case {case}: {va} vs {vb}"
             );
+            let (ea, eb) = (
+                a.los_velocity_se_mm_per_yr().unwrap(),
+                b.los_velocity_se_mm_per_yr().unwrap(),
+            );
+            assert!((ea - eb).abs() < 1e-5 * eb, "case {case}: SE {ea} vs {eb}");
             let ((da, sa), (db, sb)) = (a.period().unwrap(), b.period().unwrap());
             assert!((da - db).abs() < 1e-5 * db.abs().max(1.0), "case {case}");
             assert!((sa - sb).abs() < 1e-5 * sb.max(1.0), "case {case}");

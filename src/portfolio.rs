@@ -228,6 +228,18 @@ pub struct StructuresSpec {
     pub crs: String,
 }
 
+/// Largest accepted `min_points`: a plausibility bound against typing errors (a minimum above it
+/// would leave almost every structure insufficient). Plinth choice.
+pub const MAX_MIN_POINTS: usize = 1000;
+/// Smallest accepted `min_epochs`: the period displacement averages 3 valid epochs at each end
+/// of the window (insar-methods §5.11 [D]), so fewer than 6 cannot give one.
+pub const MIN_MIN_EPOCHS: usize = 6;
+/// Largest accepted `min_epochs`: valid epochs per point are counted up to 65 535.
+pub const MAX_MIN_EPOCHS: usize = u16::MAX as usize;
+/// Largest accepted `min_span_years`: longer than any radar archive (plausibility bound). Plinth
+/// choice.
+pub const MAX_MIN_SPAN_YEARS: f64 = 50.0;
+
 /// The `[assessment]` parameters with defaults applied.
 #[derive(Debug, Clone, Serialize)]
 pub struct AssessmentSettings {
@@ -253,7 +265,8 @@ pub struct AssessmentSettings {
     pub seed: u64,
     /// Monte Carlo draws for metric uncertainty (default 300).
     pub monte_carlo_draws: usize,
-    /// Bootstrap draws for the breakpoint test (default 199).
+    /// Largest number of bootstrap draws B for the breakpoint test (default 999, insar-methods
+    /// §5.8 [D]; the test stops earlier once its decision is known, see `series::breakpoint`).
     pub bootstrap_draws: usize,
     /// Largest condition number of the geometry matrix for an east–west + vertical
     /// decomposition (default 3.0, insar-methods §4.2 [D]); one east-looking and one
@@ -745,7 +758,7 @@ impl Portfolio {
             default_structure: take!(default_structure, "masonry".to_string()),
             seed: take!(seed, 20_240_101u64),
             monte_carlo_draws: take!(monte_carlo_draws, 300usize),
-            bootstrap_draws: take!(bootstrap_draws, 199usize),
+            bootstrap_draws: take!(bootstrap_draws, 999usize),
             max_condition_number: take!(max_condition_number, 3.0),
             strain_axis_max_angle_deg: take!(strain_axis_max_angle_deg, 20.0),
         };
@@ -790,11 +803,34 @@ impl Portfolio {
                 "at least 3 points are needed for a robust mean; 5 is the default",
             );
         }
-        if assessment.min_epochs < 3 {
+        if assessment.min_points > MAX_MIN_POINTS {
+            return bad(
+                "min_points",
+                format!(
+                    "{} is above {MAX_MIN_POINTS}: almost no structure would be assessed",
+                    assessment.min_points
+                ),
+                "5 is the default; the evidence grade asks for 10 points for `robust`",
+            );
+        }
+        if !(MIN_MIN_EPOCHS..=MAX_MIN_EPOCHS).contains(&assessment.min_epochs) {
             return bad(
                 "min_epochs",
-                format!("{} is below 3", assessment.min_epochs),
-                "about 20 acquisitions is the usual minimum (insar-methods §6.4)",
+                format!(
+                    "{} is outside {MIN_MIN_EPOCHS}–{MAX_MIN_EPOCHS}",
+                    assessment.min_epochs
+                ),
+                "the period displacement needs 3 epochs at each end of the window, so at least 6; about 20 acquisitions is the usual minimum (insar-methods §6.4)",
+            );
+        }
+        if !(assessment.min_span_years > 0.0 && assessment.min_span_years <= MAX_MIN_SPAN_YEARS) {
+            return bad(
+                "min_span_years",
+                format!(
+                    "{} years is outside (0, {MAX_MIN_SPAN_YEARS}]",
+                    assessment.min_span_years
+                ),
+                "give the shortest usable window in years; 1.0 is the default (insar-methods §6.4)",
             );
         }
         if !(assessment.default_height_m > 0.0 && assessment.default_height_m < 500.0) {
@@ -974,6 +1010,40 @@ mod tests {
         );
         let e = Portfolio::parse(&t, &p).unwrap_err();
         assert_eq!(e.location, "key portfolio.end");
+    }
+
+    /// Every minimum the status and the evidence grade depend on is range-checked, and the error
+    /// names the key (the file is named by `InputError`).
+    #[test]
+    fn minimums_are_range_checked() {
+        let cases = [
+            ("min_span_years = 0.0", "min_span_years"),
+            ("min_span_years = -1.0", "min_span_years"),
+            ("min_span_years = nan", "min_span_years"),
+            ("min_span_years = 60.0", "min_span_years"),
+            ("min_epochs = 5", "min_epochs"),
+            ("min_epochs = 70000", "min_epochs"),
+            ("min_points = 2", "min_points"),
+            ("min_points = 1001", "min_points"),
+            ("min_coherence = 1.5", "min_coherence"),
+            ("min_coherence = nan", "min_coherence"),
+        ];
+        for (line, key) in cases {
+            let (_d, p, t) = fixture(&format!("[assessment]\n{line}\n"));
+            let e = Portfolio::parse(&t, &p).unwrap_err();
+            assert_eq!(e.location, format!("key assessment.{key}"), "{line}: {e}");
+            assert!(e.to_string().contains("p.toml"), "{line}: {e}");
+        }
+        // The bounds themselves are accepted.
+        for line in [
+            "min_span_years = 50.0",
+            "min_span_years = 0.5",
+            "min_epochs = 6",
+            "min_points = 1000",
+        ] {
+            let (_d, p, t) = fixture(&format!("[assessment]\n{line}\n"));
+            assert!(Portfolio::parse(&t, &p).is_ok(), "{line}");
+        }
     }
 
     #[test]

@@ -278,6 +278,9 @@ struct Acc {
     rows: u64,
     out_of_reach: u64,
     swapped_in_reach: u64,
+    /// Rows whose per-point incidence lies outside the usual [15°, 60°] (insar-methods §2.4
+    /// rule 4: a warning, not an error).
+    unusual_incidence: u64,
     max_abs_mm: f64,
     n_values: u64,
 }
@@ -291,6 +294,7 @@ impl Acc {
         self.rows += o.rows;
         self.out_of_reach += o.out_of_reach;
         self.swapped_in_reach += o.swapped_in_reach;
+        self.unusual_incidence += o.unusual_incidence;
         self.max_abs_mm = self.max_abs_mm.max(o.max_abs_mm);
         self.n_values += o.n_values;
         Ok(())
@@ -699,6 +703,57 @@ impl RowParser<'_> {
         self.row_values(buf, ranges, line, id_raw, acc, pre)
     }
 
+    /// Per-point LOS angles get the checks of the dataset-level ones (insar-methods §2.4): the
+    /// heading must agree with the declared pass and look side (rule 3), and an incidence
+    /// outside [15°, 60°] is counted for one warning (rule 4). The ranges are checked by the
+    /// caller. The error names the heading column when it is mapped (the east component's sign
+    /// comes from the heading alone), else the incidence column.
+    fn check_point_geometry(
+        &self,
+        line: u64,
+        incidence_deg: f64,
+        heading_deg: f64,
+        acc: &mut Acc,
+    ) -> Result<(), InputError> {
+        use crate::series::los;
+        let spec = self.spec;
+        let look = match spec.look {
+            crate::portfolio::LookSide::Right => los::LookSide::Right,
+            crate::portfolio::LookSide::Left => los::LookSide::Left,
+        };
+        let pass = match spec.pass {
+            crate::portfolio::Pass::Ascending => los::Pass::Ascending,
+            crate::portfolio::Pass::Descending => los::Pass::Descending,
+        };
+        let Some(col) = self.head_col.or(self.inc_col) else {
+            return Ok(());
+        };
+        match los::los_from_angles(incidence_deg, heading_deg, look, pass) {
+            Ok(g) => {
+                if self.inc_col.is_some() && !g.warnings.is_empty() {
+                    acc.unusual_incidence += 1;
+                }
+                Ok(())
+            }
+            Err(e) => {
+                let value = if Some(col) == self.head_col {
+                    heading_deg
+                } else {
+                    incidence_deg
+                };
+                Err(InputError::new(
+                    self.file,
+                    format!("line {line}, column `{}`", self.headers[col]),
+                    format!(
+                        "value {value}° gives a line of sight that is not valid for this {} dataset: {e}",
+                        pass.label()
+                    ),
+                    "check the dataset's pass and look side, and that the column holds the flight azimuth (degrees clockwise from north) or the incidence it is mapped as",
+                ))
+            }
+        }
+    }
+
     /// The numeric part of [`Self::row`]: values, transform, reach; pushes a kept point.
     fn row_values(
         &self,
@@ -790,9 +845,21 @@ impl RowParser<'_> {
             None => spec.incidence_deg.unwrap_or(f64::NAN),
         };
         let heading_deg = match self.head_col {
-            Some(col) => req(col, "heading")?,
+            Some(col) => {
+                let v = req(col, "heading")?;
+                if !(-360.0..=360.0).contains(&v) {
+                    return Err(InputError::new(
+                        file,
+                        format!("{}, column `{}`", loc(), headers[col]),
+                        format!("heading {v}° is not an angle in [-360°, 360°]"),
+                        "the heading is the flight azimuth in degrees clockwise from north, e.g. -12 (ascending) or 192 (descending)",
+                    ));
+                }
+                v
+            }
             None => spec.heading_deg.unwrap_or(f64::NAN),
         };
+        self.check_point_geometry(line, incidence_deg, heading_deg, acc)?;
         let height_m = match self.h_col {
             Some(col) => num(col, "height")?.map(|v| v as f32),
             None => None,
@@ -1113,6 +1180,17 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
                 }
                 epoch_cols.push((i, d));
             }
+            Err(e) if looks_like_date(h, &c.date_format, e.kind()) => {
+                return Err(InputError::new(
+                    file,
+                    format!("line 1 (header), column {} `{h}`", i + 1),
+                    format!(
+                        "`{h}` looks like an acquisition date but is not a valid date in format `{}` ({e}); its epoch would be lost",
+                        c.date_format
+                    ),
+                    "correct the date in the header (month 01–12, a day that exists in that month), or set [datasets.columns] date_format to match it",
+                ));
+            }
             Err(_) => ignored.push(h.clone()),
         }
     }
@@ -1272,10 +1350,20 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
         rows,
         out_of_reach,
         swapped_in_reach,
+        unusual_incidence,
         max_abs_mm,
         n_values,
         ..
     } = total;
+    if unusual_incidence > 0 {
+        warnings.push(
+            "los_geometry",
+            format!(
+                "{}: {unusual_incidence} point(s) have an incidence outside the usual range [15°, 60°]",
+                file.display()
+            ),
+        );
+    }
     if rows == 0 {
         return Err(InputError::new(
             file,
@@ -1365,6 +1453,43 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
         max_rounding_mm: store.max_rounding_mm,
         reference: None,
     })
+}
+
+/// Whether a header that did not parse with `format` is nevertheless meant as a date, so that
+/// ignoring it would silently lose an epoch.
+///
+/// Yes when chrono read every field but the values do not form a calendar date (month 13, 30
+/// February: `OutOfRange`/`Impossible`), or when the header has the shape of the format: only
+/// digits and the format's literal characters, the latter in the format's order, and at least
+/// six digits (e.g. `2023-1-150` for `%Y-%m-%d`). Other headers (names such as `velocity` or
+/// `2023-01-15_std`) are left as ignored columns.
+fn looks_like_date(header: &str, format: &str, kind: chrono::format::ParseErrorKind) -> bool {
+    use chrono::format::ParseErrorKind;
+    if matches!(
+        kind,
+        ParseErrorKind::OutOfRange | ParseErrorKind::Impossible
+    ) {
+        return true;
+    }
+    let mut literals = String::new();
+    let mut chars = format.chars();
+    while let Some(ch) = chars.next() {
+        if ch == '%' {
+            // Skip the specifier (and a padding modifier such as `%-d`).
+            match chars.next() {
+                Some('-' | '_' | '0') => {
+                    chars.next();
+                }
+                Some('%') => literals.push('%'),
+                _ => {}
+            }
+        } else {
+            literals.push(ch);
+        }
+    }
+    let digits = header.chars().filter(char::is_ascii_digit).count();
+    let rest: String = header.chars().filter(|c| !c.is_ascii_digit()).collect();
+    digits >= 6 && rest == literals
 }
 
 #[cfg(test)]
@@ -1473,6 +1598,118 @@ mod tests {
         assert!(e.message.contains("point_id"), "{e}");
         let e = read("point_id,lon,lat,2023-01-01\np,9,45,inf\n", &spec()).unwrap_err();
         assert!(e.message.contains("finite"), "{e}");
+    }
+
+    /// A header that has the form of a date but is not one stops the read, naming the column
+    /// and the value; names that are not dates stay ignored columns.
+    #[test]
+    fn impossible_date_header_is_an_error() {
+        for bad in ["2023-13-15", "2023-02-30", "2023-1-150"] {
+            let e = read(
+                &format!("point_id,lon,lat,2023-01-01,{bad},2023-03-01\np,9,45,0,1,2\n"),
+                &spec(),
+            )
+            .unwrap_err();
+            assert_eq!(
+                e.location,
+                format!("line 1 (header), column 5 `{bad}`"),
+                "{e}"
+            );
+            assert!(e.message.contains("not a valid date"), "{e}");
+        }
+        let mut s = spec();
+        s.columns.date_format = "%Y%m%d".into();
+        let e = read("point_id,lon,lat,20230101,20231315\np,9,45,0,1\n", &s).unwrap_err();
+        assert!(e.location.contains("`20231315`"), "{e}");
+        // Not dates: ignored with a warning, as before.
+        for ok in ["velocity", "2023-01-15_std", "v2023"] {
+            let d = read(
+                &format!("point_id,lon,lat,2023-01-01,{ok}\np,9,45,0,1\n"),
+                &spec(),
+            )
+            .unwrap();
+            assert_eq!(d.epochs.len(), 1, "{ok}");
+        }
+    }
+
+    fn angle_spec(inc: bool, head: bool) -> DatasetSpec {
+        let mut s = spec();
+        if inc {
+            s.columns.incidence = Some("inc".into());
+            s.incidence_deg = None;
+        }
+        if head {
+            s.columns.heading = Some("head".into());
+            s.heading_deg = None;
+        }
+        s
+    }
+
+    /// Per-point angle columns get the dataset-level checks (insar-methods §2.4): a heading that
+    /// contradicts the pass, a heading out of range and an incidence out of range are errors
+    /// naming line, column and value; valid per-point angles are read.
+    #[test]
+    fn per_point_angles_are_validated() {
+        let s = angle_spec(true, true);
+        let head = "point_id,lon,lat,inc,head,2023-01-01\n";
+        let d = read(
+            &format!("{head}p,9,45,39.0,-12.0,0\nq,9,45,41.0,-11.0,0\n"),
+            &s,
+        )
+        .unwrap();
+        assert_eq!(d.points.len(), 2);
+        // Descending heading in an ascending dataset (θ = 37°, α = 192° → u_E > 0; LOS-2).
+        let e = read(
+            &format!("{head}p,9,45,39.0,-12.0,0\nq,9,45,37.0,192.0,0\n"),
+            &s,
+        )
+        .unwrap_err();
+        assert_eq!(e.location, "line 3, column `head`");
+        assert!(
+            e.message.contains("192") && e.message.contains("ascending"),
+            "{e}"
+        );
+        let e = read(&format!("{head}p,9,45,39.0,400.0,0\n"), &s).unwrap_err();
+        assert_eq!(e.location, "line 2, column `head`");
+        assert!(e.message.contains("400"), "{e}");
+        let e = read(&format!("{head}p,9,45,0.0,-12.0,0\n"), &s).unwrap_err();
+        assert_eq!(e.location, "line 2, column `inc`");
+        // Heading per point, incidence from the dataset: the pass check still runs.
+        let s = angle_spec(false, true);
+        let e = read("point_id,lon,lat,head,2023-01-01\np,9,45,190.0,0\n", &s).unwrap_err();
+        assert_eq!(e.location, "line 2, column `head`");
+        // A heading just past due east gives u_E > 0 (looking west): not an ascending
+        // right-looking geometry.
+        let e = read("point_id,lon,lat,head,2023-01-01\np,9,45,100.0,0\n", &s).unwrap_err();
+        assert!(e.message.contains("contradicts"), "{e}");
+        // Incidence per point outside [15°, 60°]: read, with one warning for the file.
+        let s = angle_spec(true, false);
+        let w = Crs::wgs84();
+        let t = Transformer::new(&w, &w);
+        let mut warnings = Warnings::default();
+        let d = read_points_from(
+            std::io::Cursor::new(
+                b"point_id,lon,lat,inc,2023-01-01\np,9,45,12.0,0\nq,9,45,65.0,0\nr,9,45,39.0,0\n"
+                    .to_vec(),
+            ),
+            Path::new("a.csv"),
+            &s,
+            &t,
+            true,
+            &|_, _| Some(PointAssociation::default()),
+            None,
+            &mut warnings,
+        )
+        .unwrap();
+        assert_eq!(d.points.len(), 3);
+        let w: Vec<&str> = warnings
+            .items
+            .iter()
+            .filter(|w| w.kind == "los_geometry")
+            .map(|w| w.message.as_str())
+            .collect();
+        assert_eq!(w.len(), 1, "{w:?}");
+        assert!(w[0].contains("2 point(s)"), "{w:?}");
     }
 
     /// A file of `n` rows `p<i>,9,45,0.9,<i mod 7>,<-(i mod 5)>`; row i is on line i + 2.

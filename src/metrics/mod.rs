@@ -621,7 +621,11 @@ pub fn structure_metrics(
                     let idx: Vec<usize> =
                         (0..pts.len()).filter(|&i| pts[i].geometry == g).collect();
                     let res: Vec<f64> = idx.iter().map(|&i| fit.residuals_mm[i]).collect();
-                    let scr = outliers::mad_screen(&res, z_max, 5);
+                    // Scale floor: the points' own precision (median σ), see
+                    // `outliers::mad_screen_with_floor`.
+                    let sig: Vec<f64> = idx.iter().map(|&i| pts[i].sigma_mm).collect();
+                    let floor = settlement::median(&sig).unwrap_or(0.0);
+                    let scr = outliers::mad_screen_with_floor(&res, z_max, 5, floor);
                     for r in scr.rejected {
                         reject[idx[r]] = true;
                     }

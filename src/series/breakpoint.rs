@@ -11,20 +11,21 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
 use serde::Serialize;
 
-use super::fit::{FitError, check_inputs, fit_linear, lag1_autocorrelation, least_squares};
+use super::fit::{
+    FitError, check_inputs, effective_sample_size, fit_linear, lag1_autocorrelation, least_squares,
+};
 
 /// Settings of the breakpoint test.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BreakpointConfig {
     /// Minimum epochs on each side of a candidate hinge, m (insar-methods.md §5.8: 5 [D]).
     pub min_points_each_side: usize,
-    /// Bootstrap draws B. Default 499: the notes recommend 999; 499 halves the cost while keeping
-    /// the Monte Carlo standard error of a p-value near 0.05 at about 0.01, which is adequate for
-    /// a screening decision at the 5 % level.
+    /// Largest number of bootstrap draws B (default 999, insar-methods.md §5.8 [D]). The draws
+    /// stop earlier once the decision at `alpha` is known (see [`breakpoint_test`]).
     pub bootstrap_draws: usize,
     /// Significance level for p (report only if p < alpha; default 0.05).
     pub alpha: f64,
-    /// Minimum |slope change| in units of its standard error (default 2).
+    /// Minimum |slope change| in units of its AR(1)-adjusted standard error (default 2).
     pub min_change_in_se: f64,
     /// Minimum physically meaningful |slope change| (mm/yr; default 1).
     pub min_slope_change_mm_per_yr: f64,
@@ -37,7 +38,7 @@ impl Default for BreakpointConfig {
     fn default() -> Self {
         Self {
             min_points_each_side: 5,
-            bootstrap_draws: 499,
+            bootstrap_draws: 999,
             alpha: 0.05,
             min_change_in_se: 2.0,
             min_slope_change_mm_per_yr: 1.0,
@@ -57,15 +58,20 @@ pub struct HingeFit {
     pub intercept_mm: f64,
     /// Slope before the hinge, b (mm/yr).
     pub slope_before_mm_per_yr: f64,
-    /// SE of b (mm/yr).
+    /// White-noise SE of b (mm/yr).
     pub se_slope_before_mm_per_yr: f64,
     /// Slope change c (mm/yr).
     pub slope_change_mm_per_yr: f64,
-    /// SE of c (mm/yr).
+    /// White-noise SE of c (mm/yr).
     pub se_slope_change_mm_per_yr: f64,
+    /// AR(1)-adjusted SE of c, `SE(c)·sqrt((n − 3)/(n_eff − 3))` with r1 from the hinge model's
+    /// residuals (mm/yr); `None` when n_eff ≤ 3 (not estimable).
+    pub se_slope_change_adjusted_mm_per_yr: Option<f64>,
+    /// Lag-1 autocorrelation of the hinge model's residuals.
+    pub lag1_autocorrelation: f64,
     /// Slope after the hinge, b + c (mm/yr).
     pub slope_after_mm_per_yr: f64,
-    /// SE of b + c (mm/yr).
+    /// White-noise SE of b + c (mm/yr).
     pub se_slope_after_mm_per_yr: f64,
     /// RSS of the straight line (mm²).
     pub rss_linear_mm2: f64,
@@ -80,10 +86,23 @@ pub struct HingeFit {
 /// Largest number of breakpoint candidates searched (evenly thinned above this).
 pub const MAX_CANDIDATES: usize = 400;
 
-/// Hinge regressors residualised on `[1, t]`, precomputed from the times only.
+/// The candidate hinges of one set of dates, with everything that depends on the dates only.
+///
+/// The search uses the Frisch–Waugh–Lovell identity: with `r_k` the hinge column
+/// `h_k = (t − t_k)₊` residualised on `[1, t]`, the hinge model's RSS is
+/// `RSS_k = RSS_lin − (r_kᵀy)²/(r_kᵀr_k)`. Since `r_k ⟂ [1, t]`, `r_kᵀy = h_kᵀe` with `e` the
+/// straight-line residuals of `y`, and `h_kᵀe = Σ_{i≥k} (τ_i − τ_k)·e_i = F_k − τ_k·E_k` with the
+/// suffix sums `E_k = Σ_{i≥k} e_i`, `F_k = Σ_{i≥k} τ_i·e_i` (τ = t − t̄). One pass over the series
+/// and one over the candidates therefore give every candidate's RSS: O(n + K) per series instead
+/// of O(n·K) for a refit (or a dot product) per candidate. The norms `r_kᵀr_k` depend on the
+/// dates only and are computed once, by the numerically stable two-pass formula.
 struct HingeBasis {
-    /// (candidate index k, residualised hinge column, its squared norm)
-    columns: Vec<(usize, Vec<f64>, f64)>,
+    /// Centred times τ_i = t_i − t̄ (years).
+    tau: Vec<f64>,
+    /// Σ τ_i² (years²).
+    sxx: f64,
+    /// (candidate index k, τ_k, 1/r_kᵀr_k).
+    candidates: Vec<(usize, f64, f64)>,
 }
 
 impl HingeBasis {
@@ -91,63 +110,77 @@ impl HingeBasis {
         let n = t.len();
         let nf = n as f64;
         let tm = t.iter().sum::<f64>() / nf;
-        let sxx: f64 = t.iter().map(|x| (x - tm).powi(2)).sum();
-        let mut columns = Vec::new();
+        let tau: Vec<f64> = t.iter().map(|x| x - tm).collect();
+        let sxx: f64 = tau.iter().map(|x| x * x).sum();
+        let mut candidates = Vec::new();
         if n < 2 * m + 1 || !(sxx > 0.0) {
-            return Self { columns };
+            return Self {
+                tau,
+                sxx,
+                candidates,
+            };
         }
-        // At most MAX_CANDIDATES evenly spaced candidates: the basis holds one column of n values
-        // per candidate, so 10 000 epochs with every epoch a candidate would need ~800 MB. The
-        // bootstrap p-value repeats the same (thinned) search on every simulated series, so the
-        // test stays calibrated (Plinth choice; stated in docs/methods.md).
+        // At most MAX_CANDIDATES evenly spaced candidates: 10 000 epochs with every epoch a
+        // candidate would cost 10⁸ operations for the norms alone. The bootstrap p-value repeats
+        // the same (thinned) search on every simulated series, so the test stays calibrated
+        // (Plinth choice; stated in docs/methods.md).
         let span = n - 2 * m;
         let step = span.div_ceil(MAX_CANDIDATES).max(1);
         for k in (m..=(n - m - 1)).step_by(step) {
-            let h: Vec<f64> = t.iter().map(|x| (x - t[k]).max(0.0)).collect();
-            let hm = h.iter().sum::<f64>() / nf;
-            let beta = h
-                .iter()
-                .zip(t.iter())
-                .map(|(hi, ti)| (hi - hm) * (ti - tm))
-                .sum::<f64>()
-                / sxx;
-            let r: Vec<f64> = h
-                .iter()
-                .zip(t.iter())
-                .map(|(hi, ti)| hi - hm - beta * (ti - tm))
-                .collect();
-            let ss: f64 = r.iter().map(|x| x * x).sum();
+            let tk = tau[k];
+            let h = |x: f64| (x - tk).max(0.0);
+            let hm = tau.iter().map(|&x| h(x)).sum::<f64>() / nf;
+            let beta = tau.iter().map(|&x| (h(x) - hm) * x).sum::<f64>() / sxx;
+            let ss: f64 = tau.iter().map(|&x| (h(x) - hm - beta * x).powi(2)).sum();
             if ss > 0.0 {
-                columns.push((k, r, ss));
+                candidates.push((k, tk, 1.0 / ss));
             }
         }
-        Self { columns }
+        Self {
+            tau,
+            sxx,
+            candidates,
+        }
     }
 
-    /// (best k, RSS at best k) given the linear-fit RSS of `y`. Uses the Frisch–Waugh–Lovell
-    /// identity `RSS_k = RSS_lin − (r_hᵀy)²/(r_hᵀr_h)` (r_h orthogonal to [1, t], so `y` need not
-    /// be residualised).
-    fn best(&self, y: &[f64], rss_lin: f64) -> Option<(usize, f64)> {
+    /// (best k, RSS at best k, RSS_lin) of `y`, in two passes: one for the straight line
+    /// (Σy and Στy; Στ = 0), one backward over the series forming each residual e_i on the fly
+    /// with the suffix sums and RSS_lin, meeting the candidates (ascending k) in reverse.
+    fn best(&self, y: &[f64]) -> Option<(usize, f64, f64)> {
+        let nf = y.len() as f64;
+        let (sy, sty) = y
+            .iter()
+            .zip(&self.tau)
+            .fold((0.0, 0.0), |(a, b), (v, x)| (a + v, b + x * v));
+        let (ym, slope) = (sy / nf, sty / self.sxx);
         let mut best: Option<(usize, f64)> = None;
-        for (k, r, ss) in &self.columns {
-            let dot: f64 = r.iter().zip(y.iter()).map(|(a, b)| a * b).sum();
-            let rss = rss_lin - dot * dot / ss;
-            if best.is_none_or(|(_, b)| rss < b) {
-                best = Some((*k, rss));
+        let (mut sum_e, mut sum_te, mut rss_lin) = (0.0, 0.0, 0.0);
+        let mut i = y.len();
+        let step = |i: usize, sum_e: &mut f64, sum_te: &mut f64, rss: &mut f64| {
+            let e = y[i] - ym - slope * self.tau[i];
+            *sum_e += e;
+            *sum_te += self.tau[i] * e;
+            *rss += e * e;
+        };
+        for &(k, tk, inv_ss) in self.candidates.iter().rev() {
+            while i > k {
+                i -= 1;
+                step(i, &mut sum_e, &mut sum_te, &mut rss_lin);
+            }
+            let dot = sum_te - tk * sum_e;
+            let gain = dot * dot * inv_ss; // RSS_lin − RSS_k
+            // `>=` while walking backwards keeps the earliest of equal maxima, as a forward
+            // search with `>` would.
+            if best.is_none_or(|(_, g)| gain >= g) {
+                best = Some((k, gain));
             }
         }
-        best
+        while i > 0 {
+            i -= 1;
+            step(i, &mut sum_e, &mut sum_te, &mut rss_lin);
+        }
+        best.map(|(k, gain)| (k, rss_lin - gain, rss_lin))
     }
-}
-
-fn linear_rss(t: &[f64], y: &[f64]) -> f64 {
-    let nf = t.len() as f64;
-    let tm = t.iter().sum::<f64>() / nf;
-    let ym = y.iter().sum::<f64>() / nf;
-    let sxx: f64 = t.iter().map(|x| (x - tm).powi(2)).sum();
-    let sxy: f64 = t.iter().zip(y).map(|(a, b)| (a - tm) * (b - ym)).sum();
-    let syy: f64 = y.iter().map(|b| (b - ym).powi(2)).sum();
-    (syy - sxy * sxy / sxx).max(0.0)
 }
 
 fn f_sup_of(rss_lin: f64, rss_hinge: f64, n: usize) -> f64 {
@@ -173,6 +206,12 @@ fn check_sorted(t: &[f64]) -> Result<(), FitError> {
 /// Grid search for the continuous single-hinge model over candidates `t_k`,
 /// `k = m .. n − m − 1` (0-based).
 ///
+/// The search itself runs on suffix sums (see `HingeBasis`); the chosen hinge is then refitted
+/// by least squares for its coefficients and standard errors. The SE of the slope change is also
+/// given AR(1)-adjusted, `SE(c)·sqrt((n − 3)/(n_eff − 3))`, `n_eff = n(1 − r1)/(1 + r1)` with r1
+/// from the hinge model's own residuals (insar-methods.md §5.3, with the model's 3 parameters in
+/// place of 2, as for the other fits).
+///
 /// # Units
 /// Years, mm, mm/yr; F dimensionless.
 ///
@@ -183,12 +222,20 @@ fn check_sorted(t: &[f64]) -> Result<(), FitError> {
 /// F_sup does not follow F(1, n − 3) because the hinge is searched; use [`breakpoint_test`] for
 /// significance. Errors: fewer than 2m + 1 epochs, unsorted times, non-finite input.
 pub fn hinge_search(t_yr: &[f64], d_mm: &[f64], m: usize) -> Result<HingeFit, FitError> {
+    let basis = HingeBasis::new(t_yr, m);
+    hinge_search_with(&basis, t_yr, d_mm, m)
+}
+
+fn hinge_search_with(
+    basis: &HingeBasis,
+    t_yr: &[f64],
+    d_mm: &[f64],
+    m: usize,
+) -> Result<HingeFit, FitError> {
     check_inputs(t_yr, d_mm, "hinge search", (2 * m + 1).max(4))?;
     check_sorted(t_yr)?;
     let n = t_yr.len();
-    let basis = HingeBasis::new(t_yr, m);
-    let rss_lin = linear_rss(t_yr, d_mm);
-    let (k, _) = basis.best(d_mm, rss_lin).ok_or(FitError::Degenerate {
+    let (k, _, rss_lin) = basis.best(d_mm).ok_or(FitError::Degenerate {
         model: "hinge search",
         why: "no candidate hinge",
     })?;
@@ -196,6 +243,10 @@ pub fn hinge_search(t_yr: &[f64], d_mm: &[f64], m: usize) -> Result<HingeFit, Fi
     let ls = least_squares(&[vec![1.0; n], t_yr.to_vec(), h], d_mm, None, "hinge model")?;
     let (b, c) = (ls.coefficients[1], ls.coefficients[2]);
     let var_after = ls.cov(1, 1) + ls.cov(2, 2) + 2.0 * ls.cov(1, 2);
+    let r1 = lag1_autocorrelation(&ls.residuals);
+    let n_eff = effective_sample_size(n, r1);
+    let se_c = ls.se(2);
+    let se_c_adj = (n_eff > 3.0).then(|| se_c * ((n as f64 - 3.0) / (n_eff - 3.0)).sqrt());
     Ok(HingeFit {
         break_index: k,
         break_t_yr: t_yr[k],
@@ -203,13 +254,15 @@ pub fn hinge_search(t_yr: &[f64], d_mm: &[f64], m: usize) -> Result<HingeFit, Fi
         slope_before_mm_per_yr: b,
         se_slope_before_mm_per_yr: ls.se(1),
         slope_change_mm_per_yr: c,
-        se_slope_change_mm_per_yr: ls.se(2),
+        se_slope_change_mm_per_yr: se_c,
+        se_slope_change_adjusted_mm_per_yr: se_c_adj,
+        lag1_autocorrelation: r1,
         slope_after_mm_per_yr: b + c,
         se_slope_after_mm_per_yr: var_after.max(0.0).sqrt(),
         rss_linear_mm2: rss_lin,
         rss_hinge_mm2: ls.rss,
         f_sup: f_sup_of(rss_lin, ls.rss, n),
-        candidates: basis.columns.len(),
+        candidates: basis.candidates.len(),
     })
 }
 
@@ -218,16 +271,21 @@ pub fn hinge_search(t_yr: &[f64], d_mm: &[f64], m: usize) -> Result<HingeFit, Fi
 pub struct BreakpointTest {
     /// The best hinge (always reported for transparency, significant or not).
     pub hinge: HingeFit,
-    /// Bootstrap p = (1 + #{F_sim ≥ F_obs})/(B + 1).
+    /// Bootstrap p-value: `h/L` when the draws stopped at the h-th exceedance after L draws,
+    /// else `(1 + #{F_sim ≥ F_obs})/(B + 1)` (Besag & Clifford 1991).
     pub p_value: f64,
     /// AR(1) coefficient used for the null simulations (lag-1 of the linear residuals, clamped
     /// to [0, 0.95]).
     pub null_ar1_phi: f64,
-    /// Number of bootstrap draws B.
+    /// Bootstrap draws made (≤ `max_draws`).
     pub draws: usize,
+    /// Largest number of draws B.
+    pub max_draws: usize,
+    /// Exceedances `#{F_sim ≥ F_obs}` at which the draws stop, h = ⌈alpha·(B + 1)⌉.
+    pub stop_at_exceedances: usize,
     /// Seed actually used for the draws.
     pub seed_used: u64,
-    /// All three conditions hold: p < alpha, |c| > k·SE(c), |c| > minimum rate.
+    /// All three conditions hold: p < alpha, |c| > k·SE_adj(c), |c| > minimum rate.
     pub significant: bool,
     /// Which conditions failed (empty when significant).
     pub not_significant_because: Vec<String>,
@@ -249,58 +307,100 @@ pub fn derive_seed(base: u64, t_yr: &[f64], d_mm: &[f64]) -> u64 {
     z ^ (z >> 31)
 }
 
+/// Exceedance count h at which the sequential bootstrap stops: `⌈alpha·(B + 1)⌉`, at least 1.
+///
+/// With this h the sequential test decides exactly as the full test with B draws would:
+/// stopping at the h-th exceedance means the full count would be ≥ h, so the full p-value
+/// `(1 + count)/(B + 1)` would be ≥ alpha; not stopping leaves the full count itself.
+pub fn stop_at_exceedances(alpha: f64, draws: usize) -> usize {
+    let h = (alpha * (draws + 1) as f64).ceil();
+    if h.is_finite() && h >= 1.0 {
+        (h as usize).min(draws + 1)
+    } else {
+        1
+    }
+}
+
+/// Sequential Monte Carlo p-value of an observed statistic (Besag & Clifford 1991).
+///
+/// Draws simulated statistics one at a time until `h` of them are ≥ `observed` or `max_draws`
+/// have been made. Stopped at the h-th exceedance after L draws: `p = h/L`; otherwise, with
+/// `l < h` exceedances in B draws: `p = (l + 1)/(B + 1)`. Both are valid p-values
+/// (P(p ≤ u) ≤ u under the null). Returns (p, draws made).
+///
+/// # References
+/// Besag J. & Clifford P. (1991) Sequential Monte Carlo p-values. Biometrika 78(2):301–304.
+pub fn sequential_p_value(
+    observed: f64,
+    max_draws: usize,
+    h: usize,
+    mut draw: impl FnMut() -> f64,
+) -> (f64, usize) {
+    let mut exceed = 0usize;
+    for l in 1..=max_draws {
+        if draw() >= observed {
+            exceed += 1;
+            if exceed >= h {
+                return (h as f64 / l as f64, l);
+            }
+        }
+    }
+    ((exceed + 1) as f64 / (max_draws + 1) as f64, max_draws)
+}
+
 /// Single-hinge breakpoint with a parametric AR(1) bootstrap p-value.
 ///
 /// Null model: the OLS straight line; φ = lag-1 autocorrelation of its residuals (clamped to
 /// [0, 0.95]: negative values are treated as 0 as in the n_eff rule, and near-unit roots are
-/// capped to keep the simulation stationary); σ = residual SD. Each draw is a stationary AR(1)
-/// series with marginal SD σ on the same dates, added to the fitted line; its F_sup is computed
-/// with the same grid. (F_sup is invariant to the line and to σ, so only φ matters; the full null
-/// is simulated anyway for clarity.) The lag-1 model assumes regular sampling (§5.3).
+/// capped to keep the simulation stationary). Each draw is a stationary AR(1) series with unit
+/// marginal SD on the same dates; its F_sup is computed with the same (thinned) grid. F_sup is
+/// invariant to adding a straight line and to the scale of the noise, so the fitted line and σ
+/// are not added (they would not change any draw's statistic). The lag-1 model assumes regular
+/// sampling (§5.3).
 ///
-/// A break is reported (`significant`) only if p < alpha, |c| > `min_change_in_se`·SE(c) and
-/// |c| > `min_slope_change_mm_per_yr`.
+/// The draws are sequential (Besag & Clifford 1991, [`sequential_p_value`]): they stop at the
+/// h-th simulated F_sup ≥ the observed one, h = ⌈alpha·(B + 1)⌉ ([`stop_at_exceedances`]), which
+/// gives the same decision at `alpha` as all B draws. A series without a break typically stops
+/// after a few dozen draws; a clear break uses all B. Each draw costs O(n + K) (see `HingeBasis`).
+///
+/// A break is reported (`significant`) only if p < alpha, |c| > `min_change_in_se`·SE_adj(c)
+/// (the AR(1)-adjusted SE, matching the AR(1) null) and |c| > `min_slope_change_mm_per_yr`.
 ///
 /// # Units
 /// Years, mm, mm/yr.
 ///
 /// # References
-/// insar-methods.md §5.8 recommended test [D]; Davies (1987) on nuisance parameters present only
-/// under the alternative [S: cited]. White-noise 95 % critical values ≈ 7.1 (n = 60-92) [C].
+/// insar-methods.md §5.8 recommended test [D] (B = 999); Davies (1987) on nuisance parameters
+/// present only under the alternative [S: cited]; Besag & Clifford (1991) for the sequential
+/// p-value. White-noise 95 % critical values ≈ 7.1 (n = 60-92) [C].
 pub fn breakpoint_test(
     t_yr: &[f64],
     d_mm: &[f64],
     cfg: &BreakpointConfig,
 ) -> Result<BreakpointTest, FitError> {
-    let hinge = hinge_search(t_yr, d_mm, cfg.min_points_each_side)?;
+    let basis = HingeBasis::new(t_yr, cfg.min_points_each_side);
+    let hinge = hinge_search_with(&basis, t_yr, d_mm, cfg.min_points_each_side)?;
     let n = t_yr.len();
     let lin = fit_linear(t_yr, d_mm)?;
     let phi = lag1_autocorrelation(&lin.residuals_mm).clamp(0.0, 0.95);
-    let sigma = lin.residual_sd_mm;
-    let innovation = sigma * (1.0 - phi * phi).sqrt();
-    let basis = HingeBasis::new(t_yr, cfg.min_points_each_side);
+    let innovation = (1.0 - phi * phi).sqrt();
     let seed_used = derive_seed(cfg.seed, t_yr, d_mm);
     let mut rng = ChaCha8Rng::seed_from_u64(seed_used);
-    let mut exceed = 0usize;
+    let h = stop_at_exceedances(cfg.alpha, cfg.bootstrap_draws);
     let mut y = vec![0.0; n];
-    for _ in 0..cfg.bootstrap_draws {
-        let z0: f64 = StandardNormal.sample(&mut rng);
-        let mut e: f64 = sigma * z0;
-        for i in 0..n {
-            if i > 0 {
-                let z: f64 = StandardNormal.sample(&mut rng);
-                e = phi * e + innovation * z;
-            }
-            y[i] = lin.intercept_mm + lin.velocity_mm_per_yr * t_yr[i] + e;
+    let (p_value, draws) = sequential_p_value(hinge.f_sup, cfg.bootstrap_draws, h, || {
+        let mut x: f64 = StandardNormal.sample(&mut rng);
+        y[0] = x;
+        for yi in y.iter_mut().skip(1) {
+            let z: f64 = StandardNormal.sample(&mut rng);
+            x = phi * x + innovation * z;
+            *yi = x;
         }
-        let rss_lin = linear_rss(t_yr, &y);
-        if let Some((_, rss_h)) = basis.best(&y, rss_lin) {
-            if f_sup_of(rss_lin, rss_h.max(0.0), n) >= hinge.f_sup {
-                exceed += 1;
-            }
+        match basis.best(&y) {
+            Some((_, rss_h, rss_lin)) => f_sup_of(rss_lin, rss_h.max(0.0), n),
+            None => f64::NEG_INFINITY,
         }
-    }
-    let p_value = (1 + exceed) as f64 / (cfg.bootstrap_draws + 1) as f64;
+    });
     let mut reasons = Vec::new();
     if !(p_value < cfg.alpha) {
         reasons.push(format!(
@@ -309,12 +409,16 @@ pub fn breakpoint_test(
         ));
     }
     let c = hinge.slope_change_mm_per_yr;
-    let se_c = hinge.se_slope_change_mm_per_yr;
-    if !(c.abs() > cfg.min_change_in_se * se_c) {
-        reasons.push(format!(
-            "slope change {c:.2} mm/yr is not larger than {} × its SE ({se_c:.2} mm/yr)",
+    match hinge.se_slope_change_adjusted_mm_per_yr {
+        Some(se_c) if c.abs() > cfg.min_change_in_se * se_c => {}
+        Some(se_c) => reasons.push(format!(
+            "slope change {c:.2} mm/yr is not larger than {} × its AR(1)-adjusted SE ({se_c:.2} mm/yr)",
             cfg.min_change_in_se
-        ));
+        )),
+        None => reasons.push(
+            "the SE of the slope change is not estimable (too few effectively independent epochs)"
+                .to_string(),
+        ),
     }
     if !(c.abs() > cfg.min_slope_change_mm_per_yr) {
         reasons.push(format!(
@@ -326,7 +430,9 @@ pub fn breakpoint_test(
         hinge,
         p_value,
         null_ar1_phi: phi,
-        draws: cfg.bootstrap_draws,
+        draws,
+        max_draws: cfg.bootstrap_draws,
+        stop_at_exceedances: h,
         seed_used,
         significant: reasons.is_empty(),
         not_significant_because: reasons,
@@ -502,6 +608,202 @@ mod tests {
             "bootstrap false alarms {alarms}/200"
         );
         assert!(naive >= 20, "naive false alarms {naive}/200");
+    }
+
+    /// The plain search: refit `[1, t, (t − t_k)₊]` by least squares at every candidate (the same
+    /// thinned grid) and keep the smallest RSS. Reference for the suffix-sum search.
+    fn plain_search(t: &[f64], d: &[f64], m: usize) -> (usize, f64, f64) {
+        let n = t.len();
+        let span = n - 2 * m;
+        let step = span.div_ceil(MAX_CANDIDATES).max(1);
+        let lin = least_squares(&[vec![1.0; n], t.to_vec()], d, None, "line").unwrap();
+        let mut best: Option<(usize, f64)> = None;
+        for k in (m..=(n - m - 1)).step_by(step) {
+            let h: Vec<f64> = t.iter().map(|x| (x - t[k]).max(0.0)).collect();
+            let ls = least_squares(&[vec![1.0; n], t.to_vec(), h], d, None, "hinge").unwrap();
+            if best.is_none_or(|(_, b)| ls.rss < b) {
+                best = Some((k, ls.rss));
+            }
+        }
+        let (k, rss) = best.unwrap();
+        (k, rss, f_sup_of(lin.rss, rss, n))
+    }
+
+    /// Fast (suffix sums) against plain (a least-squares refit per candidate) on fixtures: the
+    /// same hinge and F_sup to a relative 1e-9 (rounding only; the two are algebraically equal
+    /// by the Frisch–Waugh–Lovell identity). Fixtures: Series A, B, D of insar-methods §5.12,
+    /// seeded white and AR(1) noise, irregular sampling, and a long series whose grid is thinned.
+    #[test]
+    fn suffix_sum_search_equals_plain_refits() {
+        let mut cases: Vec<(Vec<f64>, Vec<f64>)> = vec![series_a(), series_b(), series_d()];
+        let mut rng = ChaCha8Rng::seed_from_u64(9);
+        for (n, phi, irregular) in [
+            (60, 0.0, false),
+            (150, 0.6, false),
+            (80, 0.3, true),
+            (900, 0.2, false),
+        ] {
+            let mut t: Vec<f64> = Vec::with_capacity(n);
+            let mut x = 0.0f64;
+            for i in 0..n {
+                let gap = if irregular && i % 7 == 3 { 24.0 } else { 12.0 };
+                x += gap / 365.25;
+                t.push(x);
+            }
+            let mut e = 0.0f64;
+            let d: Vec<f64> = t
+                .iter()
+                .map(|ti| {
+                    let z: f64 = StandardNormal.sample(&mut rng);
+                    e = phi * e + z;
+                    1.0 - 4.0 * ti - 3.0 * (ti - t[n / 3]).max(0.0) + 1.5 * e
+                })
+                .collect();
+            cases.push((t, d));
+        }
+        for (i, (t, d)) in cases.iter().enumerate() {
+            let fast = hinge_search(t, d, 5).unwrap();
+            let (k, rss, f) = plain_search(t, d, 5);
+            assert_eq!(fast.break_index, k, "case {i}");
+            assert!((fast.rss_hinge_mm2 - rss).abs() <= 1e-9 * rss, "case {i}");
+            assert!(
+                (fast.f_sup - f).abs() <= 1e-9 * f,
+                "case {i}: {} vs {f}",
+                fast.f_sup
+            );
+            // The per-draw path (`best`) gives the same statistic as the refit.
+            let basis = HingeBasis::new(t, 5);
+            let (kb, rss_b, rss_lin) = basis.best(d).unwrap();
+            assert_eq!(kb, k, "case {i}");
+            assert!(
+                (f_sup_of(rss_lin, rss_b, t.len()) - f).abs() <= 1e-9 * f,
+                "case {i}"
+            );
+        }
+    }
+
+    /// Besag & Clifford (1991) sequential p-value on a fixed stream: stop at the h-th exceedance
+    /// with p = h/L, else (l + 1)/(B + 1) (hand-computed).
+    #[test]
+    fn sequential_p_value_rule() {
+        let stream = [1.0, 6.0, 2.0, 7.0, 9.0, 0.5];
+        let mut it = stream.iter().copied();
+        // observed 5: exceedances at draws 2 and 4 → h = 2 stops at L = 4, p = 2/4.
+        assert_eq!(
+            sequential_p_value(5.0, 6, 2, || it.next().unwrap()),
+            (0.5, 4)
+        );
+        let mut it = stream.iter().copied();
+        // observed 8: one exceedance (draw 5) in B = 6 draws, h = 2 not reached: p = 2/7.
+        assert_eq!(
+            sequential_p_value(8.0, 6, 2, || it.next().unwrap()),
+            (2.0 / 7.0, 6)
+        );
+        // h = ⌈alpha·(B + 1)⌉: 50 for (0.05, 999), 10 for (0.05, 199), 1 for (0.05, 19).
+        assert_eq!(stop_at_exceedances(0.05, 999), 50);
+        assert_eq!(stop_at_exceedances(0.05, 199), 10);
+        assert_eq!(stop_at_exceedances(0.05, 19), 1);
+        assert_eq!(stop_at_exceedances(f64::NAN, 19), 1);
+    }
+
+    /// With h = ⌈alpha·(B + 1)⌉ the sequential test decides exactly as the full B-draw test:
+    /// checked on 300 seeded streams of uniform statistics against observed values spread over
+    /// the range where the decision changes, and the sequential runs never draw more than B.
+    #[test]
+    fn sequential_decision_equals_full_bootstrap() {
+        use rand::Rng;
+        let mut rng = ChaCha8Rng::seed_from_u64(5);
+        let (b, alpha) = (999usize, 0.05);
+        let h = stop_at_exceedances(alpha, b);
+        let mut saved = 0usize;
+        for j in 0..300 {
+            let stream: Vec<f64> = (0..b).map(|_| rng.random::<f64>()).collect();
+            let observed = 0.9 + 0.1 * j as f64 / 300.0; // full p from ≈ 0.1 down to ≈ 0.001
+            let full =
+                (1 + stream.iter().filter(|&&x| x >= observed).count()) as f64 / (b + 1) as f64;
+            let mut it = stream.iter().copied();
+            let (p, used) = sequential_p_value(observed, b, h, || it.next().unwrap());
+            assert_eq!(p < alpha, full < alpha, "stream {j}: {p} vs {full}");
+            if used < b {
+                assert!(full >= alpha);
+                saved += b - used;
+            } else {
+                assert_eq!(p, full);
+            }
+        }
+        assert!(saved > 0);
+    }
+
+    /// The slope-change rule uses the AR(1)-adjusted SE: a threshold set between |c|/SE_adj and
+    /// |c|/SE (white noise) makes the break not significant, with the adjusted SE named. Seeded
+    /// AR(1) noise φ = 0.7 with a real slope change.
+    #[test]
+    fn slope_change_rule_uses_ar1_adjusted_se() {
+        let mut rng = ChaCha8Rng::seed_from_u64(21);
+        let t: Vec<f64> = (0..92).map(|i| 12.0 * i as f64 / 365.25).collect();
+        let mut e = 0.0;
+        let d: Vec<f64> = t
+            .iter()
+            .map(|x| {
+                let z: f64 = StandardNormal.sample(&mut rng);
+                e = 0.7 * e + z;
+                -2.0 * x - 6.0 * (x - 1.5).max(0.0) + e
+            })
+            .collect();
+        let h = hinge_search(&t, &d, 5).unwrap();
+        assert!(
+            h.lag1_autocorrelation > 0.3,
+            "r1 {}",
+            h.lag1_autocorrelation
+        );
+        let se_adj = h.se_slope_change_adjusted_mm_per_yr.unwrap();
+        let n_eff = effective_sample_size(92, h.lag1_autocorrelation);
+        assert!(
+            (se_adj - h.se_slope_change_mm_per_yr * (89.0 / (n_eff - 3.0)).sqrt()).abs() < 1e-12
+        );
+        assert!(se_adj > 1.3 * h.se_slope_change_mm_per_yr);
+        let c = h.slope_change_mm_per_yr.abs();
+        let k = 0.5 * (c / se_adj + c / h.se_slope_change_mm_per_yr);
+        let cfg = BreakpointConfig {
+            bootstrap_draws: 99,
+            min_change_in_se: k,
+            ..Default::default()
+        };
+        let r = breakpoint_test(&t, &d, &cfg).unwrap();
+        assert!(!r.significant);
+        assert!(
+            r.not_significant_because
+                .iter()
+                .any(|x| x.contains("AR(1)-adjusted SE")),
+            "{:?}",
+            r.not_significant_because
+        );
+    }
+
+    /// Defaults follow insar-methods §5.8: B = 999; a clear break draws all B, a series without
+    /// one stops early; the same seed gives the same result.
+    #[test]
+    fn defaults_and_sequential_stopping() {
+        let cfg = BreakpointConfig::default();
+        assert_eq!(cfg.bootstrap_draws, 999);
+        let (t, d) = series_d();
+        let r = breakpoint_test(&t, &d, &cfg).unwrap();
+        assert_eq!(
+            (r.draws, r.max_draws, r.stop_at_exceedances),
+            (999, 999, 50)
+        );
+        assert!(r.p_value < 0.01 && r.significant, "p {}", r.p_value);
+        let (t, d) = series_a();
+        let r = breakpoint_test(&t, &d, &cfg).unwrap();
+        assert!(
+            r.draws < 999 && r.p_value >= 0.05,
+            "{} draws, p {}",
+            r.draws,
+            r.p_value
+        );
+        // Stopped at the 50th exceedance: p = 50/L (Besag & Clifford).
+        assert!((r.p_value - 50.0 / r.draws as f64).abs() < 1e-12);
+        assert_eq!(breakpoint_test(&t, &d, &cfg).unwrap(), r);
     }
 
     #[test]

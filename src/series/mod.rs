@@ -86,7 +86,8 @@ pub struct SeriesConfig {
     pub min_points_per_epoch: usize,
     /// Radar wavelength (mm; default C-band 5.405 GHz → 55.47 mm).
     pub wavelength_mm: f64,
-    /// Bootstrap draws of the breakpoint test (default 499; see [`BreakpointConfig`]).
+    /// Largest number of bootstrap draws of the breakpoint test (default 999; see
+    /// [`BreakpointConfig`]).
     pub bootstrap_draws: usize,
     /// Base seed for the bootstrap (combined with the data).
     pub seed: u64,
@@ -219,8 +220,12 @@ pub struct GeometrySeries {
     pub usable_span_yr: f64,
     /// Linear LOS fit of the aggregate over the window.
     pub los_fit: Option<LinearFit>,
-    /// Period LOS displacement of the aggregate (mm, + towards the satellite).
+    /// Period LOS displacement of the aggregate (mm, + towards the satellite); with the fitted
+    /// annual term removed when `annual_fit` is present.
     pub period_los: Option<PeriodDisplacement>,
+    /// Linear + annual fit of the aggregate LOS, made when the structure's selected model holds
+    /// the annual term; its velocity then replaces the straight line's in the headline values.
+    pub annual_fit: Option<AnnualFit>,
     /// Per-point results, in input order.
     pub points: Vec<PointResult>,
     /// Sufficiency of this geometry.
@@ -339,6 +344,10 @@ pub struct StructureSeries {
     pub se_east_velocity_mm_per_yr: Option<f64>,
     /// "decomposed (…)" or "projected (…)".
     pub velocity_method: Option<String>,
+    /// Model whose velocity is reported ("linear" or "linear+annual"): the model selected on
+    /// the vertical series when it holds the annual term, else the straight line (see
+    /// [`analyse_structure`]).
+    pub velocity_model: Option<&'static str>,
     /// Asc/desc consistency of the vertical velocity projections.
     pub asc_desc_consistency: Option<AscDescConsistency>,
     /// Relative movement against the surroundings; `None` without surroundings points.
@@ -364,6 +373,13 @@ pub struct StructureSeries {
 ///   jump is reported as a possible real event.
 /// - With several ascending or descending geometries the vertical series uses the first usable
 ///   of each (in input order); the velocity decomposition uses all usable geometries.
+/// - The headline velocity and period displacement follow the model selected on the vertical
+///   series (insar-methods.md §5.6): when it holds the annual term, each usable geometry's
+///   aggregate gets a linear + annual fit, whose velocity (AR(1)-adjusted SE) replaces the
+///   straight line's, and the fitted annual term is subtracted from the aggregate and from every
+///   point before the period displacement is formed (a straight line over a span that is not a
+///   whole number of years is biased by the seasonal signal, §5.4; local means at the window ends
+///   keep the seasonal phase difference between them). See [`deseasonalise`].
 pub fn analyse_structure(
     geoms: &[GeometryInput],
     surroundings: &[GeometryInput],
@@ -392,7 +408,7 @@ pub fn analyse_structure(
     if cfg.window_end <= cfg.window_start {
         status_reasons.push("assessment window is empty (end not after start)".to_string());
     }
-    let geometries: Vec<GeometrySeries> = geoms
+    let mut geometries: Vec<GeometrySeries> = geoms
         .iter()
         .map(|g| process_geometry(g, cfg, origin, true))
         .collect();
@@ -494,19 +510,56 @@ pub fn analyse_structure(
         }
     }
 
+    // The velocity model: the annual term stays when model comparison selected it.
+    let annual_selected = vertical
+        .as_ref()
+        .and_then(|v| v.fits.as_ref())
+        .and_then(|f| f.model_comparison.as_ref())
+        .is_some_and(|m| m.selected.contains("annual"));
+    let velocity_model = if annual_selected {
+        for &i in &usable {
+            if let Err(why) = deseasonalise(&mut geometries[i], &geoms[i], cfg, origin) {
+                assumptions.push(format!(
+                    "{}: linear + annual fit not possible ({why}); straight-line velocity used",
+                    geometries[i].name
+                ));
+            }
+        }
+        assumptions.push(
+            "model comparison selected an annual term: velocities are those of the linear + \
+             annual model, and the fitted annual term is removed from each geometry's aggregate \
+             and from every point before the period displacement is formed"
+                .to_string(),
+        );
+        "linear+annual"
+    } else {
+        "linear"
+    };
+
     // Velocities and period displacements from the geometries' own window estimates.
     let vel_obs: Vec<(usize, LosObservation)> = usable
         .iter()
         .filter_map(|&i| {
-            let f = geometries[i].los_fit.as_ref()?;
+            let g = &geometries[i];
+            let (v, se) = match (&g.annual_fit, &g.los_fit) {
+                (Some(a), _) => (
+                    a.velocity_mm_per_yr,
+                    a.se_velocity_adjusted_mm_per_yr
+                        .unwrap_or(a.se_velocity_mm_per_yr),
+                ),
+                (None, Some(f)) => (
+                    f.velocity_mm_per_yr,
+                    f.se_velocity_adjusted_mm_per_yr
+                        .unwrap_or(f.se_velocity_mm_per_yr),
+                ),
+                (None, None) => return None,
+            };
             Some((
                 i,
                 LosObservation {
-                    los_mm: f.velocity_mm_per_yr,
-                    sigma_mm: f
-                        .se_velocity_adjusted_mm_per_yr
-                        .unwrap_or(f.se_velocity_mm_per_yr),
-                    unit_enu: geometries[i].mean_unit_enu,
+                    los_mm: v,
+                    sigma_mm: se,
+                    unit_enu: g.mean_unit_enu,
                 },
             ))
         })
@@ -618,6 +671,7 @@ pub fn analyse_structure(
         east_velocity_mm_per_yr: vel.as_ref().and_then(|c| c.east),
         se_east_velocity_mm_per_yr: vel.as_ref().and_then(|c| c.sigma_east),
         velocity_method: vel.as_ref().map(|c| c.method.clone()),
+        velocity_model: vel.as_ref().map(|_| velocity_model),
         asc_desc_consistency: asc_desc,
         relative_to_surroundings: relative,
         geometries,
@@ -803,12 +857,86 @@ fn process_geometry(
         usable_span_yr,
         los_fit,
         period_los,
+        annual_fit: None,
         points,
         status: SeriesStatus {
             sufficient: reasons.is_empty(),
             reasons,
         },
     }
+}
+
+/// The fitted annual term `s·sin(2πt) + c·cos(2πt)` of a linear + annual fit at `t` (years from
+/// the calendar origin), mm (insar-methods.md §5.4).
+fn annual_term(a: &AnnualFit, t_yr: f64) -> f64 {
+    let w = 2.0 * std::f64::consts::PI * t_yr;
+    a.sin_mm * w.sin() + a.cos_mm * w.cos()
+}
+
+/// Fit linear + annual to one geometry's aggregate and remove the fitted annual term before the
+/// period displacements are formed, for the aggregate and for every point (the points share the
+/// geometry's seasonal term: one structure, one viewing direction).
+///
+/// Rule: `D = mean_last3(d − ŝ) − mean_first3(d − ŝ)`, ŝ(t) the fitted annual term, which is the
+/// local-means displacement without the seasonal phase difference between the window's ends;
+/// its σ is formed as before from the straight-line residuals of `d − ŝ` (smaller than those of
+/// `d` when the annual term is real). Sets `annual_fit`; errors when the fit fails (the caller
+/// keeps the straight line and says so).
+///
+/// # Units
+/// Years from the calendar origin, mm.
+///
+/// # References
+/// insar-methods.md §5.4 (annual model, bias of a straight line), §5.6 (model selection),
+/// §5.11 (local means) [D].
+fn deseasonalise(
+    gs: &mut GeometrySeries,
+    input: &GeometryInput,
+    cfg: &SeriesConfig,
+    origin: NaiveDate,
+) -> Result<(), String> {
+    let usable = usable_values(gs, cfg);
+    let (t, d): (Vec<f64>, Vec<f64>) = gs
+        .dates
+        .iter()
+        .zip(&usable)
+        .filter(|(_, v)| v.is_finite())
+        .map(|(date, v)| (decimal_years(*date, origin), *v))
+        .unzip();
+    let annual = fit_linear_annual(&t, &d).map_err(|e| e.to_string())?;
+    let t1 = decimal_years(cfg.window_start, origin);
+    let t2 = decimal_years(cfg.window_end, origin);
+    let remove = |t: &[f64], d: &[f64]| -> Vec<f64> {
+        t.iter()
+            .zip(d)
+            .map(|(ti, di)| di - annual_term(&annual, *ti))
+            .collect()
+    };
+    gs.period_los = period_displacement(&t, &remove(&t, &d), t1, t2, cfg.period_method).ok();
+    // Points: the same window epochs as `process_geometry` (the geometry is usable, so its
+    // epochs are sorted and the point lengths were checked).
+    let window: Vec<usize> = (0..input.epochs.len())
+        .filter(|&i| input.epochs[i] >= cfg.window_start && input.epochs[i] <= cfg.window_end)
+        .collect();
+    let t_all: Vec<f64> = window
+        .iter()
+        .map(|&i| decimal_years(input.epochs[i], origin))
+        .collect();
+    for pr in gs.points.iter_mut().filter(|p| p.period_los.is_some()) {
+        let Some(p) = input.points.get(pr.index) else {
+            continue;
+        };
+        let v: Vec<f64> = window.iter().map(|&i| p.values_mm.get(i) as f64).collect();
+        match period_displacement(&t_all, &remove(&t_all, &v), t1, t2, cfg.period_method) {
+            Ok(pd) => pr.period_los = Some(pd),
+            Err(e) => {
+                pr.period_los = None;
+                pr.period_los_unavailable_because = Some(e.to_string());
+            }
+        }
+    }
+    gs.annual_fit = Some(annual);
+    Ok(())
 }
 
 /// Aggregate values on usable epochs, NaN elsewhere.
@@ -1359,6 +1487,97 @@ mod tests {
         assert!(r.vertical_velocity_mm_per_yr.is_none());
         let none = analyse_structure(&[], &[], &cfg);
         assert!(!none.status.sufficient && !none.status.reasons.is_empty());
+    }
+
+    /// Points as (LOS values, unit vector).
+    type TestPoints = Vec<(Vec<f32>, [f64; 3])>;
+
+    /// Five points whose LOS is u_U × a vertical series d(t), on 12-day dates from 1 January
+    /// (the time origin), so that t matches insar-methods §5.12 exactly.
+    fn seasonal_structure(d: &[f64]) -> (Vec<NaiveDate>, TestPoints) {
+        let origin = NaiveDate::from_ymd_opt(2020, 1, 1).unwrap();
+        let dates: Vec<NaiveDate> = (0..d.len())
+            .map(|i| origin + chrono::Duration::days(12 * i as i64))
+            .collect();
+        let u = unit_vector_from_angles(39.0, -12.0, LookSide::Right).unwrap();
+        let v: Vec<f32> = d.iter().map(|x| (u[2] * x) as f32).collect();
+        (dates, (0..5).map(|_| (v.clone(), u)).collect())
+    }
+
+    /// Series B (insar-methods §5.12 [C]): model comparison selects linear + annual, so the
+    /// headline velocity is that model's, −4.061 mm/yr (the linear-only −4.585 is 13 % off the
+    /// true −4); its SE is the model's AR(1)-adjusted SE.
+    #[test]
+    fn headline_velocity_follows_the_selected_annual_model() {
+        let (_, d) = fit::test_series::series_b();
+        let (dates, pts) = seasonal_structure(&d);
+        let cfg = SeriesConfig::new(dates[0], *dates.last().unwrap());
+        let r = analyse_structure(&[input("asc", Pass::Ascending, &dates, &pts)], &[], &cfg);
+        assert!(r.status.sufficient, "{:?}", r.status.reasons);
+        let fits = r.vertical.as_ref().unwrap().fits.as_ref().unwrap();
+        assert_eq!(
+            fits.model_comparison.as_ref().unwrap().selected,
+            "linear+annual"
+        );
+        assert_eq!(r.velocity_model, Some("linear+annual"));
+        let v = r.vertical_velocity_mm_per_yr.unwrap();
+        assert!((v + 4.061).abs() < 1e-3, "v {v}"); // §5.12: −4.061
+        assert!((fits.linear.velocity_mm_per_yr + 4.585).abs() < 1e-3); // §5.12: −4.585
+        let a = r.geometries[0].annual_fit.as_ref().unwrap();
+        let u_up = r.geometries[0].mean_unit_enu[2];
+        let se = r.se_vertical_velocity_mm_per_yr.unwrap();
+        assert!((se - a.se_velocity_adjusted_mm_per_yr.unwrap() / u_up).abs() < 1e-9);
+        assert!((a.se_velocity_mm_per_yr / u_up - 0.1515).abs() < 1e-3); // §5.12: SE 0.1515
+        assert!(r.assumptions.iter().any(|x| x.contains("linear + annual")));
+    }
+
+    /// Period displacement with the annual term selected: the fitted annual term is removed
+    /// before the local means, for the aggregate and for each point. Low-noise variant of Series
+    /// B (0.2 × the §5.12 noise): the truth over the effective period is −4 × Δt; the raw local
+    /// means keep the seasonal difference between the window's ends (about 1.2 mm here:
+    /// ŝ(first 3) ≈ 1.49, ŝ(last 3) ≈ 0.30 from 2.5 sin + 1.0 cos, hand-computed).
+    #[test]
+    fn period_displacement_without_the_seasonal_phase_difference() {
+        let t = fit::test_series::times(92);
+        let tp = 2.0 * std::f64::consts::PI;
+        let d: Vec<f64> = (0..92)
+            .map(|i| {
+                -4.0 * t[i]
+                    + 2.5 * (tp * t[i]).sin()
+                    + (tp * t[i]).cos()
+                    + 0.2 * fit::test_series::noise(i)
+            })
+            .collect();
+        let (dates, pts) = seasonal_structure(&d);
+        let cfg = SeriesConfig::new(dates[0], *dates.last().unwrap());
+        let r = analyse_structure(&[input("asc", Pass::Ascending, &dates, &pts)], &[], &cfg);
+        assert_eq!(r.velocity_model, Some("linear+annual"));
+        let g = &r.geometries[0];
+        let pd = g.period_los.as_ref().unwrap();
+        let u_up = g.mean_unit_enu[2];
+        let truth = -4.0 * (pd.effective_end_yr - pd.effective_start_yr);
+        let mv = r.mean_vertical_mm.unwrap();
+        assert!((mv - truth).abs() < 0.3, "{mv} vs {truth}");
+        let raw = (d[89] + d[90] + d[91] - d[0] - d[1] - d[2]) / 3.0;
+        assert!((raw - truth).abs() > 0.9, "raw {raw} vs {truth}");
+        // Each point: the same rule (identical points, so the aggregate's value).
+        for p in &g.points {
+            let pp = p.period_los.as_ref().unwrap();
+            assert!((pp.displacement_mm - pd.displacement_mm).abs() < 1e-4);
+        }
+        assert!((pd.displacement_mm / u_up - mv).abs() < 1e-9);
+    }
+
+    /// Series A (linear, §5.12): the straight line stays the velocity model.
+    #[test]
+    fn linear_selection_keeps_the_straight_line() {
+        let (_, d) = fit::test_series::series_a();
+        let (dates, pts) = seasonal_structure(&d);
+        let cfg = SeriesConfig::new(dates[0], *dates.last().unwrap());
+        let r = analyse_structure(&[input("asc", Pass::Ascending, &dates, &pts)], &[], &cfg);
+        assert_eq!(r.velocity_model, Some("linear"));
+        assert!(r.geometries[0].annual_fit.is_none());
+        assert!((r.vertical_velocity_mm_per_yr.unwrap() + 6.033).abs() < 1e-3); // §5.12
     }
 
     /// A synthetic structure with a real trend change is reported with a break date.

@@ -226,6 +226,24 @@ def _(f):
     f["points.csv"] = csv_text(points_rows(dfmt="%d/%m/%Y"))
 
 
+@case("csv-impossible-date-header", 2, ["points.csv", "line 1", "column 9 `2022-13-11`", "not a valid date"],
+      note="a header shaped like a date but not one (month 13): an error, not a silently ignored epoch")
+def _(f):
+    rows = points_rows()
+    rows[0][8] = "2022-13-11"
+    f["points.csv"] = csv_text(rows)
+
+
+@case("csv-heading-column-contradicts-pass", 2, ["points.csv", "line 6", "column `heading`", "192", "ascending"],
+      note="a per-point heading column gets the pass check of the dataset-level heading")
+def _(f):
+    rows = points_rows()
+    for i, r in enumerate(rows):
+        r.insert(4, "heading" if i == 0 else ("192.0" if i == 5 else "-12.0"))
+    f["points.csv"] = csv_text(rows)
+    f["portfolio.toml"] = replace_once(f["portfolio.toml"], 'heading_deg = -12.0\n', 'columns.heading = "heading"\n')
+
+
 @case("csv-duplicate-date-header", 2, ["points.csv", "line 1", "2022-01-05", "twice"])
 def _(f):
     rows = points_rows()
@@ -590,6 +608,16 @@ def _(f):
 @case("toml-incidence-missing", 2, ["portfolio.toml", "key datasets[0].incidence_deg", "missing"])
 def _(f):
     f["portfolio.toml"] = replace_once(f["portfolio.toml"], "incidence_deg = 38.0\n", "")
+
+
+@case("toml-min-span-years-zero", 2, ["portfolio.toml", "key assessment.min_span_years", "outside (0, 50]"])
+def _(f):
+    f["portfolio.toml"] = f["portfolio.toml"] + "min_span_years = 0.0\n"
+
+
+@case("toml-min-epochs-below-six", 2, ["portfolio.toml", "key assessment.min_epochs", "outside 6–65535"])
+def _(f):
+    f["portfolio.toml"] = f["portfolio.toml"] + "min_epochs = 4\n"
 
 
 @case("toml-heading-out-of-range", 2, ["portfolio.toml", "key datasets[0].heading_deg", "[-360°, 360°]"])

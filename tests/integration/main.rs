@@ -7,6 +7,7 @@ mod limits;
 mod metrics;
 mod output_safety;
 mod reports;
+mod review;
 mod series;
 mod sharding;
 mod verdict;
