@@ -62,6 +62,24 @@ PLINTH_DEFINITIONS = {
     32755: "+proj=utm +zone=55 +south +datum=WGS84 +units=m +no_defs",
 }
 
+# proj4rs expands a named datum (+datum=OSGB36, +datum=potsdam) with the proj4js table values;
+# PROJ 9 maps the name to the EPSG datum instead and picks a transformation from its database
+# ("OSGB36 to WGS 84 (6)", rotations rounded to 0.001"), about 3 mm away. To compare like with like,
+# pyproj is given the expanded parameters proj4rs uses; PROJ's own choice is compared separately
+# (authority_* values, tolerance = its stated accuracy).
+NAMED_DATUMS = {
+    "+datum=OSGB36": "+ellps=airy +towgs84=446.448,-125.157,542.060,0.1502,0.2470,0.8421,-20.4894",
+    "+datum=potsdam": "+ellps=bessel +towgs84=598.1,73.7,418.2,0.202,0.045,-2.455,6.7",
+}
+
+
+def pyproj_definition(code):
+    text = PLINTH_DEFINITIONS[code]
+    for name, params in NAMED_DATUMS.items():
+        text = text.replace(name, params)
+    return text
+
+
 # (source EPSG, target EPSG, points in the source CRS). Arbitrary coordinates, no real sites.
 POINT_CASES = [
     (4326, 32630, [(-3.2718, 53.4106), (-5.9931, 50.1207), (-0.0042, 57.8833)]),
@@ -179,8 +197,8 @@ def pyproj_values():
 
     def same_definition(src, dst):
         return Transformer.from_crs(
-            CRS.from_proj4(PLINTH_DEFINITIONS[src]),
-            CRS.from_proj4(PLINTH_DEFINITIONS[dst]),
+            CRS.from_proj4(pyproj_definition(src)),
+            CRS.from_proj4(pyproj_definition(dst)),
             always_xy=True,
         )
 
@@ -260,29 +278,37 @@ def pyproj_values():
         )
 
     frames = []
+    wgs = CRS.from_proj4(PLINTH_DEFINITIONS[4326])
     for code, lon, lat in FRAME_CASES:
-        proj = pyproj.Proj(CRS.from_proj4(PLINTH_DEFINITIONS[code]))
-        to_a = same_definition(4326, code)
+        crs = CRS.from_proj4(pyproj_definition(code))
+        to_a = Transformer.from_crs(wgs, crs, always_xy=True)
         x, y = to_a.transform(lon, lat)
-        # The factors are for the projection on its own ellipsoid; for a CRS on another datum the
-        # geographic coordinates are first shifted to that datum.
-        geo_native = Transformer.from_crs(
-            CRS.from_proj4(PLINTH_DEFINITIONS[code]),
-            CRS.from_proj4(PLINTH_DEFINITIONS[code]).geodetic_crs,
-            always_xy=True,
-        )
+        # PROJ's factors are for the projection on its own ellipsoid (true north of that datum);
+        # the geographic coordinates are first taken to that datum.
+        geo_native = Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True)
         nlon, nlat = geo_native.transform(x, y)
-        f = proj.get_factors(nlon, nlat)
+        fac = pyproj.Proj(crs).get_factors(nlon, nlat)
+        # Plinth's true north is the WGS84 meridian (LOS headings are WGS84 quantities). Its grid
+        # bearing and the north/east scales, from PROJ forward transforms over 1 m geodesic steps
+        # along the WGS84 meridian and parallel (Geod.fwd), relative to the origin's image.
+        ln, lt, _ = geod.fwd(lon, lat, 0.0, 1.0)
+        le, lte, _ = geod.fwd(lon, lat, 90.0, 1.0)
+        xn, yn = to_a.transform(ln, lt)
+        xe, ye = to_a.transform(le, lte)
         frames.append(
             {
                 "crs": f"EPSG:{code}",
+                "datum_shift": code not in (4326, 3035, 2154, 25832, 32630, 32631, 32632, 32633, 32755),
                 "lon": lon,
                 "lat": lat,
                 "x": x,
                 "y": y,
-                "meridian_convergence_deg": f.meridian_convergence,
-                "meridional_scale": f.meridional_scale,
-                "parallel_scale": f.parallel_scale,
+                "meridian_convergence_deg": fac.meridian_convergence,
+                "meridional_scale": fac.meridional_scale,
+                "parallel_scale": fac.parallel_scale,
+                "wgs84_north_grid_bearing_deg": math.degrees(math.atan2(xn - x, yn - y)),
+                "wgs84_north_scale": math.hypot(xn - x, yn - y),
+                "wgs84_east_scale": math.hypot(xe - x, ye - y),
             }
         )
 
