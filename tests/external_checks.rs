@@ -581,8 +581,8 @@ mod mintpy_checks {
             let want = [w[0], w[1], w[2]];
             for given in [want, want.map(|c| -c)] {
                 let got = los_from_enu(given, side(g), pass(g)).unwrap();
-                for k in 0..3 {
-                    assert!((got.unit_enu[k] - want[k]).abs() < 1e-12, "{}", g["label"]);
+                for (a, b) in got.unit_enu.iter().zip(want) {
+                    assert!((a - b).abs() < 1e-12, "{}", g["label"]);
                 }
             }
         }
