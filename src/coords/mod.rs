@@ -248,12 +248,16 @@ impl LocalFrame {
         let d = 10.0;
         let dlat = (d / m).to_degrees();
         let dlon = (d / (n * phi.cos())).to_degrees();
+        // Differences are taken from the forward image of (lon, lat), not from (x, y): a datum
+        // shift's inverse is not an exact inverse (about 1 mm for EPSG:27700), and a 1 mm round-trip
+        // error over the 10 m step would turn the frame by ~0.005° and scale it by ~1e-4.
+        let (x0, y0) = from_geo.apply(lon, lat)?;
         let (xn, yn) = from_geo.apply(lon, lat + dlat)?;
         let (xe, ye) = from_geo.apply(lon + dlon, lat)?;
-        // True north in grid coordinates points along (xn - x, yn - y).
-        let gamma = (xn - x).atan2(yn - y); // angle of true north clockwise from grid north
-        let k = (((xn - x).powi(2) + (yn - y).powi(2)).sqrt()
-            + ((xe - x).powi(2) + (ye - y).powi(2)).sqrt())
+        // True north in grid coordinates points along (xn - x0, yn - y0).
+        let gamma = (xn - x0).atan2(yn - y0); // angle of true north clockwise from grid north
+        let k = (((xn - x0).powi(2) + (yn - y0).powi(2)).sqrt()
+            + ((xe - x0).powi(2) + (ye - y0).powi(2)).sqrt())
             / (2.0 * d);
         Ok(LocalFrame {
             origin_x: x,
@@ -384,6 +388,28 @@ mod tests {
         assert!(e.abs() < 0.01 && (n - 100.0).abs() < 0.01, "{e} {n}");
         let (bx, by) = f.to_analysis(e, n);
         assert!((bx - xn).abs() < 1e-6 && (by - yn).abs() < 1e-6);
+    }
+
+    /// Regression: the frame of a national grid with a datum shift must not pick up the
+    /// round-trip error of the shift. Reference: the grid bearing of a 1 m step due true (WGS84)
+    /// north, from forward transforms only; before the fix the frame was 0.0049° off at this point
+    /// (found by tests/external_checks.rs). Tolerance 2e-4°: the 10 m step's truncation error.
+    #[test]
+    fn local_frame_is_immune_to_datum_round_trip_error() {
+        let bng = Crs::from_epsg(27700).unwrap();
+        let wgs = Crs::wgs84();
+        let from_geo = Transformer::new(&wgs, &bng);
+        let to_geo = Transformer::new(&bng, &wgs);
+        let (lon, lat) = (-1.7342, 52.6118);
+        let (x, y) = from_geo.apply(lon, lat).unwrap();
+        let (xn, yn) = from_geo.apply(lon, lat + 1.0 / 111_250.0).unwrap();
+        let want = (xn - x).atan2(yn - y).to_degrees();
+        let f = LocalFrame::at(x, y, &to_geo, &from_geo).unwrap();
+        assert!(
+            (f.north_bearing_deg - want).abs() < 2e-4,
+            "{} vs {want}",
+            f.north_bearing_deg
+        );
     }
 
     #[test]
