@@ -498,7 +498,7 @@ pub struct RunContext<'a> {
 }
 
 /// Period displacement of one point over the window: mean of the 3 valid epochs nearest the window
-/// end minus the mean of the 3 valid epochs nearest the window start (insar-methods §5.11 [D]:
+/// end minus the mean of the 3 valid epochs nearest the window start (insar-methods.md §5.11 [Rec]:
 /// "difference of local means ... never two single noisy epochs"), mm; and its 1-σ from the
 /// residual scatter about a straight-line fit, σ_period = s·sqrt(2/3).
 pub fn period_displacement(t_yr: &[f64], v_mm: &[f64]) -> Option<(f64, f64)> {
@@ -521,7 +521,7 @@ pub fn period_displacement(t_yr: &[f64], v_mm: &[f64]) -> Option<(f64, f64)> {
     Some((end - start, s * (2.0f64 / 3.0).sqrt()))
 }
 
-/// Screen one structure's member points (insar-methods §7): coherence below
+/// Screen one structure's member points (insar-methods.md §7): coherence below
 /// `min_coherence`, fewer than `min_epochs` valid epochs in the window, and — per geometry, among
 /// the structure's own points — robust velocity outliers (median absolute deviation, z >
 /// `outlier_z`, on the residuals of a least-squares velocity plane when there are 6 or more
@@ -582,9 +582,9 @@ pub fn screen_members(
             vertical_velocity_mm_per_yr: vv,
         });
     }
-    // MAD outliers on LOS velocity per geometry (insar-methods §7.3): robust z > outlier_z; no
+    // MAD outliers on LOS velocity per geometry (insar-methods.md §7.3): robust z > outlier_z; no
     // rejection when MAD = 0 or fewer than 5 points. With 6 or more points the screen runs on the
-    // residuals of a least-squares plane through the velocities (the §7.3 second pass [D]): a
+    // residuals of a least-squares plane through the velocities (the insar-methods.md §7.3 second pass [Rec]): a
     // genuinely tilting or bending building spreads raw velocities, and its extreme but correct
     // points must not be rejected as outliers.
     for list in kept_by_ds.values() {
@@ -644,7 +644,7 @@ pub fn assess_structure(
         }
     }
     // Time series per geometry of the points that passed screening: aggregate, decomposition,
-    // fits, jumps (insar-methods §4–5). Points with an unwrapping jump are rejected here.
+    // fits, jumps (insar-methods.md §4–5). Points with an unwrapping jump are rejected here.
     let mut ser: Option<crate::series::StructureSeries> = None;
     let mut point_period: Vec<Option<(f64, f64)>> = vec![None; verdicts.len()];
     {
@@ -785,7 +785,7 @@ pub fn assess_structure(
                 "per-point vertical displacement corrected for the structure's mean east–west displacement (both geometries); north–south motion neglected".into(),
             );
         }
-        // Per-point period settlement in the structure's local frame (insar-methods §7.4).
+        // Per-point period settlement in the structure's local frame (insar-methods.md §7.4).
         let mut mpts = Vec::new();
         let mut coh_sum = 0.0;
         let mut coh_n = 0usize;

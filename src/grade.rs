@@ -15,7 +15,7 @@
 //! - `indicative`: the minimum for an indication of movement; metrics are screening values;
 //! - `insufficient`: not assessable from InSAR.
 //!
-//! Each grade requires all its conditions (insar-methods §7.10 [D] as a basis); the result is
+//! Each grade requires all its conditions (insar-methods.md §7.10 [Rec] as a basis); the result is
 //! the best grade whose conditions all hold. The reasons list every condition that failed for
 //! each better grade, so a report can say what would have been needed.
 //!
@@ -26,7 +26,7 @@
 //!   understated σ), and the σ-based Monte Carlo then understates the uncertainty.
 //!   Limits: ≤ 1.5 robust, ≤ 2.5 adequate.
 //! - **Both geometries** are required for `robust`: with one geometry every point is a vertical
-//!   projection that assumes no horizontal motion (insar-methods §3.1, damage-relations §9.4),
+//!   projection that assumes no horizontal motion (insar-methods.md §3.1, damage-relations.md §9.4),
 //!   and no consistency check between datasets is possible.
 //! - **SE against the boundary** follows §7.10 literally: SE ≤ 0.25 (robust) / 0.5 (adequate)
 //!   × the value of the nearest category boundary. It measures precision at the scale of the
@@ -183,7 +183,7 @@ pub struct GradeThresholds {
 }
 
 impl Default for GradeThresholds {
-    /// insar-methods.md §7.10 [D] ("high/medium/low" there → robust/adequate/indicative here),
+    /// insar-methods.md §7.10 [Rec] ("high/medium/low" there → robust/adequate/indicative here),
     /// plus the scatter-ratio and geometry conditions explained in the module docs (ours).
     fn default() -> Self {
         Self {
@@ -235,7 +235,7 @@ impl Default for GradeThresholds {
 /// Counts, fractions of L, years, mm; the decisive metric in its own (dimensionless) unit.
 ///
 /// # References
-/// insar-methods.md §7.10 [D] (conditions and default thresholds).
+/// insar-methods.md §7.10 [Rec] (conditions and default thresholds).
 ///
 /// # Examples
 /// ```
@@ -479,7 +479,7 @@ mod tests {
     fn from_metrics_collects_counts_and_scatter() {
         use crate::metrics::{MetricPoint, MetricsConfig, structure_metrics};
         use geo::{MultiPolygon, polygon};
-        // BLD-1 (insar-methods §7.11): plane RMS 0.7523 mm; the profile fit is better or equal
+        // BLD-1 (insar-methods.md §7.11): plane RMS 0.7523 mm; the profile fit is better or equal
         // only if its RMS is smaller — the helper takes the smaller of the two.
         let pts: Vec<MetricPoint> = [
             (-14.12, -3.54, 5.55),

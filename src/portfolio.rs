@@ -223,15 +223,15 @@ pub struct AssessmentSettings {
     pub buffer_m: f64,
     /// Outer radius of the surroundings ring measured from the footprint, m (default 50.0).
     pub surroundings_m: f64,
-    /// Minimum temporal coherence of a kept point (default 0.7, insar-methods §6.1 [D]).
+    /// Minimum temporal coherence of a kept point (default 0.7, insar-methods.md §6.1 [Rec]).
     pub min_coherence: f64,
     /// Minimum kept points on a structure; fewer → `insufficient_data` (default 5).
     pub min_points: usize,
-    /// Minimum acquisitions inside the window (default 20, insar-methods §6.4).
+    /// Minimum acquisitions inside the window (default 20, insar-methods.md §6.4).
     pub min_epochs: usize,
-    /// Minimum time span of the window, years (default 1.0, insar-methods §6.4 [D]).
+    /// Minimum time span of the window, years (default 1.0, insar-methods.md §6.4 [Rec]).
     pub min_span_years: f64,
-    /// Robust z-score above which a point velocity is an outlier (default 3.0, insar-methods §7.3).
+    /// Robust z-score above which a point velocity is an outlier (default 3.0, insar-methods.md §7.3).
     pub outlier_z: f64,
     /// Height to eaves used when a footprint has no `height_m`, m (default 6.0: two-storey domestic).
     pub default_height_m: f64,
@@ -672,7 +672,7 @@ impl Portfolio {
             return bad(
                 "buffer_m",
                 format!("buffer {} m is outside 0–100 m", assessment.buffer_m),
-                "5 m suits high-resolution data, 10 m medium-resolution C-band (insar-methods §7.2)",
+                "5 m suits high-resolution data, 10 m medium-resolution C-band (insar-methods.md §7.2)",
             );
         }
         if !(assessment.surroundings_m >= assessment.buffer_m
@@ -705,7 +705,7 @@ impl Portfolio {
             return bad(
                 "min_epochs",
                 format!("{} is below 3", assessment.min_epochs),
-                "about 20 acquisitions is the usual minimum (insar-methods §6.4)",
+                "about 20 acquisitions is the usual minimum (insar-methods.md §6.4)",
             );
         }
         if !(assessment.default_height_m > 0.0 && assessment.default_height_m < 500.0) {

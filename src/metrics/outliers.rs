@@ -1,6 +1,6 @@
 //! Outlier screening with the median absolute deviation (MAD).
 //!
-//! Owns: the robust z-score rule of insar-methods §7.3 applied to a list of values. In the
+//! Owns: the robust z-score rule of insar-methods.md §7.3 applied to a list of values. In the
 //! metrics stage it is the *second pass* on plane-fit residuals (§7.3: a tilting or bending
 //! structure spreads raw values, so residuals are screened instead when n ≥ 6). It does not
 //! decide which values to screen; `mod.rs` does.
@@ -38,7 +38,7 @@ pub struct MadScreen {
 /// Any; z is dimensionless.
 ///
 /// # References
-/// insar-methods.md §7.3 [D] (threshold 3); MAD consistency constant: common practice (Hampel
+/// insar-methods.md §7.3 [Rec] (threshold 3); MAD consistency constant: common practice (Hampel
 /// 1974, from memory). Check MAD-1: x = (−3.1, −2.8, −3.4, −2.9, −3.0, −7.9, −3.3, −2.6, −3.2,
 /// 1.5) → med −3.05, MAD 0.25, σ̂ 0.3707, z(−7.9) = −13.09, z(1.5) = 12.28, both rejected.
 ///

@@ -9,7 +9,7 @@
 //! - **Ends** are the points in the first and last third of the footprint extent along the axis.
 //! - **Per end and per geometry** the LOS values and unit vectors are averaged; the means of the
 //!   K ≥ 2 geometries are decomposed by weighted least squares into (d_E, d_U), north
-//!   neglected (insar-methods §4.2, §4.3). The σ of a point's LOS is taken as
+//!   neglected (insar-methods.md §4.2, §4.3). The σ of a point's LOS is taken as
 //!   σ_settlement·|u_U| (the inverse of the vertical projection that produced σ_settlement),
 //!   floored at 0.01 mm; the σ of a mean is sqrt(Σσ²)/n.
 //! - **Gauge length**: the strain is the change of distance between the two end groups divided
@@ -21,7 +21,7 @@
 //! - **Refusal**: |sin az| < 0.5 (axis closer to north–south than 30°: "east–west only;
 //!   north–south not observable"), an end with fewer than two geometries, or an end whose
 //!   geometry matrix [u_E, u_U] has a condition number above the limit (geometries too alike to
-//!   separate east from up). A refusal means *unknown*, never zero strain (damage-relations §9.4).
+//!   separate east from up). A refusal means *unknown*, never zero strain (damage-relations.md §9.4).
 //! - A constant reference offset of one dataset biases d_E at both ends almost equally and
 //!   cancels in the difference; north motion leaks into d_U mostly, not d_E (§4.3).
 
@@ -148,7 +148,7 @@ pub enum StrainError {
 /// ε_h dimensionless, + extension.
 ///
 /// # References
-/// insar-methods.md §4.2 (WLS decomposition), §4.3 (north neglected), §7.8 [C, D].
+/// insar-methods.md §4.2 (WLS decomposition), §4.3 (north neglected), §7.8 [C, Rec].
 pub fn axis_strain(
     points: &[MetricPoint],
     axis: &Axis,
@@ -273,7 +273,7 @@ mod tests {
     use super::*;
     use geo::{MultiPolygon, polygon};
 
-    /// Right-looking LOS unit vector from incidence θ and heading α (insar-methods §2.1).
+    /// Right-looking LOS unit vector from incidence θ and heading α (insar-methods.md §2.1).
     fn los_unit(theta_deg: f64, heading_deg: f64) -> [f64; 3] {
         let (t, a) = (theta_deg.to_radians(), heading_deg.to_radians());
         [-t.sin() * a.cos(), t.sin() * a.sin(), t.cos()]

@@ -16,7 +16,7 @@ use super::fit::{FitError, check_inputs, fit_linear, lag1_autocorrelation, least
 /// Settings of the breakpoint test.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BreakpointConfig {
-    /// Minimum epochs on each side of a candidate hinge, m (insar-methods.md §5.8: 5 [D]).
+    /// Minimum epochs on each side of a candidate hinge, m (insar-methods.md §5.8: 5 [Rec]).
     pub min_points_each_side: usize,
     /// Bootstrap draws B. Default 499: the notes recommend 999; 499 halves the cost while keeping
     /// the Monte Carlo standard error of a p-value near 0.05 at about 0.01, which is adequate for
@@ -177,7 +177,7 @@ fn check_sorted(t: &[f64]) -> Result<(), FitError> {
 /// Years, mm, mm/yr; F dimensionless.
 ///
 /// # References
-/// insar-methods.md §5.8 [D]; check values Series D (§5.12): k = 47, t_b = 1.5441 yr, slopes
+/// insar-methods.md §5.8 [Rec]; check values Series D (§5.12): k = 47, t_b = 1.5441 yr, slopes
 /// −2.305 / −10.16, F_sup = 182.0. Related: Muggeo (2003) segmented regression [S: cited].
 ///
 /// F_sup does not follow F(1, n − 3) because the hinge is searched; use [`breakpoint_test`] for
@@ -265,7 +265,7 @@ pub fn derive_seed(base: u64, t_yr: &[f64], d_mm: &[f64]) -> u64 {
 /// Years, mm, mm/yr.
 ///
 /// # References
-/// insar-methods.md §5.8 recommended test [D]; Davies (1987) on nuisance parameters present only
+/// insar-methods.md §5.8 recommended test [Rec]; Davies (1987) on nuisance parameters present only
 /// under the alternative [S: cited]. White-noise 95 % critical values ≈ 7.1 (n = 60-92) [C].
 pub fn breakpoint_test(
     t_yr: &[f64],

@@ -11,7 +11,7 @@ use serde::Serialize;
 
 use super::project::vertical_from_los;
 
-/// Largest accepted condition number of the (unweighted) geometry matrix (insar-methods.md §4.2 [D]).
+/// Largest accepted condition number of the (unweighted) geometry matrix (insar-methods.md §4.2 [Rec]).
 pub const MAX_CONDITION_NUMBER: f64 = 3.0;
 
 /// One geometry's contribution: an LOS value (displacement or velocity) with its σ.
@@ -163,7 +163,7 @@ fn wls_svd(
 /// east, up positive up.
 ///
 /// # References
-/// insar-methods.md §4.1-4.4 [C, D]; Wright, Parsons & Lu (2004) [S: cited]; north-neglect bias
+/// insar-methods.md §4.1-4.4 [C, Rec]; Wright, Parsons & Lu (2004) [S: cited]; north-neglect bias
 /// §4.3 (Brouwer & Hanssen 2023 [S: abstract]).
 ///
 /// # Examples
@@ -308,7 +308,7 @@ pub struct AscDescConsistency {
 /// LOS values and σ in mm (or mm/yr); σ are LOS standard deviations, projected here.
 ///
 /// # References
-/// insar-methods.md §3.1 "Use in the tool" [D]; pure-east limiting case of §3.1 (5 mm east →
+/// insar-methods.md §3.1 "Use in the tool" [Rec]; pure-east limiting case of §3.1 (5 mm east →
 /// −3.960 asc / +3.685 desc) [C].
 ///
 /// # Examples
@@ -447,7 +447,7 @@ mod tests {
         assert!((s.condition_number - 57.49).abs() < 1e-2);
     }
 
-    /// §4.2 [C, D]: same-side pair refused; cond 9.56 for θ = 33°/45° both α = −12°.
+    /// insar-methods.md §4.2 [C, Rec]: same-side pair refused; cond 9.56 for θ = 33°/45° both α = −12°.
     #[test]
     fn weak_geometry_refused() {
         let u33 = unit_vector_from_angles(33.0, -12.0, LookSide::Right).unwrap();

@@ -22,7 +22,7 @@ pub const DAYS_PER_YEAR: f64 = 365.25;
 /// Years of 365.25 days.
 ///
 /// # References
-/// insar-methods.md §1.3, §5.1 [D].
+/// insar-methods.md §1.3, §5.1 [Rec].
 ///
 /// # Examples
 /// ```
@@ -247,7 +247,7 @@ pub fn effective_sample_size(n: usize, r1: f64) -> f64 {
 /// `n_eff ≤ 2`.
 ///
 /// # References
-/// insar-methods.md §5.3 [D].
+/// insar-methods.md §5.3 [Rec].
 pub fn adjusted_se(se: f64, n: usize, n_eff: f64) -> Option<f64> {
     if n_eff <= 2.0 || n < 3 {
         return None;
@@ -282,7 +282,7 @@ pub struct LinearFit {
     pub t_statistic_adjusted: Option<f64>,
     /// Two-sided p of `t_statistic_adjusted` with n_eff − 2 degrees of freedom.
     pub p_value_adjusted: Option<f64>,
-    /// `|v| > 2·SE_adj` (insar-methods.md §5.3 default rule [D]); false when not estimable.
+    /// `|v| > 2·SE_adj` (insar-methods.md §5.3 default rule [Rec]); false when not estimable.
     pub distinguishable_from_zero: bool,
     /// Residuals (mm), in input order.
     #[serde(skip)]
@@ -295,7 +295,7 @@ pub struct LinearFit {
 /// `t_yr` decimal years, `d_mm` mm; velocity mm/yr.
 ///
 /// # References
-/// insar-methods.md §5.2 and §5.3 [C, D]; check values Series A (§5.12).
+/// insar-methods.md §5.2 and §5.3 [C, Rec]; check values Series A (§5.12).
 ///
 /// # Examples
 /// ```
@@ -401,7 +401,7 @@ pub struct AnnualFit {
 /// `t_yr` decimal years from a **calendar** origin (the phase is relative to it); mm; mm/yr.
 ///
 /// # References
-/// insar-methods.md §5.4 [C, D]; check values Series B (§5.12).
+/// insar-methods.md §5.4 [C, Rec]; check values Series B (§5.12).
 ///
 /// The "fit only when span ≥ 2 yr" rule is applied by the caller ([`AnnualPolicy`]); this function
 /// fits whatever it is given. Needs at least 5 epochs. With A = 0 the SE is taken as
@@ -459,7 +459,7 @@ pub fn fit_linear_annual(t_yr: &[f64], d_mm: &[f64]) -> Result<AnnualFit, FitErr
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum AnnualPolicy {
-    /// Fit only when the span is at least [`ANNUAL_MIN_SPAN_YR`] (insar-methods.md §5.4, §6.4 [D]).
+    /// Fit only when the span is at least [`ANNUAL_MIN_SPAN_YR`] (insar-methods.md §5.4, §6.4 [Rec]).
     #[default]
     Auto,
     /// Always fit (span permitting the parameter count).
@@ -572,7 +572,7 @@ pub fn nested_f(
 /// model's residuals).
 ///
 /// # References
-/// insar-methods.md §5.6 and §5.8 [D].
+/// insar-methods.md §5.6 and §5.8 [Rec].
 pub fn ar1_adjusted_f(f: f64, r1: f64) -> f64 {
     let r = r1.clamp(0.0, 0.999_999);
     f / ((1.0 + r) / (1.0 - r))
@@ -636,7 +636,7 @@ pub struct ModelComparison {
 /// model is significant at 5 %.
 ///
 /// # References
-/// insar-methods.md §5.6 [D]; Series B check: linear 149.5/154.5, linear+annual 41.31/51.39,
+/// insar-methods.md §5.6 [Rec]; Series B check: linear 149.5/154.5, linear+annual 41.31/51.39,
 /// quadratic+annual 43.16/55.77 → linear+annual.
 ///
 /// Choice: every richer model is tested against the linear one (not step by step), which is the

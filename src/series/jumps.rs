@@ -80,7 +80,7 @@ pub struct JumpScan {
 /// mm LOS (positive towards the satellite); `wavelength_mm` in mm.
 ///
 /// # References
-/// insar-methods.md §5.10 [D] (heuristic); Series E (§5.12 [C]): one jump between epochs 39 and
+/// insar-methods.md §5.10 [Rec] (heuristic); Series E (§5.12 [C]): one jump between epochs 39 and
 /// 40, Δd = −28.52, k = −1, misfit 0.7825, σ_Δ = 0.3843.
 ///
 /// # Examples
@@ -278,7 +278,7 @@ mod persistence_tests {
     #[test]
     fn single_epoch_spike_is_not_a_jump() {
         // A +15 mm spike at one epoch that returns to the trend is noise, not a λ/2 step
-        // (persistence rule, insar-methods §5.10 step 3 / §5.8 step model).
+        // (persistence rule, insar-methods.md §5.10 step 3 / §5.8 step model).
         let lambda = wavelength_mm(C_BAND_FREQUENCY_HZ);
         let mut d: Vec<f64> = (0..30).map(|i| -0.1 * i as f64).collect();
         d[15] += 15.0;

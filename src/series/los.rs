@@ -106,7 +106,7 @@ pub struct LosGeometry {
 /// Degrees clockwise from true north, in and out.
 ///
 /// # References
-/// insar-methods.md §1.3 (accept (−180, 180] or [0, 360) and normalise) [D].
+/// insar-methods.md §1.3 (accept (−180, 180] or [0, 360) and normalise) [Rec].
 ///
 /// # Examples
 /// ```
@@ -181,7 +181,7 @@ pub fn unit_vector_from_angles(
 /// Degrees in; unit vector out (ENU, ground→satellite).
 ///
 /// # References
-/// insar-methods.md §2.1 (formula) and §2.4 (validation rules 3 and 4) [D].
+/// insar-methods.md §2.1 (formula) and §2.4 (validation rules 3 and 4) [Rec].
 ///
 /// Rule 3 of §2.4 is stated for right-looking sensors (ascending ⇒ `u_E < 0`, descending ⇒
 /// `u_E > 0`). For a declared left-looking sensor the expected signs are reversed (an ascending
@@ -225,7 +225,7 @@ pub fn los_from_angles(
 /// Dimensionless ENU components.
 ///
 /// # References
-/// insar-methods.md §2.3 (last rows) and §2.4 [D]; check value LOS-4 (Appendix A).
+/// insar-methods.md §2.3 (last rows) and §2.4 [Rec]; check value LOS-4 (Appendix A).
 ///
 /// # Examples
 /// ```

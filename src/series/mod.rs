@@ -76,9 +76,9 @@ pub struct SeriesConfig {
     pub window_start: NaiveDate,
     /// Last day of the assessment window (inclusive).
     pub window_end: NaiveDate,
-    /// Minimum usable epochs in the window (insar-methods.md §6.4: 20 [M, P, D]).
+    /// Minimum usable epochs in the window (insar-methods.md §6.4: 20 [M, P, Rec]).
     pub min_epochs: usize,
-    /// Minimum span of usable epochs (years; §6.4: 1 [D]).
+    /// Minimum span of usable epochs (years; insar-methods.md §6.4: 1 [Rec]).
     pub min_span_yr: f64,
     /// Epochs of the structure aggregate with fewer points are marked and not fitted (default 3).
     pub min_points_per_epoch: usize,

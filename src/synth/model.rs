@@ -211,9 +211,9 @@ impl Trough {
     /// Fraction of the final transverse trough developed at `date` for a chainage:
     /// g = 1 − exp(−τ/τ_c) for τ > 0 days after the face passes, else 0.
     ///
-    /// Choice [D]: the longitudinal growth is modelled as a first-order approach to the final
+    /// Choice [Rec]: the longitudinal growth is modelled as a first-order approach to the final
     /// transverse trough after the face passes, a simple stand-in for the face-loss and
-    /// consolidation phases; it keeps the 12-day LOS change far below λ/4 (insar-methods §2.7).
+    /// consolidation phases; it keeps the 12-day LOS change far below λ/4 (insar-methods.md §2.7).
     pub fn development(&self, chainage_m: f64, date: NaiveDate) -> f64 {
         // A face that does not advance (speed ≤ 0) is taken to stand at chainage 0 only.
         let delay_days = if self.face_speed_m_per_day > 0.0 {
@@ -313,7 +313,7 @@ impl Geometry {
 pub struct NoiseModel {
     /// When false, no random noise at all (values are exact projections of the planted motion).
     pub enabled: bool,
-    /// Coherence range of good points (σ per epoch follows from coherence, insar-methods §6.1).
+    /// Coherence range of good points (σ per epoch follows from coherence, insar-methods.md §6.1).
     pub good_coherence: (f64, f64),
     /// Coherence range of low-coherence points.
     pub low_coherence: (f64, f64),
