@@ -193,7 +193,7 @@ impl PointStats {
 
     /// [`Self::of`] on stored 16-bit codes: the same statistics with every sum in exact integer
     /// arithmetic (codes, and days from the window start), scaled to mm and years once at the end.
-    /// The ordinary-least-squares slope (insar-methods.md §5.2, [P]) is Sxy/Sxx with
+    /// The ordinary-least-squares slope (insar-methods.md §5.2, \[P\]) is Sxy/Sxx with
     /// Sxx = nΣt² − (Σt)², Sxy = nΣtv − ΣtΣv, Syy = nΣv² − (Σv)² (t in days, v in codes; all exact),
     /// so velocity = Sxy/Sxx · 365.25 / per_mm mm/yr (+ towards the satellite, the store's LOS sign)
     /// and the residual scatter s² = (Syy − Sxy²/Sxx) / (n(n − 2)) codes²; tested against the general
@@ -410,7 +410,7 @@ pub fn window_indices(epochs: &[NaiveDate], w: &Window) -> Vec<usize> {
 /// OLS slope of values (mm) against time (years) — per-point screening velocity.
 ///
 /// # References
-/// insar-methods.md §5.2 (ordinary least squares; [P]).
+/// insar-methods.md §5.2 (ordinary least squares; \[P\]).
 pub fn ols_velocity_mm_per_yr(t_yr: &[f64], v_mm: &[f64]) -> Option<f64> {
     let n = t_yr.len();
     if n < 3 {
@@ -498,7 +498,7 @@ pub struct RunContext<'a> {
 }
 
 /// Period displacement of one point over the window: mean of the 3 valid epochs nearest the window
-/// end minus the mean of the 3 valid epochs nearest the window start (insar-methods.md §5.11 [Rec]:
+/// end minus the mean of the 3 valid epochs nearest the window start (insar-methods.md §5.11 \[Rec\]:
 /// "difference of local means ... never two single noisy epochs"), mm; and its 1-σ from the
 /// residual scatter about a straight-line fit, σ_period = s·sqrt(2/3).
 pub fn period_displacement(t_yr: &[f64], v_mm: &[f64]) -> Option<(f64, f64)> {

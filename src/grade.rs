@@ -15,7 +15,7 @@
 //! - `indicative`: the minimum for an indication of movement; metrics are screening values;
 //! - `insufficient`: not assessable from InSAR.
 //!
-//! Each grade requires all its conditions (insar-methods.md §7.10 [Rec] as a basis); the result is
+//! Each grade requires all its conditions (insar-methods.md §7.10 \[Rec\] as a basis); the result is
 //! the best grade whose conditions all hold. The reasons list every condition that failed for
 //! each better grade, so a report can say what would have been needed.
 //!
@@ -183,7 +183,7 @@ pub struct GradeThresholds {
 }
 
 impl Default for GradeThresholds {
-    /// insar-methods.md §7.10 [Rec] ("high/medium/low" there → robust/adequate/indicative here),
+    /// insar-methods.md §7.10 \[Rec\] ("high/medium/low" there → robust/adequate/indicative here),
     /// plus the scatter-ratio and geometry conditions explained in the module docs (ours).
     fn default() -> Self {
         Self {
@@ -235,7 +235,7 @@ impl Default for GradeThresholds {
 /// Counts, fractions of L, years, mm; the decisive metric in its own (dimensionless) unit.
 ///
 /// # References
-/// insar-methods.md §7.10 [Rec] (conditions and default thresholds).
+/// insar-methods.md §7.10 \[Rec\] (conditions and default thresholds).
 ///
 /// # Examples
 /// ```

@@ -16,7 +16,7 @@ use crate::error::InputError;
 /// C-band radar wavelength at 5.405 GHz, mm: λ = c/f = 299 792 458 m/s / 5.405e9 Hz.
 ///
 /// # References
-/// insar-methods.md §2.7 (computed value [C]); the 5.405 GHz centre frequency is a typical value from memory.
+/// insar-methods.md §2.7 (computed value \[C\]); the 5.405 GHz centre frequency is a typical value from memory.
 pub const C_BAND_WAVELENGTH_MM: f64 = 299_792_458.0 / 5.405e9 * 1000.0;
 
 /// The raw file as written by the user. Unknown keys are errors.
@@ -223,13 +223,13 @@ pub struct AssessmentSettings {
     pub buffer_m: f64,
     /// Outer radius of the surroundings ring measured from the footprint, m (default 50.0).
     pub surroundings_m: f64,
-    /// Minimum temporal coherence of a kept point (default 0.7, insar-methods.md §6.1 [Rec]).
+    /// Minimum temporal coherence of a kept point (default 0.7, insar-methods.md §6.1 \[Rec\]).
     pub min_coherence: f64,
     /// Minimum kept points on a structure; fewer → `insufficient_data` (default 5).
     pub min_points: usize,
     /// Minimum acquisitions inside the window (default 20, insar-methods.md §6.4).
     pub min_epochs: usize,
-    /// Minimum time span of the window, years (default 1.0, insar-methods.md §6.4 [Rec]).
+    /// Minimum time span of the window, years (default 1.0, insar-methods.md §6.4 \[Rec\]).
     pub min_span_years: f64,
     /// Robust z-score above which a point velocity is an outlier (default 3.0, insar-methods.md §7.3).
     pub outlier_z: f64,

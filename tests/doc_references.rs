@@ -165,11 +165,17 @@ fn doc_tokens(line: &str) -> Vec<DocToken> {
             .last()
             .map_or(dot, |(i, _)| i);
         let name = &line[start..end];
-        let stem = name.trim_end_matches(".md").rsplit('/').next().unwrap_or("");
+        let stem = name
+            .trim_end_matches(".md")
+            .rsplit('/')
+            .next()
+            .unwrap_or("");
         if stem.is_empty() || !stem.starts_with(|c: char| c.is_ascii_alphanumeric() || c == '_') {
             continue; // `.md`, `*.md`, `docs/*.md`
         }
-        let word_start = line[..start].rfind(char::is_whitespace).map_or(0, |i| i + 1);
+        let word_start = line[..start]
+            .rfind(char::is_whitespace)
+            .map_or(0, |i| i + 1);
         if line[word_start..end].contains("://") {
             continue; // part of a URL
         }
@@ -270,9 +276,14 @@ fn short_forms(root: &Path, citing: &Path, line: &str) -> Vec<String> {
             }
             let name = format!("{word}.md");
             if resolve(root, citing, &name).is_some() {
+                let form = if marker == " App. " {
+                    " Appendix"
+                } else {
+                    marker.trim_end()
+                };
                 out.push(format!(
-                    "`{word}{marker}…` cites a document without `.md`: write `{name}{}`",
-                    if marker == " App. " { " Appendix" } else { marker.trim_end() }
+                    "`{word}{}…` cites a document without `.md`: write `{name}{form} …`",
+                    marker.trim_end()
                 ));
             }
         }
@@ -346,11 +357,7 @@ impl Checker {
                         } else {
                             format!("§{s}")
                         };
-                        self.error(
-                            rel,
-                            n,
-                            format!("{} has no heading for {shown}", t.name),
-                        );
+                        self.error(rel, n, format!("{} has no heading for {shown}", t.name));
                     }
                 }
             }
@@ -401,7 +408,11 @@ impl Checker {
             && file.extension().is_some_and(|e| e == "md")
             && !self.headings_of(&file).anchors.contains(a)
         {
-            self.error(rel, n, format!("link `{target}`: no heading with that anchor"));
+            self.error(
+                rel,
+                n,
+                format!("link `{target}`: no heading with that anchor"),
+            );
         }
     }
 }
@@ -442,10 +453,34 @@ fn the_checker_catches_what_it_should() {
     let here = Path::new("src/lib.rs");
     let doc = Path::new("docs/methods.md");
     // Resolving citations pass.
-    c.check_line(here, 1, "damage-relations.md §8.3 C2 and §8.9-A; §2.3–2.5", false, false);
-    c.check_line(here, 2, "insar-methods.md Appendix A LOS-1, §4.1-4.4 and §5–§6", false, false);
-    c.check_line(here, 3, "see docs/formats.md and https://example.org/x.md", false, false);
-    c.check_line(doc, 4, "own §5.3; [formats](formats.md) [m](#0-conventions-and-provenance-marks)", true, true);
+    c.check_line(
+        here,
+        1,
+        "damage-relations.md §8.3 C2 and §8.9-A; §2.3–2.5",
+        false,
+        false,
+    );
+    c.check_line(
+        here,
+        2,
+        "insar-methods.md Appendix A LOS-1, §4.1-4.4 and §5–§6",
+        false,
+        false,
+    );
+    c.check_line(
+        here,
+        3,
+        "see docs/formats.md and https://example.org/x.md",
+        false,
+        false,
+    );
+    c.check_line(
+        doc,
+        4,
+        "own §5.3; [formats](formats.md) [m](#0-conventions-and-provenance-marks)",
+        true,
+        true,
+    );
     assert!(c.errors.is_empty(), "{:?}", c.errors);
     // Each kind of defect is reported once, with file and line.
     c.check_line(here, 10, "no-such-note.md §1", false, false);
@@ -458,7 +493,11 @@ fn the_checker_catches_what_it_should() {
     c.check_line(doc, 17, "bare §77.1 here", true, true);
     c.check_line(doc, 18, "[x](no-such-file.md)", true, true);
     c.check_line(doc, 19, "[x](formats.md#no-such-heading)", true, true);
-    let lines: Vec<&str> = c.errors.iter().map(|e| e.split(": ").next().unwrap()).collect();
+    let lines: Vec<&str> = c
+        .errors
+        .iter()
+        .map(|e| e.split(": ").next().unwrap())
+        .collect();
     assert_eq!(
         lines,
         [
@@ -470,7 +509,8 @@ fn the_checker_catches_what_it_should() {
             "src/lib.rs:15",
             "src/lib.rs:16",
             "docs/methods.md:17",
-            "docs/methods.md:18",
+            "docs/methods.md:18", // not a file: the citation …
+            "docs/methods.md:18", // … and the link
             "docs/methods.md:19",
         ],
         "{:#?}",
@@ -485,5 +525,8 @@ fn section_numbers_parse() {
     assert_eq!(section_number("11 item 7"), Some(("11".into(), 2)));
     assert_eq!(section_number("8.9-A"), Some(("8.9".into(), 3)));
     assert_eq!(section_number("x"), None);
-    assert_eq!(anchor("0. Conventions and provenance marks"), "0-conventions-and-provenance-marks");
+    assert_eq!(
+        anchor("0. Conventions and provenance marks"),
+        "0-conventions-and-provenance-marks"
+    );
 }

@@ -119,7 +119,7 @@ impl Crs {
 /// are not applied (a neighbouring zone only changes the grid scale by < 0.1 %, irrelevant for ratios).
 ///
 /// # References
-/// insar-methods.md §8.3 (zone rule [M], check values [C]).
+/// insar-methods.md §8.3 (zone rule \[M\], check values \[C\]).
 ///
 /// # Examples
 /// ```

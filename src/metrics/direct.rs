@@ -102,14 +102,14 @@ pub enum DirectError {
 /// through its end points gives d_k = s_k − c(x_k), Δ_sag = max(d_k, 0), Δ_hog = max(−d_k, 0).
 ///
 /// Points are sorted by chainage first. Tiny zones are not merged here: `alpha_noise` is the
-/// noise control (§1.2 step 5 [Rec]).
+/// noise control (§1.2 step 5 \[Rec\]).
 ///
 /// # Units
 /// x in m, s in mm (+ down); θ, ω, β, α dimensionless (mm/m·1e-3); Δ in mm.
 ///
 /// # References
-/// damage-relations.md §1.2 [Rec; P] and §1.1 (Burland & Wroth 1974 definitions [M]); checks
-/// §8.1-A, B, C [D].
+/// damage-relations.md §1.2 \[Rec; P\] and §1.1 (Burland & Wroth 1974 definitions \[M\]); checks
+/// §8.1-A, B, C \[D\].
 ///
 /// # Examples
 /// ```
@@ -242,7 +242,7 @@ pub fn direct_profile(
 /// x in m, s in mm, ω and β dimensionless.
 ///
 /// # References
-/// insar-methods.md §7.7 [Rec]; check BLD-1 (§7.11 [C]): with ω = p1 = 0.1578e-3 and Δs ≥ 5 m
+/// insar-methods.md §7.7 \[Rec\]; check BLD-1 (§7.11 \[C\]): with ω = p1 = 0.1578e-3 and Δs ≥ 5 m
 /// the largest is β = −2.744e-4 between points 2 and 5 (9.007 m apart).
 ///
 /// Degenerate input: no pair far enough apart, mismatched lengths or non-finite values → `None`.

@@ -104,7 +104,7 @@ impl MetricPoint {
     }
 }
 
-/// Settings of the metrics stage; defaults follow insar-methods.md §7.10 [Rec] where it gives one.
+/// Settings of the metrics stage; defaults follow insar-methods.md §7.10 \[Rec\] where it gives one.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(default)]
 pub struct MetricsConfig {
@@ -1364,7 +1364,7 @@ mod tests {
         #![proptest_config(proptest::prelude::ProptestConfig::with_cases(32))]
         /// Structure level: any rigid plane (uniform settlement + tilt in any direction) added
         /// to any settlements on an irregular layout leaves every axis's Δ/L and β unchanged
-        /// (Burland & Wroth: tilt is rigid-body motion; damage-relations.md §1.2 step 6 [D]).
+        /// (Burland & Wroth: tilt is rigid-body motion; damage-relations.md §1.2 step 6 \[D\]).
         #[test]
         fn rigid_plane_invariance(
             settle in proptest::collection::vec(-15.0f64..15.0, 14),

@@ -38,7 +38,7 @@ pub struct MadScreen {
 /// Any; z is dimensionless.
 ///
 /// # References
-/// insar-methods.md §7.3 [Rec] (threshold 3); MAD consistency constant: common practice (Hampel
+/// insar-methods.md §7.3 \[Rec\] (threshold 3); MAD consistency constant: common practice (Hampel
 /// 1974, from memory). Check MAD-1: x = (−3.1, −2.8, −3.4, −2.9, −3.0, −7.9, −3.3, −2.6, −3.2,
 /// 1.5) → med −3.05, MAD 0.25, σ̂ 0.3707, z(−7.9) = −13.09, z(1.5) = 12.28, both rejected.
 ///

@@ -276,9 +276,9 @@ pub enum ProfileError {
 /// + sagging, − hogging.
 ///
 /// # References
-/// insar-methods.md §7.7 (smooth-fit estimator) [Rec]; Burland & Wroth (1974), "Settlement of
-/// buildings and associated damage" (definitions of Δ, Δ/L, β, ω) [M]; damage-relations.md §0.2
-/// (signs), §1.1. BIC: Schwarz (1978), "Estimating the dimension of a model" [M].
+/// insar-methods.md §7.7 (smooth-fit estimator) \[Rec\]; Burland & Wroth (1974), "Settlement of
+/// buildings and associated damage" (definitions of Δ, Δ/L, β, ω) \[M\]; damage-relations.md §0.2
+/// (signs), §1.1. BIC: Schwarz (1978), "Estimating the dimension of a model" \[M\].
 ///
 /// # Examples
 /// ```
@@ -600,7 +600,7 @@ pub fn fit_profile(
 ///
 /// # References
 /// Student t table (any statistics text; values from memory, checked against the expansion);
-/// expansion: Cornish & Fisher (1938) [M].
+/// expansion: Cornish & Fisher (1938) \[M\].
 pub fn t_critical_two_sided_5pct(dof: usize) -> f64 {
     const TABLE: [f64; 30] = [
         12.706, 4.303, 3.182, 2.776, 2.571, 2.447, 2.365, 2.306, 2.262, 2.228, 2.201, 2.179, 2.160,
@@ -984,7 +984,7 @@ mod tests {
         #![proptest_config(ProptestConfig::with_cases(64))]
         /// Adding a rigid tilt (along and across the axis) and a uniform settlement leaves Δ/L
         /// and β unchanged: the chord absorbs the along-axis part (damage-relations.md §1.2 step 6
-        /// [Rec]; insar-methods.md §6.6) and the across-axis term the rest.
+        /// \[Rec\]; insar-methods.md §6.6) and the across-axis term the rest.
         #[test]
         fn tilt_and_offset_invariance(
             settle in proptest::collection::vec(-20.0f64..20.0, 12),

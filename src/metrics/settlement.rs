@@ -38,7 +38,7 @@ pub struct SettlementSummary {
 /// epoch (insar-methods.md §6.6).
 ///
 /// # References
-/// insar-methods.md §7.5 [Rec]; check BLD-1 (§7.11 [C]): δS = 4.93 mm, mean 6.819 mm, median
+/// insar-methods.md §7.5 \[Rec\]; check BLD-1 (§7.11 \[C\]): δS = 4.93 mm, mean 6.819 mm, median
 /// 6.355 mm.
 ///
 /// # Examples

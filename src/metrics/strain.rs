@@ -44,8 +44,8 @@ pub const MIN_LOS_SIGMA_MM: f64 = 0.01;
 /// length in m; ε_h dimensionless.
 ///
 /// # References
-/// insar-methods.md §7.8 [C, derived]; damage-relations.md §1.1 (average horizontal strain,
-/// Burland & Wroth 1974 [M]). Check: u_E = 1.0 and 2.5 mm, az 60°, L 30 m → 4.330e-5.
+/// insar-methods.md §7.8 \[C, derived\]; damage-relations.md §1.1 (average horizontal strain,
+/// Burland & Wroth 1974 \[M\]). Check: u_E = 1.0 and 2.5 mm, az 60°, L 30 m → 4.330e-5.
 ///
 /// # Examples
 /// ```
@@ -148,7 +148,7 @@ pub enum StrainError {
 /// ε_h dimensionless, + extension.
 ///
 /// # References
-/// insar-methods.md §4.2 (WLS decomposition), §4.3 (north neglected), §7.8 [C, Rec].
+/// insar-methods.md §4.2 (WLS decomposition), §4.3 (north neglected), §7.8 \[C, Rec\].
 pub fn axis_strain(
     points: &[MetricPoint],
     axis: &Axis,

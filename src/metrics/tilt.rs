@@ -100,7 +100,7 @@ pub enum TiltError {
 /// clockwise from north, direction of going down.
 ///
 /// # References
-/// insar-methods.md §7.6 [Rec]; check BLD-1 (§7.11 [C]); damage-relations.md §1.2 step 2 and
+/// insar-methods.md §7.6 \[Rec\]; check BLD-1 (§7.11 \[C\]); damage-relations.md §1.2 step 2 and
 /// §8.1-D (plane fit of s = 5 + 0.4x + 0.1y).
 ///
 /// # Examples

@@ -5,7 +5,7 @@
 //! metrics are computed: `mod.rs` passes a closure that recomputes them for each draw.
 //!
 //! # Method (choice)
-//! Monte Carlo over the points' σ (insar-methods.md §7.10 [Rec]): each draw replaces every point's
+//! Monte Carlo over the points' σ (insar-methods.md §7.10 \[Rec\]): each draw replaces every point's
 //! settlement S_i by S_i + σ_i·z_i with z_i ~ N(0, 1) independent, and recomputes tilt, the
 //! profiles and the zones; the spread of the draws is the uncertainty *from the stated
 //! measurement noise*. It is used rather than (only) the least-squares covariance because Δ/L
@@ -99,7 +99,7 @@ fn quantile_sorted(v: &[f64], p: f64) -> f64 {
 /// Settlement and σ in mm.
 ///
 /// # References
-/// insar-methods.md §7.10 [Rec].
+/// insar-methods.md §7.10 \[Rec\].
 pub fn monte_carlo<T>(
     points: &[MetricPoint],
     draws: usize,

@@ -16,7 +16,7 @@ use super::fit::{FitError, check_inputs, fit_linear, lag1_autocorrelation, least
 /// Settings of the breakpoint test.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BreakpointConfig {
-    /// Minimum epochs on each side of a candidate hinge, m (insar-methods.md §5.8: 5 [Rec]).
+    /// Minimum epochs on each side of a candidate hinge, m (insar-methods.md §5.8: 5 \[Rec\]).
     pub min_points_each_side: usize,
     /// Bootstrap draws B. Default 499: the notes recommend 999; 499 halves the cost while keeping
     /// the Monte Carlo standard error of a p-value near 0.05 at about 0.01, which is adequate for
@@ -177,8 +177,8 @@ fn check_sorted(t: &[f64]) -> Result<(), FitError> {
 /// Years, mm, mm/yr; F dimensionless.
 ///
 /// # References
-/// insar-methods.md §5.8 [Rec]; check values Series D (§5.12): k = 47, t_b = 1.5441 yr, slopes
-/// −2.305 / −10.16, F_sup = 182.0. Related: Muggeo (2003) segmented regression [S: cited].
+/// insar-methods.md §5.8 \[Rec\]; check values Series D (§5.12): k = 47, t_b = 1.5441 yr, slopes
+/// −2.305 / −10.16, F_sup = 182.0. Related: Muggeo (2003) segmented regression \[S: cited\].
 ///
 /// F_sup does not follow F(1, n − 3) because the hinge is searched; use [`breakpoint_test`] for
 /// significance. Errors: fewer than 2m + 1 epochs, unsorted times, non-finite input.
@@ -265,8 +265,8 @@ pub fn derive_seed(base: u64, t_yr: &[f64], d_mm: &[f64]) -> u64 {
 /// Years, mm, mm/yr.
 ///
 /// # References
-/// insar-methods.md §5.8 recommended test [Rec]; Davies (1987) on nuisance parameters present only
-/// under the alternative [S: cited]. White-noise 95 % critical values ≈ 7.1 (n = 60-92) [C].
+/// insar-methods.md §5.8 recommended test \[Rec\]; Davies (1987) on nuisance parameters present only
+/// under the alternative \[S: cited\]. White-noise 95 % critical values ≈ 7.1 (n = 60-92) \[C\].
 pub fn breakpoint_test(
     t_yr: &[f64],
     d_mm: &[f64],
@@ -352,9 +352,9 @@ pub struct Cusum {
 /// Dimensionless.
 ///
 /// # References
-/// Ploberger & Krämer (1992) [M]; Page (1954) [M]; insar-methods.md §5.8; Series A: 0.4397,
-/// Series D: 1.800 with the maximum at index 67 [C]. Critical values 1.224 / 1.358 / 1.628
-/// (10/5/1 %) [C].
+/// Ploberger & Krämer (1992) \[M\]; Page (1954) \[M\]; insar-methods.md §5.8; Series A: 0.4397,
+/// Series D: 1.800 with the maximum at index 67 \[C\]. Critical values 1.224 / 1.358 / 1.628
+/// (10/5/1 %) \[C\].
 ///
 /// A perfect straight line (σ̂ = 0) returns statistic 0.
 pub fn ols_cusum(t_yr: &[f64], d_mm: &[f64]) -> Result<Cusum, FitError> {
@@ -384,7 +384,7 @@ mod tests {
     use crate::series::fit::test_series::*;
     use rand_distr::Normal;
 
-    /// Series D (insar-methods.md §5.12 [C]).
+    /// Series D (insar-methods.md §5.12 \[C\]).
     #[test]
     fn series_d_hinge() {
         let (t, d) = series_d();
@@ -411,7 +411,7 @@ mod tests {
         assert!(test.p_value < 0.05);
     }
 
-    /// Series A CUSUM 0.4397 (no break) [C].
+    /// Series A CUSUM 0.4397 (no break) \[C\].
     #[test]
     fn series_a_cusum() {
         let (t, d) = series_a();

@@ -11,7 +11,7 @@ use serde::Serialize;
 
 use super::project::vertical_from_los;
 
-/// Largest accepted condition number of the (unweighted) geometry matrix (insar-methods.md §4.2 [Rec]).
+/// Largest accepted condition number of the (unweighted) geometry matrix (insar-methods.md §4.2 \[Rec\]).
 pub const MAX_CONDITION_NUMBER: f64 = 3.0;
 
 /// One geometry's contribution: an LOS value (displacement or velocity) with its σ.
@@ -163,8 +163,8 @@ fn wls_svd(
 /// east, up positive up.
 ///
 /// # References
-/// insar-methods.md §4.1-4.4 [C, Rec]; Wright, Parsons & Lu (2004) [S: cited]; north-neglect bias
-/// §4.3 (Brouwer & Hanssen 2023 [S: abstract]).
+/// insar-methods.md §4.1-4.4 \[C, Rec\]; Wright, Parsons & Lu (2004) \[S: cited\]; north-neglect bias
+/// §4.3 (Brouwer & Hanssen 2023 \[S: abstract\]).
 ///
 /// # Examples
 /// ```
@@ -251,7 +251,7 @@ pub struct Enu3d {
 /// As [`decompose_east_up`].
 ///
 /// # References
-/// insar-methods.md §4.3 (four-geometry example, DEC-3: σ = (1.320, 35.69, 6.097), cond 57.49) [C].
+/// insar-methods.md §4.3 (four-geometry example, DEC-3: σ = (1.320, 35.69, 6.097), cond 57.49) \[C\].
 ///
 /// No conditioning limit is applied (that is the point of the diagnostic); a rank-deficient
 /// system returns `IllConditioned` with an infinite condition number.
@@ -308,8 +308,8 @@ pub struct AscDescConsistency {
 /// LOS values and σ in mm (or mm/yr); σ are LOS standard deviations, projected here.
 ///
 /// # References
-/// insar-methods.md §3.1 "Use in the tool" [Rec]; pure-east limiting case of §3.1 (5 mm east →
-/// −3.960 asc / +3.685 desc) [C].
+/// insar-methods.md §3.1 "Use in the tool" \[Rec\]; pure-east limiting case of §3.1 (5 mm east →
+/// −3.960 asc / +3.685 desc) \[C\].
 ///
 /// # Examples
 /// ```
@@ -365,7 +365,7 @@ mod tests {
         a[0] * b[0] + a[1] * b[1] + a[2] * b[2]
     }
 
-    /// Appendix A DEC-1 and §4.4 covariance values [C].
+    /// Appendix A DEC-1 and §4.4 covariance values \[C\].
     #[test]
     fn dec1_and_covariance() {
         let x = decompose_east_up(&[obs(-9.618164, 1.0, UA), obs(-6.220363, 1.0, UD)]).unwrap();
@@ -397,7 +397,7 @@ mod tests {
         assert!((x.up_mm + 10.32).abs() < 1e-2);
     }
 
-    /// §4.4 three-geometry example with χ² [C].
+    /// §4.4 three-geometry example with χ² \[C\].
     #[test]
     fn three_geometries_chi_squared() {
         let u3 = unit_vector_from_angles(45.0, -13.0, LookSide::Right).unwrap();
@@ -468,7 +468,7 @@ mod tests {
         ));
     }
 
-    /// §4.4 symmetric-geometry table [C].
+    /// §4.4 symmetric-geometry table \[C\].
     #[test]
     fn symmetric_table() {
         for (theta, cond, se, su) in [

@@ -106,7 +106,7 @@ pub struct LosGeometry {
 /// Degrees clockwise from true north, in and out.
 ///
 /// # References
-/// insar-methods.md §1.3 (accept (−180, 180] or [0, 360) and normalise) [Rec].
+/// insar-methods.md §1.3 (accept (−180, 180] or [0, 360) and normalise) \[Rec\].
 ///
 /// # Examples
 /// ```
@@ -139,8 +139,8 @@ pub fn normalise_heading_deg(heading_deg: f64) -> f64 {
 /// positive towards the satellite.
 ///
 /// # References
-/// insar-methods.md §2.1 (derivation, [C]); same convention as the MintPy library
-/// (Yunjun, Fattahi & Amelung 2019) [S].
+/// insar-methods.md §2.1 (derivation, \[C\]); same convention as the MintPy library
+/// (Yunjun, Fattahi & Amelung 2019) \[S\].
 ///
 /// # Examples
 /// ```
@@ -181,7 +181,7 @@ pub fn unit_vector_from_angles(
 /// Degrees in; unit vector out (ENU, ground→satellite).
 ///
 /// # References
-/// insar-methods.md §2.1 (formula) and §2.4 (validation rules 3 and 4) [Rec].
+/// insar-methods.md §2.1 (formula) and §2.4 (validation rules 3 and 4) \[Rec\].
 ///
 /// Rule 3 of §2.4 is stated for right-looking sensors (ascending ⇒ `u_E < 0`, descending ⇒
 /// `u_E > 0`). For a declared left-looking sensor the expected signs are reversed (an ascending
@@ -225,7 +225,7 @@ pub fn los_from_angles(
 /// Dimensionless ENU components.
 ///
 /// # References
-/// insar-methods.md §2.3 (last rows) and §2.4 [Rec]; check value LOS-4 (Appendix A).
+/// insar-methods.md §2.3 (last rows) and §2.4 \[Rec\]; check value LOS-4 (Appendix A).
 ///
 /// # Examples
 /// ```
@@ -322,7 +322,7 @@ mod tests {
         a.iter().zip(b.iter()).all(|(x, y)| (x - y).abs() <= tol)
     }
 
-    /// insar-methods.md §2.5 table [C], 4-significant-figure values, tolerance ±1 in the 4th digit.
+    /// insar-methods.md §2.5 table \[C\], 4-significant-figure values, tolerance ±1 in the 4th digit.
     #[test]
     #[allow(clippy::approx_constant)] // 0.7071 is the table's cos 45°, kept as printed
     fn table_2_5_vectors() {
@@ -391,7 +391,7 @@ mod tests {
         }
     }
 
-    /// Appendix A LOS-1..3 and the six-digit vectors of §2.5 [C].
+    /// Appendix A LOS-1..3 and the six-digit vectors of §2.5 \[C\].
     #[test]
     fn appendix_a_los_1_to_3() {
         let u1 = unit_vector_from_angles(39.0, -12.0, LookSide::Right).unwrap();
@@ -423,7 +423,7 @@ mod tests {
         assert!(matches!(err, Err(LosError::PassMismatch { .. })));
     }
 
-    /// §2.1 limiting cases [C].
+    /// §2.1 limiting cases \[C\].
     #[test]
     fn limiting_cases_and_left_looking() {
         let north = unit_vector_from_angles(30.0, 0.0, LookSide::Right).unwrap();

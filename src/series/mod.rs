@@ -76,9 +76,9 @@ pub struct SeriesConfig {
     pub window_start: NaiveDate,
     /// Last day of the assessment window (inclusive).
     pub window_end: NaiveDate,
-    /// Minimum usable epochs in the window (insar-methods.md §6.4: 20 [M, P, Rec]).
+    /// Minimum usable epochs in the window (insar-methods.md §6.4: 20 \[M, P, Rec\]).
     pub min_epochs: usize,
-    /// Minimum span of usable epochs (years; insar-methods.md §6.4: 1 [Rec]).
+    /// Minimum span of usable epochs (years; insar-methods.md §6.4: 1 \[Rec\]).
     pub min_span_yr: f64,
     /// Epochs of the structure aggregate with fewer points are marked and not fitted (default 3).
     pub min_points_per_epoch: usize,
@@ -292,7 +292,7 @@ pub struct RelativeMovement {
     pub vertical_velocity_mm_per_yr: f64,
     /// Its SE (mm/yr).
     pub se_vertical_velocity_mm_per_yr: Option<f64>,
-    /// "decomposed" or "projected (<geometry>)".
+    /// "decomposed" or "projected (`<geometry>`)".
     pub method: String,
     /// Geometries used.
     pub geometries: Vec<String>,

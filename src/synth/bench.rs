@@ -149,7 +149,7 @@ fn push_cents(buf: &mut Vec<u8>, x_mm: f64) {
 /// buffer and 10 % ground points 6–7.5 m outside it (outside every buffer, since neighbours are
 /// at least 16 m away).
 ///
-/// Choice [Rec]: the tangent plane uses the radii at the grid origin even though the large grid
+/// Choice \[Rec\]: the tangent plane uses the radii at the grid origin even though the large grid
 /// spans ~6 km (error ≈ 0.2 m at its far corner, insar-methods.md §8.2); positions only need to be
 /// consistent for a benchmark.
 pub fn write_bench(dir: &Path, size: BenchSize) -> Result<()> {

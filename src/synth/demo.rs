@@ -55,7 +55,7 @@ fn date(y: i32, m: u32, d: u32) -> NaiveDate {
 /// Default per-geometry point plan from the footprint area: one good point per 30 m² (6–24),
 /// a quarter as many in the buffer (≥ 2), 2 low-coherence points and 5 ground points.
 ///
-/// Choice [Rec]: densities between medium-resolution C-band and high-resolution data
+/// Choice \[Rec\]: densities between medium-resolution C-band and high-resolution data
 /// (insar-methods.md §6.9), so the demo exercises every metric while staying small.
 fn plan_for(area_m2: f64) -> PointPlan {
     let inside = ((area_m2 / 30.0).round() as usize).clamp(6, 24);
@@ -114,8 +114,8 @@ impl Builder {
     /// Small, varied background movement of an ordinary structure: settlement −0.5 to 1.5 mm/yr,
     /// thermal semi-amplitude 0.06 mm per metre of height (≈ 0.4–2 mm), peak in late July.
     ///
-    /// Choice [Rec]: thermal amplitude growing with height follows insar-methods.md §6.7 (from memory
-    /// [M]); the 0.06 mm/m factor is a plausible invented value, not a published one.
+    /// Choice \[Rec\]: thermal amplitude growing with height follows insar-methods.md §6.7 (from memory
+    /// \[M\]); the 0.06 mm/m factor is a plausible invented value, not a published one.
     fn ordinary(&mut self, height_m: f64) -> Motion {
         Motion {
             settlement_rate_mm_per_yr: self.rng.random_range(-0.5..1.5),

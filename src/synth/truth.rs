@@ -34,7 +34,7 @@ pub const POISSON_RATIO: f64 = 0.3;
 ///
 /// # References
 /// Boscardin & Cording (1989), Burland (1995): damage-relations.md §3.2 (confirmed in a secondary
-/// source [R]); boundary rule §3.3 (a value on a boundary goes to the more severe category).
+/// source \[R\]); boundary rule §3.3 (a value on a boundary goes to the more severe category).
 pub const CATEGORY_BOUNDARIES: [f64; 4] = [5.0e-4, 7.5e-4, 1.5e-3, 3.0e-3];
 
 /// Deep-beam factors (Fb, Fd) of Burland & Wroth for a zone, with ε_b = |Δ/L|/Fb, ε_d = |Δ/L|/Fd.
@@ -47,7 +47,7 @@ pub const CATEGORY_BOUNDARIES: [f64; 4] = [5.0e-4, 7.5e-4, 1.5e-3, 3.0e-3];
 ///
 /// # References
 /// Burland & Wroth (1974), central point load on a Timoshenko beam; dimensionless form of
-/// damage-relations.md §2.3 (derived [D]; original relations from memory [M]).
+/// damage-relations.md §2.3 (derived \[D\]; original relations from memory \[M\]).
 ///
 /// # Examples
 /// ```
