@@ -200,7 +200,7 @@ impl PointStats {
 
     /// [`Self::of`] on stored 16-bit codes: the same statistics with every sum in exact integer
     /// arithmetic (codes, and days from the window start), scaled to mm and years once at the end.
-    /// The ordinary-least-squares slope (insar-methods.md §5.2, [P]) is Sxy/Sxx with
+    /// The ordinary-least-squares slope (insar-methods.md §5.2, \[P\]) is Sxy/Sxx with
     /// Sxx = nΣt² − (Σt)², Sxy = nΣtv − ΣtΣv, Syy = nΣv² − (Σv)² (t in days, v in codes; all exact),
     /// so velocity = Sxy/Sxx · 365.25 / per_mm mm/yr (+ towards the satellite, the store's LOS sign)
     /// and the residual scatter s² = (Syy − Sxy²/Sxx) / (n(n − 2)) codes²; tested against the general
@@ -428,7 +428,7 @@ pub fn window_indices(epochs: &[NaiveDate], w: &Window) -> Vec<usize> {
 /// OLS slope of values (mm) against time (years) — per-point screening velocity.
 ///
 /// # References
-/// insar-methods.md §5.2 (ordinary least squares; [P]).
+/// insar-methods.md §5.2 (ordinary least squares; \[P\]).
 pub fn ols_velocity_mm_per_yr(t_yr: &[f64], v_mm: &[f64]) -> Option<f64> {
     let n = t_yr.len();
     if n < 3 {
@@ -516,7 +516,7 @@ pub struct RunContext<'a> {
 }
 
 /// Period displacement of one point over the window: mean of the 3 valid epochs nearest the window
-/// end minus the mean of the 3 valid epochs nearest the window start (insar-methods §5.11 [D]:
+/// end minus the mean of the 3 valid epochs nearest the window start (insar-methods.md §5.11 \[Rec\]:
 /// "difference of local means ... never two single noisy epochs"), mm; and its 1-σ from the
 /// residual scatter about a straight-line fit, σ_period = s·sqrt(2/3).
 pub fn period_displacement(t_yr: &[f64], v_mm: &[f64]) -> Option<(f64, f64)> {
@@ -539,7 +539,7 @@ pub fn period_displacement(t_yr: &[f64], v_mm: &[f64]) -> Option<(f64, f64)> {
     Some((end - start, s * (2.0f64 / 3.0).sqrt()))
 }
 
-/// Screen one structure's member points (insar-methods §7): coherence below
+/// Screen one structure's member points (insar-methods.md §7): coherence below
 /// `min_coherence`, fewer than `min_epochs` valid epochs in the window, and — per geometry, among
 /// the structure's own points — robust velocity outliers (median absolute deviation, z >
 /// `outlier_z`, on the residuals of a least-squares velocity plane when there are 6 or more
@@ -602,7 +602,7 @@ pub fn screen_members(
             vertical_velocity_mm_per_yr: vv,
         });
     }
-    // MAD outliers on LOS velocity per geometry (insar-methods §7.3): robust z > outlier_z; no
+    // MAD outliers on LOS velocity per geometry (insar-methods.md §7.3): robust z > outlier_z; no
     // rejection with fewer than 5 points. With 6 or more points the screen runs on the
     // residuals of a least-squares plane through the velocities (the §7.3 second pass [D]): a
     // genuinely tilting or bending building spreads raw velocities, and its extreme but correct
@@ -656,7 +656,7 @@ pub fn assess_structure(
         }
     }
     // Time series per geometry of the points that passed screening: aggregate, decomposition,
-    // fits, jumps (insar-methods §4–5). Points with an unwrapping jump are rejected here.
+    // fits, jumps (insar-methods.md §4–5). Points with an unwrapping jump are rejected here.
     let mut ser: Option<crate::series::StructureSeries> = None;
     let mut point_period: Vec<Option<(f64, f64)>> = vec![None; verdicts.len()];
     {
@@ -804,7 +804,7 @@ pub fn assess_structure(
                 "per-point vertical displacement corrected for the structure's mean east–west displacement (both geometries); north–south motion neglected".into(),
             );
         }
-        // Per-point period settlement in the structure's local frame (insar-methods §7.4).
+        // Per-point period settlement in the structure's local frame (insar-methods.md §7.4).
         let mut mpts = Vec::new();
         let mut coh_sum = 0.0;
         let mut coh_n = 0usize;
@@ -1319,7 +1319,7 @@ mod tests {
             assert_eq!(st.valid_epochs(), t.len());
             let vel = ols_velocity_mm_per_yr(&t, &vv).unwrap();
             assert!((st.los_velocity_mm_per_yr().unwrap() - vel).abs() < 1e-5 * vel.abs().max(1.0));
-            // White-noise SE against the OLS reference (insar-methods §5.2).
+            // White-noise SE against the OLS reference (insar-methods.md §5.2).
             let se = crate::series::fit::fit_linear(&t, &vv)
                 .unwrap()
                 .se_velocity_mm_per_yr;

@@ -14,7 +14,7 @@
 //! - `indicative`: the minimum for an indication of movement; metrics are screening values;
 //! - `insufficient`: not assessable from InSAR.
 //!
-//! Each grade requires all its conditions (insar-methods §7.10 [D] as a basis); the result is
+//! Each grade requires all its conditions (insar-methods.md §7.10 \[Rec\] as a basis); the result is
 //! the best grade whose conditions all hold. The reasons list every condition that failed for
 //! each better grade, so a report can say what would have been needed.
 //!
@@ -26,7 +26,7 @@
 //!   Limits: ≤ 1.5 robust, ≤ 2.5 adequate.
 //! - **Both look directions** (one east-looking and one west-looking geometry) are required for
 //!   `robust`: with one look direction every point is a vertical projection that assumes no
-//!   horizontal motion (insar-methods §3.1, damage-relations §9.4). Two tracks looking the same
+//!   horizontal motion (insar-methods.md §3.1, damage-relations.md §9.4). Two tracks looking the same
 //!   way (two ascending passes) count once: they cannot separate east–west from vertical.
 //! - **Certainty of the category** replaces §7.10's "SE ≤ 0.25 × the nearest boundary": the
 //!   condition is on the Monte Carlo probability of the stated category (≥ 0.8 robust, ≥ 0.5
@@ -181,7 +181,7 @@ pub struct GradeThresholds {
 }
 
 impl Default for GradeThresholds {
-    /// insar-methods.md §7.10 [D] ("high/medium/low" there → robust/adequate/indicative here),
+    /// insar-methods.md §7.10 \[Rec\] ("high/medium/low" there → robust/adequate/indicative here),
     /// plus the scatter-ratio, look-direction and category-probability conditions explained in
     /// the module docs (ours; 0.8 and 0.5 are our choices: "clearly the most probable" and
     /// "at least as likely as not").
@@ -235,7 +235,7 @@ impl Default for GradeThresholds {
 /// Counts, fractions of L, years, mm; probabilities 0–1.
 ///
 /// # References
-/// insar-methods.md §7.10 [D] (conditions and default thresholds).
+/// insar-methods.md §7.10 \[Rec\] (conditions and default thresholds).
 ///
 /// # Examples
 /// ```
@@ -476,7 +476,7 @@ mod tests {
     fn from_metrics_collects_counts_and_scatter() {
         use crate::metrics::{MetricPoint, MetricsConfig, structure_metrics};
         use geo::{MultiPolygon, polygon};
-        // BLD-1 (insar-methods §7.11): plane RMS 0.7523 mm; the profile fit is better or equal
+        // BLD-1 (insar-methods.md §7.11): plane RMS 0.7523 mm; the profile fit is better or equal
         // only if its RMS is smaller — the helper takes the smaller of the two.
         let pts: Vec<MetricPoint> = [
             (-14.12, -3.54, 5.55),

@@ -16,7 +16,7 @@ use crate::error::InputError;
 /// C-band radar wavelength at 5.405 GHz, mm: λ = c/f = 299 792 458 m/s / 5.405e9 Hz.
 ///
 /// # References
-/// insar-methods.md §2.7 (computed value [C]); the 5.405 GHz centre frequency is a typical value from memory.
+/// insar-methods.md §2.7 (computed value \[C\]); the 5.405 GHz centre frequency is a typical value from memory.
 pub const C_BAND_WAVELENGTH_MM: f64 = 299_792_458.0 / 5.405e9 * 1000.0;
 
 /// The raw file as written by the user. Unknown keys are errors.
@@ -232,7 +232,7 @@ pub struct StructuresSpec {
 /// would leave almost every structure insufficient). Plinth choice.
 pub const MAX_MIN_POINTS: usize = 1000;
 /// Smallest accepted `min_epochs`: the period displacement averages 3 valid epochs at each end
-/// of the window (insar-methods §5.11 [D]), so fewer than 6 cannot give one.
+/// of the window (insar-methods.md §5.11 \[Rec\]), so fewer than 6 cannot give one.
 pub const MIN_MIN_EPOCHS: usize = 6;
 /// Largest accepted `min_epochs`: valid epochs per point are counted up to 65 535.
 pub const MAX_MIN_EPOCHS: usize = u16::MAX as usize;
@@ -247,15 +247,15 @@ pub struct AssessmentSettings {
     pub buffer_m: f64,
     /// Outer radius of the surroundings ring measured from the footprint, m (default 50.0).
     pub surroundings_m: f64,
-    /// Minimum temporal coherence of a kept point (default 0.7, insar-methods §6.1 [D]).
+    /// Minimum temporal coherence of a kept point (default 0.7, insar-methods.md §6.1 \[Rec\]).
     pub min_coherence: f64,
     /// Minimum kept points on a structure; fewer → `insufficient_data` (default 5).
     pub min_points: usize,
-    /// Minimum acquisitions inside the window (default 20, insar-methods §6.4).
+    /// Minimum acquisitions inside the window (default 20, insar-methods.md §6.4).
     pub min_epochs: usize,
-    /// Minimum time span of the window, years (default 1.0, insar-methods §6.4 [D]).
+    /// Minimum time span of the window, years (default 1.0, insar-methods.md §6.4 \[Rec\]).
     pub min_span_years: f64,
-    /// Robust z-score above which a point velocity is an outlier (default 3.0, insar-methods §7.3).
+    /// Robust z-score above which a point velocity is an outlier (default 3.0, insar-methods.md §7.3).
     pub outlier_z: f64,
     /// Height to eaves used when a footprint has no `height_m`, m (default 6.0: two-storey domestic).
     pub default_height_m: f64,
@@ -266,10 +266,10 @@ pub struct AssessmentSettings {
     /// Monte Carlo draws for metric uncertainty (default 300).
     pub monte_carlo_draws: usize,
     /// Largest number of bootstrap draws B for the breakpoint test (default 999, insar-methods
-    /// §5.8 [D]; the test stops earlier once its decision is known, see `series::breakpoint`).
+    /// §5.8 \[D\]; the test stops earlier once its decision is known, see `series::breakpoint`).
     pub bootstrap_draws: usize,
     /// Largest condition number of the geometry matrix for an east–west + vertical
-    /// decomposition (default 3.0, insar-methods §4.2 [D]); one east-looking and one
+    /// decomposition (default 3.0, insar-methods.md §4.2 \[Rec\]); one east-looking and one
     /// west-looking geometry are required whatever the value.
     pub max_condition_number: f64,
     /// Largest angle between a footprint axis and east–west for a horizontal strain along it,
@@ -317,7 +317,7 @@ pub struct TriggerLevel {
 }
 
 /// The `[reference]` section: one stable area every dataset is re-referenced to before datasets
-/// are combined (insar-methods §4.6, §6.6).
+/// are combined (insar-methods.md §4.6, §6.6).
 #[derive(Debug, Clone, Serialize)]
 pub struct ReferenceSpec {
     /// Centre of the reference area, in `crs` (x = easting or longitude).
@@ -774,7 +774,7 @@ impl Portfolio {
             return bad(
                 "buffer_m",
                 format!("buffer {} m is outside 0–100 m", assessment.buffer_m),
-                "5 m suits high-resolution data, 10 m medium-resolution C-band (insar-methods §7.2)",
+                "5 m suits high-resolution data, 10 m medium-resolution C-band (insar-methods.md §7.2)",
             );
         }
         if !(assessment.surroundings_m >= assessment.buffer_m
@@ -820,7 +820,7 @@ impl Portfolio {
                     "{} is outside {MIN_MIN_EPOCHS}–{MAX_MIN_EPOCHS}",
                     assessment.min_epochs
                 ),
-                "the period displacement needs 3 epochs at each end of the window, so at least 6; about 20 acquisitions is the usual minimum (insar-methods §6.4)",
+                "the period displacement needs 3 epochs at each end of the window, so at least 6; about 20 acquisitions is the usual minimum (insar-methods.md §6.4)",
             );
         }
         if !(assessment.min_span_years > 0.0 && assessment.min_span_years <= MAX_MIN_SPAN_YEARS) {
@@ -830,7 +830,7 @@ impl Portfolio {
                     "{} years is outside (0, {MAX_MIN_SPAN_YEARS}]",
                     assessment.min_span_years
                 ),
-                "give the shortest usable window in years; 1.0 is the default (insar-methods §6.4)",
+                "give the shortest usable window in years; 1.0 is the default (insar-methods.md §6.4)",
             );
         }
         if !(assessment.default_height_m > 0.0 && assessment.default_height_m < 500.0) {

@@ -51,7 +51,7 @@ pub struct Change {
     pub previous_vertical_velocity_mm_per_yr: Option<f64>,
     /// Current minus previous vertical velocity, mm/yr.
     pub velocity_change_mm_per_yr: Option<f64>,
-    /// z = Δv / sqrt(SE₁² + SE₂²) (insar-methods §5.8 sub-period comparison [D]).
+    /// z = Δv / sqrt(SE₁² + SE₂²) (insar-methods.md §5.8 sub-period comparison \[Rec\]).
     pub velocity_change_z: Option<f64>,
     /// |z| > 2.
     pub velocity_change_significant: Option<bool>,

@@ -2,7 +2,7 @@
 //!
 //! Owns the order of the stages, the assessment window, the coverage summary, the comparison with
 //! a previous run, and writing the output folder atomically (via `output::Staging`). The command
-//! line (`cli`) resolves its arguments into [`RunOptions`] and calls [`analyse`] and [`write`].
+//! line (`cli`) resolves its arguments into [`RunOptions`] and calls [`analyse`] and [`write()`].
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};

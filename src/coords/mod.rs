@@ -119,7 +119,7 @@ impl Crs {
 /// are not applied (a neighbouring zone only changes the grid scale by < 0.1 %, irrelevant for ratios).
 ///
 /// # References
-/// insar-methods.md §8.3 (zone rule [M], check values [C]).
+/// insar-methods.md §8.3 (zone rule \[M\], check values \[C\]).
 ///
 /// # Examples
 /// ```
@@ -212,7 +212,7 @@ pub struct LocalFrame {
     /// Origin in the analysis CRS, m.
     pub origin_y: f64,
     /// Grid bearing of true north at the origin, degrees clockwise from grid north. This is −γ for the
-    /// convergence γ of insar-methods §8.3 (grid azimuth = true azimuth − γ).
+    /// convergence γ of insar-methods.md §8.3 (grid azimuth = true azimuth − γ).
     pub north_bearing_deg: f64,
     /// Point scale factor of the analysis CRS at the origin (grid distance / true distance).
     pub scale: f64,
@@ -237,7 +237,7 @@ impl LocalFrame {
         from_geo: &Transformer,
     ) -> Result<LocalFrame, CoordError> {
         let (lon, lat) = to_geo.apply(x, y)?;
-        // 10 m of true distance north and east, on the WGS84 ellipsoid (radii of insar-methods §8.2).
+        // 10 m of true distance north and east, on the WGS84 ellipsoid (radii of insar-methods.md §8.2).
         let a = 6_378_137.0_f64;
         let f = 1.0 / 298.257_223_563;
         let e2 = f * (2.0 - f);

@@ -112,7 +112,7 @@ pub struct BeamFactors {
 /// # Examples
 /// ```
 /// use plinth::damage::burland_wroth::{deep_beam_factors, NeutralAxis};
-/// // damage-relations.md §2.5: hogging, L/H = 1, E/G = 2.6 → Fb 1.38333, Fd 1.06410 [D].
+/// // damage-relations.md §2.5: hogging, L/H = 1, E/G = 2.6 → Fb 1.38333, Fd 1.06410 \[D\].
 /// let f = deep_beam_factors(1.0, 2.6, NeutralAxis::LowerEdge).unwrap();
 /// assert!((f.bending - 1.38333).abs() < 1e-5);
 /// assert!((f.diagonal - 1.06410).abs() < 1e-5);

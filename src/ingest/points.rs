@@ -278,7 +278,7 @@ struct Acc {
     rows: u64,
     out_of_reach: u64,
     swapped_in_reach: u64,
-    /// Rows whose per-point incidence lies outside the usual [15°, 60°] (insar-methods §2.4
+    /// Rows whose per-point incidence lies outside the usual [15°, 60°] (insar-methods.md §2.4
     /// rule 4: a warning, not an error).
     unusual_incidence: u64,
     max_abs_mm: f64,
@@ -703,7 +703,7 @@ impl RowParser<'_> {
         self.row_values(buf, ranges, line, id_raw, acc, pre)
     }
 
-    /// Per-point LOS angles get the checks of the dataset-level ones (insar-methods §2.4): the
+    /// Per-point LOS angles get the checks of the dataset-level ones (insar-methods.md §2.4): the
     /// heading must agree with the declared pass and look side (rule 3), and an incidence
     /// outside [15°, 60°] is counted for one warning (rule 4). The ranges are checked by the
     /// caller. The error names the heading column when it is mapped (the east component's sign
@@ -1645,7 +1645,7 @@ mod tests {
         s
     }
 
-    /// Per-point angle columns get the dataset-level checks (insar-methods §2.4): a heading that
+    /// Per-point angle columns get the dataset-level checks (insar-methods.md §2.4): a heading that
     /// contradicts the pass, a heading out of range and an incidence out of range are errors
     /// naming line, column and value; valid per-point angles are read.
     #[test]

@@ -2,11 +2,11 @@
 //! epoch, to the median of its own coherent points in one stable area (`[reference]`).
 //!
 //! Why: InSAR values are relative to the reference point each dataset was processed with
-//! (insar-methods §6.6). Combining an ascending and a descending dataset with different
+//! (insar-methods.md §6.6). Combining an ascending and a descending dataset with different
 //! references turns a reference that creeps by 1 mm/yr in one of them into about 0.8 mm/yr of
 //! false east–west and 0.6 mm/yr of false vertical velocity (for the LOS-1/LOS-2 pair of
-//! insar-methods Appendix A). Practitioners re-reference both to one stable area before
-//! combining them (insar-methods §4.6 [P, D]).
+//! insar-methods.md Appendix A). Practitioners re-reference both to one stable area before
+//! combining them (insar-methods.md §4.6 \[P, D\]).
 //!
 //! Owns: the reference area in the analysis CRS, the per-epoch median of the area's points and
 //! its subtraction from every point of the dataset. Does not decide which points are read (the
@@ -23,7 +23,7 @@ use crate::portfolio::ReferenceSpec;
 /// Fewest coherent points in the reference area of each dataset. Our choice (common practice,
 /// no single source: a reference *area* of several stable points rather than one point, so that
 /// the median is not one point's noise); with 5 points the median's noise is about 0.5 σ of one
-/// point (1.2533·σ/√5 for a normal distribution, Kenney & Keeping 1962 [M]).
+/// point (1.2533·σ/√5 for a normal distribution, Kenney & Keeping 1962 \[M\]).
 pub const MIN_REFERENCE_POINTS: usize = 5;
 
 /// The reference area in the analysis CRS.
@@ -94,7 +94,7 @@ pub struct DatasetReference {
 /// LOS values in mm, + towards the satellite; the correction in mm and mm/yr.
 ///
 /// # References
-/// insar-methods.md §4.6 (same spatial reference before combining) [P, D], §6.6.
+/// insar-methods.md §4.6 (same spatial reference before combining) \[P, D\], §6.6.
 ///
 /// Errors (naming the dataset and the count): fewer than [`MIN_REFERENCE_POINTS`] usable
 /// points in the area, or an epoch at which none of them has a value.

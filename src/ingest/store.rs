@@ -15,8 +15,8 @@
 //!   0.5 / per_mm = max|value| / 65 534 mm (≤ 0.0016 mm for a 100 mm series; ≤ 0.153 mm at the
 //!   10 m plausibility limit), recorded per dataset as [`Dataset::max_rounding_mm`].
 //!
-//! Choice [D]: 16 bits, because that bound is two to three orders below the ~1–3 mm noise of one
-//! InSAR epoch (insar-methods §6.1) while halving memory against `f32`.
+//! Choice \[Rec\]: 16 bits, because that bound is two to three orders below the ~1–3 mm noise of one
+//! InSAR epoch (insar-methods.md §6.1) while halving memory against `f32`.
 
 use crate::association::PointAssociation;
 use chrono::NaiveDate;

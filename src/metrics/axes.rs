@@ -143,7 +143,7 @@ pub const MIN_AXIS_LENGTH_M: f64 = 0.5;
 ///
 /// # References
 /// Minimum-area rectangle: Freeman & Shapira (1975), "Determining the minimum-area encasing
-/// rectangle for an arbitrary closed curve" (from memory). Axis definition: insar-methods.md §7.7 [D].
+/// rectangle for an arbitrary closed curve" (from memory). Axis definition: insar-methods.md §7.7 \[Rec\].
 ///
 /// # Examples
 /// ```
@@ -250,8 +250,8 @@ pub fn normalise_axis_azimuth_deg(az_deg: f64) -> Option<f64> {
 /// Degrees clockwise from north.
 ///
 /// # References
-/// insar-methods.md §7.7 [D]; check: 30 m × 12 m rectangle with long axis at azimuth 60° gives
-/// φ = 30°, azimuth 60° [C]. Polygon moment formulas: the standard shoelace-type sums
+/// insar-methods.md §7.7 \[Rec\]; check: 30 m × 12 m rectangle with long axis at azimuth 60° gives
+/// φ = 30°, azimuth 60° \[C\]. Polygon moment formulas: the standard shoelace-type sums
 /// (common practice, no single source).
 ///
 /// Degenerate input: zero area or isotropic moments (relative anisotropy below 1e-9) → `None`.

@@ -1,5 +1,5 @@
 //! Direct (discrete) Burland & Wroth profile quantities on measured points: the reference
-//! algorithm of damage-relations §1.2.
+//! algorithm of damage-relations.md §1.2.
 //!
 //! Owns: segment slopes, the chord and least-squares tilt, pairwise angular distortion with a
 //! minimum spacing, angular strain α at interior points, zone splitting where α changes sign,
@@ -92,7 +92,7 @@ pub enum DirectError {
     DuplicateChainage { x_m: f64 },
 }
 
-/// Burland & Wroth quantities of a discrete settlement profile (damage-relations §1.2).
+/// Burland & Wroth quantities of a discrete settlement profile (damage-relations.md §1.2).
 ///
 /// Steps: θ_k = (s_{k+1} − s_k)/(x_{k+1} − x_k); ω chord or least squares; β = θ − ω on a chain
 /// of pairs, each starting where the previous ended and reaching the first point at least
@@ -102,14 +102,14 @@ pub enum DirectError {
 /// through its end points gives d_k = s_k − c(x_k), Δ_sag = max(d_k, 0), Δ_hog = max(−d_k, 0).
 ///
 /// Points are sorted by chainage first. Tiny zones are not merged here: `alpha_noise` is the
-/// noise control (§1.2 step 5 [Rec]).
+/// noise control (§1.2 step 5 \[Rec\]).
 ///
 /// # Units
 /// x in m, s in mm (+ down); θ, ω, β, α dimensionless (mm/m·1e-3); Δ in mm.
 ///
 /// # References
-/// damage-relations.md §1.2 [Rec; P] and §1.1 (Burland & Wroth 1974 definitions [M]); checks
-/// §8.1-A, B, C [D].
+/// damage-relations.md §1.2 \[Rec; P\] and §1.1 (Burland & Wroth 1974 definitions \[M\]); checks
+/// §8.1-A, B, C \[D\].
 ///
 /// # Examples
 /// ```
@@ -236,13 +236,13 @@ pub fn direct_profile(
 }
 
 /// Largest |β_ij| = |(s_j − s_i)/(x_j − x_i) − ω| over **all** pairs at least `min_spacing_m`
-/// apart (insar-methods §7.7 direct estimator).
+/// apart (insar-methods.md §7.7 direct estimator).
 ///
 /// # Units
 /// x in m, s in mm, ω and β dimensionless.
 ///
 /// # References
-/// insar-methods.md §7.7 [D]; check BLD-1 (§7.11 [C]): with ω = p1 = 0.1578e-3 and Δs ≥ 5 m
+/// insar-methods.md §7.7 \[Rec\]; check BLD-1 (§7.11 \[C\]): with ω = p1 = 0.1578e-3 and Δs ≥ 5 m
 /// the largest is β = −2.744e-4 between points 2 and 5 (9.007 m apart).
 ///
 /// Degenerate input: no pair far enough apart, mismatched lengths or non-finite values → `None`.

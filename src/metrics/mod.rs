@@ -15,7 +15,7 @@
 //! 1. drop points with non-finite values or negative σ (recorded in `excluded_points`);
 //! 2. principal axes of the footprint (`axes.rs`);
 //! 3. second-pass outlier screening on plane-fit residuals, per geometry, when n ≥ 6
-//!    (`outliers.rs`, insar-methods §7.3);
+//!    (`outliers.rs`, insar-methods.md §7.3);
 //! 4. settlement statistics (`settlement.rs`), plane-fit tilt (`tilt.rs`), tilt per geometry
 //!    and their consistency;
 //! 5. per axis: profile fit, zones, Δ/L, β (`profile.rs`), the pairwise β cross-check
@@ -104,7 +104,7 @@ impl MetricPoint {
     }
 }
 
-/// Settings of the metrics stage; defaults follow insar-methods §7.10 [D] where it gives one.
+/// Settings of the metrics stage; defaults follow insar-methods.md §7.10 \[Rec\] where it gives one.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(default)]
 pub struct MetricsConfig {
@@ -123,13 +123,13 @@ pub struct MetricsConfig {
     /// Minimum spacing of point pairs for the pairwise β (m, §7.7: 5 m).
     pub min_pair_spacing_m: f64,
     /// Fit a linear across-axis term in the profiles so that rigid tilt across an axis cannot
-    /// create deflection (`profile.rs`); `false` gives the insar-methods §7.7 estimator.
+    /// create deflection (`profile.rs`); `false` gives the insar-methods.md §7.7 estimator.
     pub profile_across_axis_term: bool,
     /// Smallest standard deviation of the points' across-axis coordinates for that term (m).
     pub min_across_spread_m: f64,
     /// Shortest profile zone as a fraction of L; the effective minimum is the larger of this
     /// times L and `min_pair_spacing_m` (our choice 0.2: a zone shorter than a fifth of the
-    /// building rarely holds enough points to be more than noise, damage-relations §9.2).
+    /// building rarely holds enough points to be more than noise, damage-relations.md §9.2).
     pub min_zone_fraction: f64,
     /// Robust-z threshold of the residual outlier pass; `None` switches the pass off (§7.3: 3).
     pub residual_outlier_z: Option<f64>,
@@ -141,7 +141,7 @@ pub struct MetricsConfig {
     /// unseen component weigh up to 75 %.
     pub strain_axis_max_angle_deg: f64,
     /// Largest condition number of the geometry matrix for the east/up split (default 3, as
-    /// the series decomposition, insar-methods §4.2 [D]; ascending/descending pairs give
+    /// the series decomposition, insar-methods.md §4.2 \[Rec\]; ascending/descending pairs give
     /// 1.0–1.8). Both an east-looking and a west-looking geometry are required as well.
     pub strain_max_condition: f64,
     /// Fewest residual degrees of freedom of a profile fit for its Δ/L to support a damage
@@ -223,7 +223,7 @@ pub struct AxisMetrics {
     /// Signed β of largest magnitude on the fitted profile.
     pub angular_distortion: Option<f64>,
     /// Cross-check: largest pairwise β on the raw points relative to the chord tilt, pairs at
-    /// least `min_pair_spacing_m` apart (damage-relations §1.2 / insar-methods §7.7 direct).
+    /// least `min_pair_spacing_m` apart (damage-relations.md §1.2 / insar-methods.md §7.7 direct).
     pub pairwise_angular_distortion: Option<PairBeta>,
     /// Horizontal strain along the axis (+ extension); `None` when not measurable.
     pub horizontal_strain: Option<AxisStrain>,
@@ -283,7 +283,7 @@ impl HorizontalStrainStatus {
 
 /// Whether a profile's deflection ratio is resolved well enough to give a damage category.
 ///
-/// Rule (ours; insar-methods §7.7 and §7.10 [D] as a basis): at least
+/// Rule (ours; insar-methods.md §7.7 and §7.10 \[Rec\] as a basis): at least
 /// [`MetricsConfig::min_profile_residual_dof`] residual degrees of freedom after the profile
 /// model (polynomial terms, one intercept per geometry, the across-axis term), and a point
 /// within [`MetricsConfig::max_end_gap_fraction`]·L of **each** end of the axis. Reason: Δ/L is
@@ -348,7 +348,7 @@ impl ProfileSupport {
     }
 }
 
-/// Tilt from one geometry's points alone (comparison of datasets, insar-methods §7.4).
+/// Tilt from one geometry's points alone (comparison of datasets, insar-methods.md §7.4).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct GeometryTilt {
     /// Geometry index.
@@ -393,7 +393,7 @@ pub struct DamageZone {
     pub axis_azimuth_deg: f64,
     /// Sagging or hogging.
     pub mode: DeflectionMode,
-    /// Length of the zone (m) — the L of the deep-beam relations (damage-relations §9.2).
+    /// Length of the zone (m) — the L of the deep-beam relations (damage-relations.md §9.2).
     pub length_m: f64,
     /// Signed Δ/L (+ sagging, − hogging).
     pub deflection_ratio: f64,
@@ -1102,7 +1102,7 @@ struct AxisDraw {
 
 /// Axis that gives a building-level profile metric.
 ///
-/// The principal axis governs (it is the profile of insar-methods §7.7, and the BLD-1 check
+/// The principal axis governs (it is the profile of insar-methods.md §7.7, and the BLD-1 check
 /// values are its values). The secondary (short) axis takes over only when its value is larger
 /// in magnitude **and** resolved from noise, |value| ≥ 2·SE (Monte Carlo SE, else the
 /// least-squares SE; without either it cannot take over); and it is used alone when the
@@ -1516,7 +1516,7 @@ mod tests {
         #![proptest_config(proptest::prelude::ProptestConfig::with_cases(32))]
         /// Structure level: any rigid plane (uniform settlement + tilt in any direction) added
         /// to any settlements on an irregular layout leaves every axis's Δ/L and β unchanged
-        /// (Burland & Wroth: tilt is rigid-body motion; damage-relations §1.2 step 6 [D]).
+        /// (Burland & Wroth: tilt is rigid-body motion; damage-relations.md §1.2 step 6 \[D\]).
         #[test]
         fn rigid_plane_invariance(
             settle in proptest::collection::vec(-15.0f64..15.0, 14),

@@ -1,6 +1,6 @@
 //! Outlier screening with the median absolute deviation (MAD).
 //!
-//! Owns: the robust z-score rule of insar-methods §7.3 applied to a list of values. In the
+//! Owns: the robust z-score rule of insar-methods.md §7.3 applied to a list of values. In the
 //! metrics stage it is the *second pass* on plane-fit residuals (§7.3: a tilting or bending
 //! structure spreads raw values, so residuals are screened instead when n ≥ 6). It does not
 //! decide which values to screen; `mod.rs` does.
@@ -42,7 +42,7 @@ pub struct MadScreen {
 /// Any; z is dimensionless.
 ///
 /// # References
-/// insar-methods.md §7.3 [D] (threshold 3); MAD consistency constant: common practice (Hampel
+/// insar-methods.md §7.3 \[Rec\] (threshold 3); MAD consistency constant: common practice (Hampel
 /// 1974, from memory). Check MAD-1: x = (−3.1, −2.8, −3.4, −2.9, −3.0, −7.9, −3.3, −2.6, −3.2,
 /// 1.5) → med −3.05, MAD 0.25, σ̂ 0.3707, z(−7.9) = −13.09, z(1.5) = 12.28, both rejected.
 ///
@@ -72,7 +72,7 @@ pub fn mad_screen(values: &[f64], z_max: f64, min_count: usize) -> MadScreen {
 /// `scale_floor` in the unit of the values; z dimensionless.
 ///
 /// # References
-/// insar-methods.md §7.3 [D] (robust z, threshold 3); the floor is a Plinth choice (reason
+/// insar-methods.md §7.3 \[Rec\] (robust z, threshold 3); the floor is a Plinth choice (reason
 /// above), in the spirit of the precision-weighted tests of geodetic outlier screening.
 ///
 /// # Examples
@@ -159,7 +159,7 @@ mod tests {
     }
 
     /// Six still points, 0.4 mm noise per epoch, 92 epochs over 3 years (seeded): their
-    /// velocities scatter with SD ≈ SE ≈ 0.4·√12/(3·√92) ≈ 0.048 mm/yr (insar-methods §5.2
+    /// velocities scatter with SD ≈ SE ≈ 0.4·√12/(3·√92) ≈ 0.048 mm/yr (insar-methods.md §5.2
     /// white-noise rule), so none is an outlier. Over 400 seeded sets the plain MAD screen
     /// rejects good points in many sets; with the floor (median SE) almost none (a true
     /// 3-SE deviation occurs in about 0.3 % of values).

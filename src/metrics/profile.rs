@@ -1,7 +1,7 @@
 //! Settlement profile along one footprint axis: smooth polynomial fit, hogging/sagging zones,
 //! relative deflection Δ, deflection ratio Δ/L and angular distortion β.
 //!
-//! Owns: the smooth-fit estimator of insar-methods §7.7 generalised to a cubic, degree
+//! Owns: the smooth-fit estimator of insar-methods.md §7.7 generalised to a cubic, degree
 //! selection, zone splitting at the inflection of the fitted profile, and per-zone Δ and Δ/L.
 //! It does not choose the axis (`axes.rs`), does not estimate uncertainty (`uncertainty.rs`)
 //! and does not classify damage. The discrete §1.2 algorithm lives in `direct.rs`.
@@ -46,7 +46,7 @@
 //!   magnitude, found analytically where S'(t) equals the chord slope; mode sagging when that
 //!   offset is positive (the middle settles more; S'' < 0), hogging when negative;
 //!   `relative_deflection_mm` = |Δ| ≥ 0 and `deflection_ratio` = signed Δ/L_zone·1e-3
-//!   (+ sagging, − hogging; damage-relations §0.2). For the quadratic, Δ = −p2·L²/4 (§7.7).
+//!   (+ sagging, − hogging; damage-relations.md §0.2). For the quadratic, Δ = −p2·L²/4 (insar-methods.md §7.7).
 //!   Δ = 0 exactly (a straight profile) is reported as sagging with DR 0.
 //! - **β**: β(t) = (S'(t) − ω_axis)·1e-3, maximum |β| over the extent (ends or the vertex of S'),
 //!   reported signed with its position. This is the slope of the *fitted* profile relative to the
@@ -276,9 +276,9 @@ pub enum ProfileError {
 /// + sagging, − hogging.
 ///
 /// # References
-/// insar-methods.md §7.7 (smooth-fit estimator) [D]; Burland & Wroth (1974), "Settlement of
-/// buildings and associated damage" (definitions of Δ, Δ/L, β, ω) [M]; damage-relations.md §0.2
-/// (signs), §1.1. BIC: Schwarz (1978), "Estimating the dimension of a model" [M].
+/// insar-methods.md §7.7 (smooth-fit estimator) \[Rec\]; Burland & Wroth (1974), "Settlement of
+/// buildings and associated damage" (definitions of Δ, Δ/L, β, ω) \[M\]; damage-relations.md §0.2
+/// (signs), §1.1. BIC: Schwarz (1978), "Estimating the dimension of a model" \[M\].
 ///
 /// # Examples
 /// ```
@@ -600,7 +600,7 @@ pub fn fit_profile(
 ///
 /// # References
 /// Student t table (any statistics text; values from memory, checked against the expansion);
-/// expansion: Cornish & Fisher (1938) [M].
+/// expansion: Cornish & Fisher (1938) \[M\].
 pub fn t_critical_two_sided_5pct(dof: usize) -> f64 {
     const TABLE: [f64; 30] = [
         12.706, 4.303, 3.182, 2.776, 2.571, 2.447, 2.365, 2.306, 2.262, 2.228, 2.201, 2.179, 2.160,
@@ -983,8 +983,8 @@ mod tests {
     proptest! {
         #![proptest_config(ProptestConfig::with_cases(64))]
         /// Adding a rigid tilt (along and across the axis) and a uniform settlement leaves Δ/L
-        /// and β unchanged: the chord absorbs the along-axis part (damage-relations §1.2 step 6
-        /// [D]; insar-methods §6.6) and the across-axis term the rest.
+        /// and β unchanged: the chord absorbs the along-axis part (damage-relations.md §1.2 step 6
+        /// \[Rec\]; insar-methods.md §6.6) and the across-axis term the rest.
         #[test]
         fn tilt_and_offset_invariance(
             settle in proptest::collection::vec(-20.0f64..20.0, 12),

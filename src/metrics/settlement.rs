@@ -22,7 +22,7 @@ pub struct SettlementSummary {
     /// δS = max − min (mm).
     pub differential_settlement_mm: f64,
     /// 1-σ noise of δS: sqrt(σ_max² + σ_min²) of the two points involved (mm); equals σ·√2
-    /// for equal σ (insar-methods §7.5).
+    /// for equal σ (insar-methods.md §7.5).
     pub differential_noise_floor_mm: f64,
 }
 
@@ -35,10 +35,10 @@ pub struct SettlementSummary {
 ///
 /// # Units
 /// mm, settlement positive downwards; all values relative to the dataset's reference point and
-/// epoch (insar-methods §6.6).
+/// epoch (insar-methods.md §6.6).
 ///
 /// # References
-/// insar-methods.md §7.5 [D]; check BLD-1 (§7.11 [C]): δS = 4.93 mm, mean 6.819 mm, median
+/// insar-methods.md §7.5 \[Rec\]; check BLD-1 (§7.11 \[C\]): δS = 4.93 mm, mean 6.819 mm, median
 /// 6.355 mm.
 ///
 /// # Examples

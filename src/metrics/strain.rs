@@ -9,7 +9,7 @@
 //! - **Ends** are the points in the first and last third of the footprint extent along the axis.
 //! - **Per end and per geometry** the LOS values and unit vectors are averaged; the means of the
 //!   K ≥ 2 geometries are decomposed by weighted least squares into (d_E, d_U), north
-//!   neglected (insar-methods §4.2, §4.3). The σ of a point's LOS is taken as
+//!   neglected (insar-methods.md §4.2, §4.3). The σ of a point's LOS is taken as
 //!   σ_settlement·|u_U| (the inverse of the vertical projection that produced σ_settlement),
 //!   floored at 0.01 mm; the σ of a mean is sqrt(Σσ²)/n.
 //! - **Gauge length**: the strain is the change of distance between the two end groups divided
@@ -21,7 +21,7 @@
 //! - **Refusal**: an axis more than `max_axis_angle_deg` (default 20°) from east–west, an end
 //!   without at least one east-looking and one west-looking geometry, or an end whose geometry
 //!   matrix [u_E, u_U] has a condition number above the limit (default 3, as the series
-//!   decomposition). A refusal means *unknown*, never zero strain (damage-relations §9.4).
+//!   decomposition). A refusal means *unknown*, never zero strain (damage-relations.md §9.4).
 //! - **Why 20°**: the radar does not see north–south motion. Along an axis at angle φ from
 //!   east–west the axial strain is ε_ss = ε_EE·cos²φ + (∂u_E/∂N + ∂u_N/∂E)·sin φ·cos φ +
 //!   ε_NN·sin²φ, and the east displacements measure only the terms in u_E. The unseen normal
@@ -30,7 +30,7 @@
 //!   would be reported as a measured strain while a north–south strain of the same size (a
 //!   tunnel or excavation running east–west beside the building) goes unseen; Plinth then gives
 //!   no ε_h and says the category may be understated. 20° is our choice (derivation above,
-//!   insar-methods §4.3 for why north is not observable); `[assessment] strain_axis_max_angle_deg`
+//!   insar-methods.md §4.3 for why north is not observable); `[assessment] strain_axis_max_angle_deg`
 //!   changes it.
 //! - A constant reference offset of one dataset biases d_E at both ends almost equally and
 //!   cancels in the difference; north motion leaks into d_U mostly, not d_E (§4.3).
@@ -54,8 +54,8 @@ pub const MIN_LOS_SIGMA_MM: f64 = 0.01;
 /// length in m; ε_h dimensionless.
 ///
 /// # References
-/// insar-methods.md §7.8 [C, derived]; damage-relations.md §1.1 (average horizontal strain,
-/// Burland & Wroth 1974 [M]). Check: u_E = 1.0 and 2.5 mm, az 60°, L 30 m → 4.330e-5.
+/// insar-methods.md §7.8 \[C, derived\]; damage-relations.md §1.1 (average horizontal strain,
+/// Burland & Wroth 1974 \[M\]). Check: u_E = 1.0 and 2.5 mm, az 60°, L 30 m → 4.330e-5.
 ///
 /// # Examples
 /// ```
@@ -171,7 +171,7 @@ pub enum StrainError {
 /// ε_h dimensionless, + extension.
 ///
 /// # References
-/// insar-methods.md §4.2 (WLS decomposition), §4.3 (north neglected), §7.8 [C, D].
+/// insar-methods.md §4.2 (WLS decomposition), §4.3 (north neglected), §7.8 \[C, Rec\].
 pub fn axis_strain(
     points: &[MetricPoint],
     axis: &Axis,
@@ -317,7 +317,7 @@ mod tests {
     use super::*;
     use geo::{MultiPolygon, polygon};
 
-    /// Right-looking LOS unit vector from incidence θ and heading α (insar-methods §2.1).
+    /// Right-looking LOS unit vector from incidence θ and heading α (insar-methods.md §2.1).
     fn los_unit(theta_deg: f64, heading_deg: f64) -> [f64; 3] {
         let (t, a) = (theta_deg.to_radians(), heading_deg.to_radians());
         [-t.sin() * a.cos(), t.sin() * a.sin(), t.cos()]
@@ -440,7 +440,7 @@ mod tests {
     #[test]
     fn two_same_look_tracks_are_refused() {
         // Two ascending right-looking tracks (θ 33° and 45°, α −12°): both east-looking. Their
-        // geometry matrix has condition ≈ 9.6 (insar-methods §4.2 check: the old limit of 10
+        // geometry matrix has condition ≈ 9.6 (insar-methods.md §4.2 check: the old limit of 10
         // accepted it), yet they cannot separate east from up.
         let ax = Axis {
             azimuth_deg: 90.0,

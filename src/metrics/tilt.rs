@@ -8,9 +8,9 @@
 //! # Choices
 //! - **Settlement, not uplift, is fitted** (S = −w, + down). The gradient of S points where the
 //!   structure goes down, so `tilt_azimuth_deg = atan2(b, c)`; this equals atan2(−b_w, −c_w) of
-//!   insar-methods §7.6 written for w.
+//!   insar-methods.md §7.6 written for w.
 //! - **One intercept per viewing geometry.** Each dataset is relative to its own reference point
-//!   (insar-methods §6.6); a common offset cancels in differential quantities only *within* one
+//!   (insar-methods.md §6.6); a common offset cancels in differential quantities only *within* one
 //!   dataset. With a shared intercept, an offset between datasets would leak into the gradient
 //!   whenever the two geometries sample different parts of the footprint. With a single
 //!   geometry this is exactly the §7.6 fit.
@@ -100,7 +100,7 @@ pub enum TiltError {
 /// clockwise from north, direction of going down.
 ///
 /// # References
-/// insar-methods.md §7.6 [D]; check BLD-1 (§7.11 [C]); damage-relations.md §1.2 step 2 and
+/// insar-methods.md §7.6 \[Rec\]; check BLD-1 (§7.11 \[C\]); damage-relations.md §1.2 step 2 and
 /// §8.1-D (plane fit of s = 5 + 0.4x + 0.1y).
 ///
 /// # Examples

@@ -5,7 +5,7 @@
 //! metrics are computed: `mod.rs` passes a closure that recomputes them for each draw.
 //!
 //! # Method (choice)
-//! Monte Carlo over the points' σ (insar-methods §7.10 [D]): each draw replaces every point's
+//! Monte Carlo over the points' σ (insar-methods.md §7.10 \[Rec\]): each draw replaces every point's
 //! settlement S_i by S_i + σ_i·z_i with z_i ~ N(0, 1) independent, and recomputes tilt, the
 //! profiles and the zones; the spread of the draws is the uncertainty *from the stated
 //! measurement noise*. It is used rather than (only) the least-squares covariance because Δ/L
@@ -20,7 +20,7 @@
 //!
 //! Points are perturbed independently (no spatial correlation of the noise: atmospheric
 //! residuals are correlated over km, so over one building they are nearly common-mode and
-//! cancel in differential metrics, insar-methods §6.6). LOS values for the strain are not
+//! cancel in differential metrics, insar-methods.md §6.6). LOS values for the strain are not
 //! perturbed; the strain carries its own formal SE (`strain.rs`).
 //!
 //! Determinism: `rand_chacha::ChaCha8Rng` seeded from the configuration; draws are generated
@@ -99,7 +99,7 @@ fn quantile_sorted(v: &[f64], p: f64) -> f64 {
 /// Settlement and σ in mm.
 ///
 /// # References
-/// insar-methods.md §7.10 [D].
+/// insar-methods.md §7.10 \[Rec\].
 pub fn monte_carlo<T>(
     points: &[MetricPoint],
     draws: usize,

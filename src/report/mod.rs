@@ -9,7 +9,7 @@
 //!
 //! Files:
 //! - [`build`]: adapter from the results record to the report model.
-//! - [`format`]: numbers to strings with units and fixed decimals.
+//! - [`mod@format`]: numbers to strings with units and fixed decimals.
 //! - [`model`]: `AssetReport`, `PortfolioReport` and the plain chart data structs.
 //! - [`charts`]: one SVG chart per file (time series, map, profile, interaction, portfolio map).
 //! - [`text`]: minijinja text blocks rendered to plain text.

@@ -254,7 +254,7 @@ pub struct CategoryView {
 }
 
 /// Category names, crack widths and strain bands: Burland et al. (1977), limiting strains from
-/// Boscardin & Cording (1989) as restated by Burland (1995); damage-relations.md §3.2 [R].
+/// Boscardin & Cording (1989) as restated by Burland (1995); damage-relations.md §3.2 \[R\].
 /// Descriptions are our own short paraphrase. Category 5 cannot be separated from 4 by strain
 /// (damage-relations.md §3.3), so index 4 and 5 both display as "4–5".
 const CATEGORIES: [(&str, &str, &str, &str, &str, &str); 5] = [

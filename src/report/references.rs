@@ -6,7 +6,7 @@
 //!
 //! Provenance is kept as in the notes: damage-relations.md states that page ranges and volume
 //! details are from memory, so those citations carry "[details from memory]"; the InSAR
-//! citations keep their status tags where the note marks them [M] (from memory).
+//! citations keep their status tags where the note marks them \[M\] (from memory).
 
 /// A method whose reference can be printed.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]

@@ -9,7 +9,7 @@
 //! done, so memory stays flat), building the models (see [`super::model`]).
 //!
 //! Choices (typst-embedding.md §3–§6):
-//! - PDF identity: `ident` = the asset id (stable document ID), creator "Plinth <version>",
+//! - PDF identity: `ident` = the asset id (stable document ID), creator "Plinth `<version>`",
 //!   timestamp = the report date from the data (never the clock), so two renders of the same
 //!   model are byte-identical.
 //! - `comemo::evict(0)` after every document: the fastest and leanest setting for reports that

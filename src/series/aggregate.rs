@@ -10,7 +10,7 @@ use serde::Serialize;
 use super::stats::{MAD_TO_SIGMA, median, quantile};
 
 /// Epochs with fewer points than this are marked sparse (insar-methods.md §4.5 route 2 uses
-/// "≥ 3 points per geometry" [D]; we apply the same floor per epoch).
+/// "≥ 3 points per geometry" \[Rec\]; we apply the same floor per epoch).
 pub const MIN_POINTS_PER_EPOCH: usize = 3;
 
 /// Robust per-epoch aggregate of several LOS series on the same epochs.
@@ -39,7 +39,7 @@ pub struct AggregateSeries {
 /// mm in, mm out.
 ///
 /// # References
-/// insar-methods.md §4.5 route 1 and §5.1 (fit the structure's per-epoch median) [P, D].
+/// insar-methods.md §4.5 route 1 and §5.1 (fit the structure's per-epoch median) \[P, Rec\].
 /// Quantiles by linear interpolation between order statistics (type 7), our choice.
 pub fn aggregate_epochs(n_epochs: usize, series: &[&[f64]]) -> AggregateSeries {
     let mut out = AggregateSeries {
@@ -83,9 +83,9 @@ pub struct MadScreen {
     pub rejection_suppressed_because: Option<String>,
 }
 
-/// Default robust-z threshold (insar-methods.md §7.3 [D]).
+/// Default robust-z threshold (insar-methods.md §7.3 \[Rec\]).
 pub const MAD_Z_THRESHOLD: f64 = 3.0;
-/// Below this many finite values outliers are only flagged, not rejected (§7.3 [D]).
+/// Below this many finite values outliers are only flagged, not rejected (insar-methods.md §7.3 \[Rec\]).
 pub const MAD_MIN_POINTS_TO_REJECT: usize = 5;
 
 /// MAD outlier screening: `z = (x − med)/(1.4826·MAD)`, reject |z| > threshold.
@@ -98,8 +98,8 @@ pub const MAD_MIN_POINTS_TO_REJECT: usize = 5;
 /// Any (typically velocities in mm/yr); z dimensionless.
 ///
 /// # References
-/// insar-methods.md §7.3 [C, D]; MAD-1 check: list (−3.1, …, 1.5) → reject −7.9 and 1.5;
-/// Iglewicz & Hoaglin (1993) for the modified z [M].
+/// insar-methods.md §7.3 \[C, Rec\]; MAD-1 check: list (−3.1, …, 1.5) → reject −7.9 and 1.5;
+/// Iglewicz & Hoaglin (1993) for the modified z \[M\].
 ///
 /// # Examples
 /// ```
@@ -156,7 +156,7 @@ pub fn mad_screen(values: &[f64], z_threshold: f64, min_points_to_reject: usize)
 mod tests {
     use super::*;
 
-    /// insar-methods.md §7.3 / Appendix A MAD-1 [C].
+    /// insar-methods.md §7.3 / Appendix A MAD-1 \[C\].
     #[test]
     fn mad1() {
         let x = [-3.1, -2.8, -3.4, -2.9, -3.0, -7.9, -3.3, -2.6, -3.2, 1.5];

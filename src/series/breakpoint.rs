@@ -18,9 +18,9 @@ use super::fit::{
 /// Settings of the breakpoint test.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BreakpointConfig {
-    /// Minimum epochs on each side of a candidate hinge, m (insar-methods.md §5.8: 5 [D]).
+    /// Minimum epochs on each side of a candidate hinge, m (insar-methods.md §5.8: 5 \[Rec\]).
     pub min_points_each_side: usize,
-    /// Largest number of bootstrap draws B (default 999, insar-methods.md §5.8 [D]). The draws
+    /// Largest number of bootstrap draws B (default 999, insar-methods.md §5.8 \[Rec\]). The draws
     /// stop earlier once the decision at `alpha` is known (see [`breakpoint_test`]).
     pub bootstrap_draws: usize,
     /// Significance level for p (report only if p < alpha; default 0.05).
@@ -216,8 +216,8 @@ fn check_sorted(t: &[f64]) -> Result<(), FitError> {
 /// Years, mm, mm/yr; F dimensionless.
 ///
 /// # References
-/// insar-methods.md §5.8 [D]; check values Series D (§5.12): k = 47, t_b = 1.5441 yr, slopes
-/// −2.305 / −10.16, F_sup = 182.0. Related: Muggeo (2003) segmented regression [S: cited].
+/// insar-methods.md §5.8 \[Rec\]; check values Series D (§5.12): k = 47, t_b = 1.5441 yr, slopes
+/// −2.305 / −10.16, F_sup = 182.0. Related: Muggeo (2003) segmented regression \[S: cited\].
 ///
 /// F_sup does not follow F(1, n − 3) because the hinge is searched; use [`breakpoint_test`] for
 /// significance. Errors: fewer than 2m + 1 epochs, unsorted times, non-finite input.
@@ -370,9 +370,9 @@ pub fn sequential_p_value(
 /// Years, mm, mm/yr.
 ///
 /// # References
-/// insar-methods.md §5.8 recommended test [D] (B = 999); Davies (1987) on nuisance parameters
-/// present only under the alternative [S: cited]; Besag & Clifford (1991) for the sequential
-/// p-value. White-noise 95 % critical values ≈ 7.1 (n = 60-92) [C].
+/// insar-methods.md §5.8 recommended test \[Rec\] (B = 999); Davies (1987) on nuisance parameters
+/// present only under the alternative \[S: cited\]; Besag & Clifford (1991) for the sequential
+/// p-value. White-noise 95 % critical values ≈ 7.1 (n = 60-92) \[C\].
 pub fn breakpoint_test(
     t_yr: &[f64],
     d_mm: &[f64],
@@ -458,9 +458,9 @@ pub struct Cusum {
 /// Dimensionless.
 ///
 /// # References
-/// Ploberger & Krämer (1992) [M]; Page (1954) [M]; insar-methods.md §5.8; Series A: 0.4397,
-/// Series D: 1.800 with the maximum at index 67 [C]. Critical values 1.224 / 1.358 / 1.628
-/// (10/5/1 %) [C].
+/// Ploberger & Krämer (1992) \[M\]; Page (1954) \[M\]; insar-methods.md §5.8; Series A: 0.4397,
+/// Series D: 1.800 with the maximum at index 67 \[C\]. Critical values 1.224 / 1.358 / 1.628
+/// (10/5/1 %) \[C\].
 ///
 /// A perfect straight line (σ̂ = 0) returns statistic 0.
 pub fn ols_cusum(t_yr: &[f64], d_mm: &[f64]) -> Result<Cusum, FitError> {
@@ -490,7 +490,7 @@ mod tests {
     use crate::series::fit::test_series::*;
     use rand_distr::Normal;
 
-    /// Series D (insar-methods.md §5.12 [C]).
+    /// Series D (insar-methods.md §5.12 \[C\]).
     #[test]
     fn series_d_hinge() {
         let (t, d) = series_d();
@@ -517,7 +517,7 @@ mod tests {
         assert!(test.p_value < 0.05);
     }
 
-    /// Series A CUSUM 0.4397 (no break) [C].
+    /// Series A CUSUM 0.4397 (no break) \[C\].
     #[test]
     fn series_a_cusum() {
         let (t, d) = series_a();
@@ -631,7 +631,7 @@ mod tests {
 
     /// Fast (suffix sums) against plain (a least-squares refit per candidate) on fixtures: the
     /// same hinge and F_sup to a relative 1e-9 (rounding only; the two are algebraically equal
-    /// by the Frisch–Waugh–Lovell identity). Fixtures: Series A, B, D of insar-methods §5.12,
+    /// by the Frisch–Waugh–Lovell identity). Fixtures: Series A, B, D of insar-methods.md §5.12,
     /// seeded white and AR(1) noise, irregular sampling, and a long series whose grid is thinned.
     #[test]
     fn suffix_sum_search_equals_plain_refits() {
@@ -780,7 +780,7 @@ mod tests {
         );
     }
 
-    /// Defaults follow insar-methods §5.8: B = 999; a clear break draws all B, a series without
+    /// Defaults follow insar-methods.md §5.8: B = 999; a clear break draws all B, a series without
     /// one stops early; the same seed gives the same result.
     #[test]
     fn defaults_and_sequential_stopping() {

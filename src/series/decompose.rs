@@ -11,7 +11,7 @@ use serde::Serialize;
 
 use super::project::vertical_from_los;
 
-/// Largest accepted condition number of the (unweighted) geometry matrix (insar-methods.md §4.2 [D]).
+/// Largest accepted condition number of the (unweighted) geometry matrix (insar-methods.md §4.2 \[Rec\]).
 pub const MAX_CONDITION_NUMBER: f64 = 3.0;
 
 /// One geometry's contribution: an LOS value (displacement or velocity) with its σ.
@@ -163,8 +163,8 @@ fn wls_svd(
 /// east, up positive up.
 ///
 /// # References
-/// insar-methods.md §4.1-4.4 [C, D]; Wright, Parsons & Lu (2004) [S: cited]; north-neglect bias
-/// §4.3 (Brouwer & Hanssen 2023 [S: abstract]).
+/// insar-methods.md §4.1-4.4 \[C, Rec\]; Wright, Parsons & Lu (2004) \[S: cited\]; north-neglect bias
+/// §4.3 (Brouwer & Hanssen 2023 \[S: abstract\]).
 ///
 /// # Examples
 /// ```
@@ -260,7 +260,7 @@ pub struct Enu3d {
 /// As [`decompose_east_up`].
 ///
 /// # References
-/// insar-methods.md §4.3 (four-geometry example, DEC-3: σ = (1.320, 35.69, 6.097), cond 57.49) [C].
+/// insar-methods.md §4.3 (four-geometry example, DEC-3: σ = (1.320, 35.69, 6.097), cond 57.49) \[C\].
 ///
 /// No conditioning limit is applied (that is the point of the diagnostic); a rank-deficient
 /// system returns `IllConditioned` with an infinite condition number.
@@ -317,8 +317,8 @@ pub struct AscDescConsistency {
 /// LOS values and σ in mm (or mm/yr); σ are LOS standard deviations, projected here.
 ///
 /// # References
-/// insar-methods.md §3.1 "Use in the tool" [D]; pure-east limiting case of §3.1 (5 mm east →
-/// −3.960 asc / +3.685 desc) [C].
+/// insar-methods.md §3.1 "Use in the tool" \[Rec\]; pure-east limiting case of §3.1 (5 mm east →
+/// −3.960 asc / +3.685 desc) \[C\].
 ///
 /// # Examples
 /// ```
@@ -374,7 +374,7 @@ mod tests {
         a[0] * b[0] + a[1] * b[1] + a[2] * b[2]
     }
 
-    /// Appendix A DEC-1 and §4.4 covariance values [C].
+    /// Appendix A DEC-1 and §4.4 covariance values \[C\].
     #[test]
     fn dec1_and_covariance() {
         let x = decompose_east_up(&[obs(-9.618164, 1.0, UA), obs(-6.220363, 1.0, UD)]).unwrap();
@@ -395,7 +395,7 @@ mod tests {
         assert!((y.sigma_up_mm - 1.154).abs() < 1e-3);
     }
 
-    /// Appendix A DEC-2 [C]: north motion leaks into up.
+    /// Appendix A DEC-2 \[C\]: north motion leaks into up.
     #[test]
     fn dec2_north_bias() {
         let truth = [3.0, 2.0, -10.0];
@@ -406,7 +406,7 @@ mod tests {
         assert!((x.up_mm + 10.32).abs() < 1e-2);
     }
 
-    /// §4.4 three-geometry example with χ² [C].
+    /// §4.4 three-geometry example with χ² \[C\].
     #[test]
     fn three_geometries_chi_squared() {
         let u3 = unit_vector_from_angles(45.0, -13.0, LookSide::Right).unwrap();
@@ -435,7 +435,7 @@ mod tests {
         assert_eq!(p.degrees_of_freedom, 1);
     }
 
-    /// Appendix A DEC-3 [C]: 3-D solve shows north unresolvable.
+    /// Appendix A DEC-3 \[C\]: 3-D solve shows north unresolvable.
     #[test]
     fn dec3_three_d_diagnostic() {
         let geoms = [(39.0, -12.0), (37.0, 192.0), (45.0, -13.0), (33.0, 193.0)];
@@ -456,7 +456,7 @@ mod tests {
         assert!((s.condition_number - 57.49).abs() < 1e-2);
     }
 
-    /// §4.2 [C, D]: same-side pair refused; cond 9.56 for θ = 33°/45° both α = −12°.
+    /// insar-methods.md §4.2 [C, Rec]: same-side pair refused; cond 9.56 for θ = 33°/45° both α = −12°.
     #[test]
     fn weak_geometry_refused() {
         let u33 = unit_vector_from_angles(33.0, -12.0, LookSide::Right).unwrap();
@@ -477,7 +477,7 @@ mod tests {
         ));
     }
 
-    /// §4.4 symmetric-geometry table [C].
+    /// §4.4 symmetric-geometry table \[C\].
     #[test]
     fn symmetric_table() {
         for (theta, cond, se, su) in [

@@ -22,7 +22,7 @@ pub const DAYS_PER_YEAR: f64 = 365.25;
 /// Years of 365.25 days.
 ///
 /// # References
-/// insar-methods.md §1.3, §5.1 [D].
+/// insar-methods.md §1.3, §5.1 \[Rec\].
 ///
 /// # Examples
 /// ```
@@ -213,7 +213,7 @@ pub fn least_squares(
 /// or an all-zero series.
 ///
 /// # References
-/// insar-methods.md §5.3 [C]. Assumes regular sampling (as the notes state).
+/// insar-methods.md §5.3 \[C\]. Assumes regular sampling (as the notes state).
 pub fn lag1_autocorrelation(residuals: &[f64]) -> f64 {
     let den: f64 = residuals.iter().map(|r| r * r).sum();
     if residuals.len() < 2 || !(den > 0.0) {
@@ -229,7 +229,7 @@ pub fn lag1_autocorrelation(residuals: &[f64]) -> f64 {
 /// Dimensionless count.
 ///
 /// # References
-/// insar-methods.md §5.3 (Santer et al. 2000 [M]; Zwiers & von Storch 1995 [S: cited]).
+/// insar-methods.md §5.3 (Santer et al. 2000 \[M\]; Zwiers & von Storch 1995 \[S: cited\]).
 ///
 /// # Examples
 /// ```
@@ -247,7 +247,7 @@ pub fn effective_sample_size(n: usize, r1: f64) -> f64 {
 /// `n_eff ≤ 2`.
 ///
 /// # References
-/// insar-methods.md §5.3 [D].
+/// insar-methods.md §5.3 \[Rec\].
 pub fn adjusted_se(se: f64, n: usize, n_eff: f64) -> Option<f64> {
     if n_eff <= 2.0 || n < 3 {
         return None;
@@ -282,7 +282,7 @@ pub struct LinearFit {
     pub t_statistic_adjusted: Option<f64>,
     /// Two-sided p of `t_statistic_adjusted` with n_eff − 2 degrees of freedom.
     pub p_value_adjusted: Option<f64>,
-    /// `|v| > 2·SE_adj` (insar-methods.md §5.3 default rule [D]); false when not estimable.
+    /// `|v| > 2·SE_adj` (insar-methods.md §5.3 default rule \[Rec\]); false when not estimable.
     pub distinguishable_from_zero: bool,
     /// Residuals (mm), in input order.
     #[serde(skip)]
@@ -295,7 +295,7 @@ pub struct LinearFit {
 /// `t_yr` decimal years, `d_mm` mm; velocity mm/yr.
 ///
 /// # References
-/// insar-methods.md §5.2 and §5.3 [C, D]; check values Series A (§5.12).
+/// insar-methods.md §5.2 and §5.3 \[C, Rec\]; check values Series A (§5.12).
 ///
 /// # Examples
 /// ```
@@ -401,7 +401,7 @@ pub struct AnnualFit {
 /// `t_yr` decimal years from a **calendar** origin (the phase is relative to it); mm; mm/yr.
 ///
 /// # References
-/// insar-methods.md §5.4 [C, D]; check values Series B (§5.12).
+/// insar-methods.md §5.4 \[C, Rec\]; check values Series B (§5.12).
 ///
 /// The "fit only when span ≥ 2 yr" rule is applied by the caller ([`AnnualPolicy`]); this function
 /// fits whatever it is given. Needs at least 5 epochs. With A = 0 the SE is taken as
@@ -459,7 +459,7 @@ pub fn fit_linear_annual(t_yr: &[f64], d_mm: &[f64]) -> Result<AnnualFit, FitErr
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum AnnualPolicy {
-    /// Fit only when the span is at least [`ANNUAL_MIN_SPAN_YR`] (insar-methods.md §5.4, §6.4 [D]).
+    /// Fit only when the span is at least [`ANNUAL_MIN_SPAN_YR`] (insar-methods.md §5.4, §6.4 \[Rec\]).
     #[default]
     Auto,
     /// Always fit (span permitting the parameter count).
@@ -515,7 +515,7 @@ pub struct QuadraticFit {
 /// Years, mm, mm/yr, mm/yr².
 ///
 /// # References
-/// insar-methods.md §5.5 [C]; check values Series C (§5.12): a_c = −2.851 mm/yr², SE 0.3730.
+/// insar-methods.md §5.5 \[C\]; check values Series C (§5.12): a_c = −2.851 mm/yr², SE 0.3730.
 ///
 /// Needs at least 4 epochs. Solved by QR, so the time origin need not be centred for stability.
 pub fn fit_quadratic(t_yr: &[f64], d_mm: &[f64]) -> Result<QuadraticFit, FitError> {
@@ -554,7 +554,7 @@ pub fn fit_quadratic(t_yr: &[f64], d_mm: &[f64]) -> Result<QuadraticFit, FitErro
 /// Nested F statistic `((RSS_s − RSS_b)/(p_b − p_s)) / (RSS_b/(n − p_b))`; `None` when undefined.
 ///
 /// # References
-/// insar-methods.md §5.6 [C]; Series B: F(seasonal vs linear) = 104.9 (2, 88 dof).
+/// insar-methods.md §5.6 \[C\]; Series B: F(seasonal vs linear) = 104.9 (2, 88 dof).
 pub fn nested_f(
     rss_small: f64,
     p_small: usize,
@@ -572,7 +572,7 @@ pub fn nested_f(
 /// model's residuals).
 ///
 /// # References
-/// insar-methods.md §5.6 and §5.8 [D].
+/// insar-methods.md §5.6 and §5.8 \[Rec\].
 pub fn ar1_adjusted_f(f: f64, r1: f64) -> f64 {
     let r = r1.clamp(0.0, 0.999_999);
     f / ((1.0 + r) / (1.0 - r))
@@ -636,7 +636,7 @@ pub struct ModelComparison {
 /// model is significant at 5 %.
 ///
 /// # References
-/// insar-methods.md §5.6 [D]; Series B check: linear 149.5/154.5, linear+annual 41.31/51.39,
+/// insar-methods.md §5.6 \[Rec\]; Series B check: linear 149.5/154.5, linear+annual 41.31/51.39,
 /// quadratic+annual 43.16/55.77 → linear+annual.
 ///
 /// Choice: every richer model is tested against the linear one (not step by step), which is the
@@ -732,7 +732,7 @@ pub const THEIL_SEN_MAX_EPOCHS: usize = 1000;
 /// Years, mm, mm/yr.
 ///
 /// # References
-/// Theil (1950); Sen (1968) [M]; insar-methods.md §5.7; Series F: slope −8.522, intercept 2.331
+/// Theil (1950); Sen (1968) \[M\]; insar-methods.md §5.7; Series F: slope −8.522, intercept 2.331
 /// (435 pairs).
 ///
 /// Pairs with equal times are skipped. O(n²): intended for n up to a few hundred.
@@ -804,7 +804,7 @@ pub const HUBER_K: f64 = 1.345;
 /// Years, mm, mm/yr.
 ///
 /// # References
-/// Huber (1964) [M]; insar-methods.md §5.7; Series F: (2.261, −8.428).
+/// Huber (1964) \[M\]; insar-methods.md §5.7; Series F: (2.261, −8.428).
 ///
 /// If σ̂ becomes 0 (more than half the residuals identical) the current fit is returned as
 /// converged: the weights are undefined and the majority already fits exactly.
@@ -871,7 +871,7 @@ pub fn huber_line(t_yr: &[f64], d_mm: &[f64], k: f64) -> Result<HuberFit, FitErr
 
 #[cfg(test)]
 pub(crate) mod test_series {
-    //! Deterministic test series of insar-methods.md §5.12 [C].
+    //! Deterministic test series of insar-methods.md §5.12 \[C\].
 
     /// e_i = 1.5·sin(0.7·i) + 0.8·sin(2.9·i + 1.0)
     pub fn noise(i: usize) -> f64 {
@@ -928,7 +928,7 @@ mod tests {
     use rand::SeedableRng;
     use rand_distr::{Distribution, Normal};
 
-    /// Series A (insar-methods.md §5.12, [C]); 4-significant-figure tolerance.
+    /// Series A (insar-methods.md §5.12, \[C\]); 4-significant-figure tolerance.
     #[test]
     fn series_a_linear_and_ar1() {
         let (t, d) = series_a();
@@ -951,7 +951,7 @@ mod tests {
         assert!((g.intercept_mm - 1.0).abs() < 1e-12 && (g.velocity_mm_per_yr + 6.0).abs() < 1e-12);
     }
 
-    /// Series B (§5.12 [C]): annual amplitude, peak day, SEs; biased linear-only velocity.
+    /// Series B (§5.12 \[C\]): annual amplitude, peak day, SEs; biased linear-only velocity.
     #[test]
     fn series_b_annual() {
         let (t, d) = series_b();
@@ -978,7 +978,7 @@ mod tests {
         assert!((g.amplitude_mm - 2.693).abs() < 1e-3 && (g.peak_day - 69.19).abs() < 0.01);
     }
 
-    /// Series B model comparison (§5.12 [C]).
+    /// Series B model comparison (§5.12 \[C\]).
     #[test]
     fn series_b_model_comparison() {
         let (t, d) = series_b();
@@ -997,7 +997,7 @@ mod tests {
         assert_eq!(compare_models(&ta, &da, false).unwrap().selected, "linear");
     }
 
-    /// Series C (§5.12 [C]): acceleration.
+    /// Series C (§5.12 \[C\]): acceleration.
     #[test]
     fn series_c_acceleration() {
         let (t, d) = series_c();
@@ -1014,7 +1014,7 @@ mod tests {
         assert!((g.quadratic_mm_per_yr2 + 1.5).abs() < 1e-10);
     }
 
-    /// Series F (§5.12 [C]): Theil–Sen and Huber against OLS.
+    /// Series F (§5.12 \[C\]): Theil–Sen and Huber against OLS.
     #[test]
     fn series_f_robust() {
         let (t, d) = series_f();

@@ -13,7 +13,7 @@ use super::stats::{MAD_TO_SIGMA, median};
 /// Speed of light in vacuum (m/s), exact by definition of the metre.
 pub const SPEED_OF_LIGHT_M_PER_S: f64 = 299_792_458.0;
 
-/// Typical C-band centre frequency (Hz) [M: typical value, insar-methods.md §2.7].
+/// Typical C-band centre frequency (Hz) \[M: typical value, insar-methods.md §2.7\].
 pub const C_BAND_FREQUENCY_HZ: f64 = 5.405e9;
 
 /// Radar wavelength `λ = c/f` in millimetres.
@@ -22,7 +22,7 @@ pub const C_BAND_FREQUENCY_HZ: f64 = 5.405e9;
 /// Hz in, mm out.
 ///
 /// # References
-/// insar-methods.md §2.7 and Appendix A WL-1 [C]: 5.405 GHz → λ = 55.47 mm, λ/2 = 27.73 mm.
+/// insar-methods.md §2.7 and Appendix A WL-1 \[C\]: 5.405 GHz → λ = 55.47 mm, λ/2 = 27.73 mm.
 ///
 /// # Examples
 /// ```
@@ -80,7 +80,7 @@ pub struct JumpScan {
 /// mm LOS (positive towards the satellite); `wavelength_mm` in mm.
 ///
 /// # References
-/// insar-methods.md §5.10 [D] (heuristic); Series E (§5.12 [C]): one jump between epochs 39 and
+/// insar-methods.md §5.10 \[Rec\] (heuristic); Series E (§5.12 \[C\]): one jump between epochs 39 and
 /// 40, Δd = −28.52, k = −1, misfit 0.7825, σ_Δ = 0.3843.
 ///
 /// # Examples
@@ -201,7 +201,7 @@ mod tests {
     use super::*;
     use crate::series::fit::test_series::{noise, t};
 
-    /// Appendix A WL-1 [C].
+    /// Appendix A WL-1 \[C\].
     #[test]
     fn wl1_wavelength() {
         let l = wavelength_mm(C_BAND_FREQUENCY_HZ);
@@ -214,7 +214,7 @@ mod tests {
         assert!(wavelength_mm(0.0).is_nan());
     }
 
-    /// Series E (insar-methods.md §5.12 [C]).
+    /// Series E (insar-methods.md §5.12 \[C\]).
     #[test]
     fn series_e_jump() {
         let lambda = wavelength_mm(C_BAND_FREQUENCY_HZ);
@@ -278,7 +278,7 @@ mod persistence_tests {
     #[test]
     fn single_epoch_spike_is_not_a_jump() {
         // A +15 mm spike at one epoch that returns to the trend is noise, not a λ/2 step
-        // (persistence rule, insar-methods §5.10 step 3 / §5.8 step model).
+        // (persistence rule, insar-methods.md §5.10 step 3 / §5.8 step model).
         let lambda = wavelength_mm(C_BAND_FREQUENCY_HZ);
         let mut d: Vec<f64> = (0..30).map(|i| -0.1 * i as f64).collect();
         d[15] += 15.0;

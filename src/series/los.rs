@@ -167,7 +167,7 @@ pub struct LosGeometry {
 /// Degrees clockwise from true north, in and out.
 ///
 /// # References
-/// insar-methods.md §1.3 (accept (−180, 180] or [0, 360) and normalise) [D].
+/// insar-methods.md §1.3 (accept (−180, 180] or [0, 360) and normalise) \[Rec\].
 ///
 /// # Examples
 /// ```
@@ -200,8 +200,8 @@ pub fn normalise_heading_deg(heading_deg: f64) -> f64 {
 /// positive towards the satellite.
 ///
 /// # References
-/// insar-methods.md §2.1 (derivation, [C]); same convention as the MintPy library
-/// (Yunjun, Fattahi & Amelung 2019) [S].
+/// insar-methods.md §2.1 (derivation, \[C\]); same convention as the MintPy library
+/// (Yunjun, Fattahi & Amelung 2019) \[S\].
 ///
 /// # Examples
 /// ```
@@ -242,7 +242,7 @@ pub fn unit_vector_from_angles(
 /// Degrees in; unit vector out (ENU, ground→satellite).
 ///
 /// # References
-/// insar-methods.md §2.1 (formula) and §2.4 (validation rules 3 and 4) [D].
+/// insar-methods.md §2.1 (formula) and §2.4 (validation rules 3 and 4) \[Rec\].
 ///
 /// Rule 3 of §2.4 is stated for right-looking sensors (ascending ⇒ `u_E < 0`, descending ⇒
 /// `u_E > 0`). For a declared left-looking sensor the expected signs are reversed (an ascending
@@ -286,7 +286,7 @@ pub fn los_from_angles(
 /// Dimensionless ENU components.
 ///
 /// # References
-/// insar-methods.md §2.3 (last rows) and §2.4 [D]; check value LOS-4 (Appendix A).
+/// insar-methods.md §2.3 (last rows) and §2.4 \[Rec\]; check value LOS-4 (Appendix A).
 ///
 /// # Examples
 /// ```
@@ -383,7 +383,7 @@ mod tests {
         a.iter().zip(b.iter()).all(|(x, y)| (x - y).abs() <= tol)
     }
 
-    /// insar-methods.md §2.5 table [C], 4-significant-figure values, tolerance ±1 in the 4th digit.
+    /// insar-methods.md §2.5 table \[C\], 4-significant-figure values, tolerance ±1 in the 4th digit.
     #[test]
     #[allow(clippy::approx_constant)] // 0.7071 is the table's cos 45°, kept as printed
     fn table_2_5_vectors() {
@@ -452,7 +452,7 @@ mod tests {
         }
     }
 
-    /// Appendix A LOS-1..3 and the six-digit vectors of §2.5 [C].
+    /// Appendix A LOS-1..3 and the six-digit vectors of §2.5 \[C\].
     #[test]
     fn appendix_a_los_1_to_3() {
         let u1 = unit_vector_from_angles(39.0, -12.0, LookSide::Right).unwrap();
@@ -468,7 +468,7 @@ mod tests {
         assert!(close3(u1, u1b, 1e-12));
     }
 
-    /// Appendix A LOS-4 [C]: negate a satellite→ground vector; reject an east-looking "descending".
+    /// Appendix A LOS-4 \[C\]: negate a satellite→ground vector; reject an east-looking "descending".
     #[test]
     fn appendix_a_los_4() {
         let g = los_from_enu([-0.634, 0.170, -0.755], LookSide::Right, Pass::Descending).unwrap();
@@ -484,7 +484,7 @@ mod tests {
         assert!(matches!(err, Err(LosError::PassMismatch { .. })));
     }
 
-    /// §2.1 limiting cases [C].
+    /// §2.1 limiting cases \[C\].
     #[test]
     fn limiting_cases_and_left_looking() {
         let north = unit_vector_from_angles(30.0, 0.0, LookSide::Right).unwrap();

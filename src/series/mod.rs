@@ -78,9 +78,9 @@ pub struct SeriesConfig {
     pub window_start: NaiveDate,
     /// Last day of the assessment window (inclusive).
     pub window_end: NaiveDate,
-    /// Minimum usable epochs in the window (insar-methods.md §6.4: 20 [M, P, D]).
+    /// Minimum usable epochs in the window (insar-methods.md §6.4: 20 \[M, P, Rec\]).
     pub min_epochs: usize,
-    /// Minimum span of usable epochs (years; §6.4: 1 [D]).
+    /// Minimum span of usable epochs (years; insar-methods.md §6.4: 1 \[Rec\]).
     pub min_span_yr: f64,
     /// Epochs of the structure aggregate with fewer points are marked and not fitted (default 3).
     pub min_points_per_epoch: usize,
@@ -303,7 +303,7 @@ pub struct RelativeMovement {
     pub vertical_velocity_mm_per_yr: f64,
     /// Its SE (mm/yr).
     pub se_vertical_velocity_mm_per_yr: Option<f64>,
-    /// "decomposed" or "projected (<geometry>)".
+    /// "decomposed" or "projected (`<geometry>`)".
     pub method: String,
     /// Geometries used.
     pub geometries: Vec<String>,
@@ -379,7 +379,7 @@ pub struct StructureSeries {
 ///   straight line's, and the fitted annual term is subtracted from the aggregate and from every
 ///   point before the period displacement is formed (a straight line over a span that is not a
 ///   whole number of years is biased by the seasonal signal, §5.4; local means at the window ends
-///   keep the seasonal phase difference between them). See [`deseasonalise`].
+///   keep the seasonal phase difference between them). See `deseasonalise`.
 pub fn analyse_structure(
     geoms: &[GeometryInput],
     surroundings: &[GeometryInput],
@@ -888,7 +888,7 @@ fn annual_term(a: &AnnualFit, t_yr: f64) -> f64 {
 ///
 /// # References
 /// insar-methods.md §5.4 (annual model, bias of a straight line), §5.6 (model selection),
-/// §5.11 (local means) [D].
+/// §5.11 (local means) \[D\].
 fn deseasonalise(
     gs: &mut GeometrySeries,
     input: &GeometryInput,
@@ -1493,7 +1493,7 @@ mod tests {
     type TestPoints = Vec<(Vec<f32>, [f64; 3])>;
 
     /// Five points whose LOS is u_U × a vertical series d(t), on 12-day dates from 1 January
-    /// (the time origin), so that t matches insar-methods §5.12 exactly.
+    /// (the time origin), so that t matches insar-methods.md §5.12 exactly.
     fn seasonal_structure(d: &[f64]) -> (Vec<NaiveDate>, TestPoints) {
         let origin = NaiveDate::from_ymd_opt(2020, 1, 1).unwrap();
         let dates: Vec<NaiveDate> = (0..d.len())
@@ -1504,7 +1504,7 @@ mod tests {
         (dates, (0..5).map(|_| (v.clone(), u)).collect())
     }
 
-    /// Series B (insar-methods §5.12 [C]): model comparison selects linear + annual, so the
+    /// Series B (insar-methods.md §5.12 \[C\]): model comparison selects linear + annual, so the
     /// headline velocity is that model's, −4.061 mm/yr (the linear-only −4.585 is 13 % off the
     /// true −4); its SE is the model's AR(1)-adjusted SE.
     #[test]

@@ -10,7 +10,7 @@ use serde::Serialize;
 use super::fit::{FitError, LinearFit, fit_linear};
 
 /// Number of epochs averaged at each end of the window by [`PeriodMethod::LocalMeans`]
-/// (insar-methods.md §5.11 [D]).
+/// (insar-methods.md §5.11 \[Rec\]).
 pub const LOCAL_MEAN_EPOCHS: usize = 3;
 
 /// Estimator of the period displacement.
@@ -105,7 +105,7 @@ fn noise_level(t: &[f64], d: &[f64]) -> Result<LinearFit, FitError> {
 /// Times in decimal years from the caller's origin, values mm, result mm.
 ///
 /// # References
-/// insar-methods.md §5.11 [D] (never two single noisy epochs); §5.3 for the AR(1) model.
+/// insar-methods.md §5.11 \[Rec\] (never two single noisy epochs); §5.3 for the AR(1) model.
 ///
 /// # Examples
 /// ```
@@ -176,7 +176,7 @@ pub fn period_displacement(
 /// Years, mm, mm/yr.
 ///
 /// # References
-/// insar-methods.md §5.2-5.3 [C, D].
+/// insar-methods.md §5.2-5.3 \[C, Rec\].
 ///
 /// Needs ≥ 3 valid epochs inside the window; NaN epochs are dropped.
 pub fn window_velocity(

@@ -49,7 +49,7 @@ pub struct VerticalProjection {
 /// result positive up. `unit_enu` ground→satellite.
 ///
 /// # References
-/// insar-methods.md §3.1 [C]; Fuhrmann & Garthwaite (2019) on the size of this error [S: abstract].
+/// insar-methods.md §3.1 \[C\]; Fuhrmann & Garthwaite (2019) on the size of this error \[S: abstract\].
 ///
 /// # Examples
 /// ```
@@ -123,7 +123,7 @@ mod tests {
         a[0] * b[0] + a[1] * b[1] + a[2] * b[2]
     }
 
-    /// Appendix A VP-1 and the descending half of the §3.1 worked example [C].
+    /// Appendix A VP-1 and the descending half of the §3.1 worked example \[C\].
     #[test]
     fn vp1_worked_example() {
         let ua = unit_vector_from_angles(39.0, -12.0, LookSide::Right).unwrap();
@@ -141,7 +141,7 @@ mod tests {
         assert!((err - 3.0 * pa.error_mm_per_mm_east).abs() < 1e-9);
     }
 
-    /// §3.1 error coefficients [C] and pure-east limiting case (5 mm east → −3.960 / +3.685).
+    /// §3.1 error coefficients \[C\] and pure-east limiting case (5 mm east → −3.960 / +3.685).
     #[test]
     fn error_coefficients() {
         for (theta, east, north) in [

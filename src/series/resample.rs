@@ -10,7 +10,7 @@ use chrono::NaiveDate;
 use serde::Serialize;
 
 /// Default longest gap between the two acquisitions used for an interpolation (days):
-/// 36 = 3 nominal 12-day revisits (insar-methods.md §4.7 [D]).
+/// 36 = 3 nominal 12-day revisits (insar-methods.md §4.7 \[Rec\]).
 pub const DEFAULT_MAX_GAP_DAYS: i64 = 36;
 
 /// Why two series could not be aligned.
@@ -82,7 +82,7 @@ fn check(which: &'static str, dates: &[NaiveDate], values: &[f64]) -> Result<(),
 /// Values in mm (any unit is carried through); dates as calendar days.
 ///
 /// # References
-/// insar-methods.md §4.7 option 2 [P, D].
+/// insar-methods.md §4.7 option 2 \[P, Rec\].
 ///
 /// Dates must be strictly increasing (not checked here; [`align_two`] checks).
 pub fn interpolate_at(
@@ -119,7 +119,7 @@ fn valid_range(dates: &[NaiveDate], values: &[f64]) -> Option<(NaiveDate, NaiveD
 /// mm; dates.
 ///
 /// # References
-/// insar-methods.md §4.6 (same reference epoch) and §4.7 option 2 [P, D]; check value RES-1
+/// insar-methods.md §4.6 (same reference epoch) and §4.7 option 2 \[P, Rec\]; check value RES-1
 /// (day 372: asc −7.341, desc −5.137 → (d_E, d_U) = (1.971, −7.885)).
 ///
 /// Interpolated values are correlated and smoothed: downstream significance tests on a series
@@ -179,7 +179,7 @@ mod tests {
         NaiveDate::from_ymd_opt(2020, 1, 1).unwrap() + chrono::Duration::days(n)
     }
 
-    /// insar-methods.md §4.7 worked example / Appendix A RES-1 [C].
+    /// insar-methods.md §4.7 worked example / Appendix A RES-1 \[C\].
     #[test]
     fn res1_day_372() {
         let (ve, vu) = (2.0, -8.0);

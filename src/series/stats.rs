@@ -3,8 +3,8 @@
 //! incomplete beta function).
 //!
 //! Owns no published relation of its own; the distribution functions follow the standard
-//! definitions (Abramowitz & Stegun 1964, 26.5 and 26.6 [M]) evaluated with the Lanczos
-//! log-gamma and a modified Lentz continued fraction (Press et al., Numerical Recipes, §6.4 [M]).
+//! definitions (Abramowitz & Stegun 1964, 26.5 and 26.6 \[M\]) evaluated with the Lanczos
+//! log-gamma and a modified Lentz continued fraction (Press et al., Numerical Recipes, §6.4 \[M\]).
 
 /// Median of the finite values of `x`; `None` if there are none.
 ///

@@ -74,7 +74,7 @@ pub const BENCH_SEED: u64 = 77_002_024;
 const PITCH_M: f64 = 40.0;
 /// Association buffer the points are placed for, m.
 const BUFFER_M: f64 = 5.0;
-/// Per-epoch noise, mm (coherence 0.85 ≈ 2.5 mm at C-band, insar-methods §6.1).
+/// Per-epoch noise, mm (coherence 0.85 ≈ 2.5 mm at C-band, insar-methods.md §6.1).
 const SIGMA_MM: f64 = 2.5;
 /// Coherence written for every benchmark point.
 const COHERENCE: f64 = 0.85;
@@ -149,8 +149,8 @@ fn push_cents(buf: &mut Vec<u8>, x_mm: f64) {
 /// buffer and 10 % ground points 6–7.5 m outside it (outside every buffer, since neighbours are
 /// at least 16 m away).
 ///
-/// Choice [D]: the tangent plane uses the radii at the grid origin even though the large grid
-/// spans ~6 km (error ≈ 0.2 m at its far corner, insar-methods §8.2); positions only need to be
+/// Choice \[Rec\]: the tangent plane uses the radii at the grid origin even though the large grid
+/// spans ~6 km (error ≈ 0.2 m at its far corner, insar-methods.md §8.2); positions only need to be
 /// consistent for a benchmark.
 pub fn write_bench(dir: &Path, size: BenchSize) -> Result<()> {
     let (n_struct, n_points, n_epochs) = size.dims();

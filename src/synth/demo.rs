@@ -55,8 +55,8 @@ fn date(y: i32, m: u32, d: u32) -> NaiveDate {
 /// Default per-geometry point plan from the footprint area: one good point per 30 m² (6–24),
 /// a quarter as many in the buffer (≥ 2), 2 low-coherence points and 5 ground points.
 ///
-/// Choice [D]: densities between medium-resolution C-band and high-resolution data
-/// (insar-methods §6.9), so the demo exercises every metric while staying small.
+/// Choice \[Rec\]: densities between medium-resolution C-band and high-resolution data
+/// (insar-methods.md §6.9), so the demo exercises every metric while staying small.
 fn plan_for(area_m2: f64) -> PointPlan {
     let inside = ((area_m2 / 30.0).round() as usize).clamp(6, 24);
     PointPlan {
@@ -114,8 +114,8 @@ impl Builder {
     /// Small, varied background movement of an ordinary structure: settlement −0.5 to 1.5 mm/yr,
     /// thermal semi-amplitude 0.06 mm per metre of height (≈ 0.4–2 mm), peak in late July.
     ///
-    /// Choice [D]: thermal amplitude growing with height follows insar-methods §6.7 (from memory
-    /// [M]); the 0.06 mm/m factor is a plausible invented value, not a published one.
+    /// Choice \[Rec\]: thermal amplitude growing with height follows insar-methods.md §6.7 (from memory
+    /// \[M\]); the 0.06 mm/m factor is a plausible invented value, not a published one.
     fn ordinary(&mut self, height_m: f64) -> Motion {
         Motion {
             settlement_rate_mm_per_yr: self.rng.random_range(-0.5..1.5),
@@ -1009,7 +1009,7 @@ mod tests {
         // of a rectangle, and the motion is linear, so both velocity truths are −2.3 mm/yr.
         assert!((tilt.period.vertical_velocity_mm_per_yr + 2.3).abs() < 1e-6);
         assert!((tilt.period.vertical_velocity_linear_fit_mm_per_yr + 2.3).abs() < 1e-6);
-        // Sagging: Δ/L = +7.6e-4 over L = 24, H = 8 (L/H 3): Fb 0.71667 (damage-relations §2.5)
+        // Sagging: Δ/L = +7.6e-4 over L = 24, H = 8 (L/H 3): Fb 0.71667 (damage-relations.md §2.5)
         // → ε_b = 1.0605e-3, category 2 (0.075-0.15 %).
         let sag = by(SAGGING_ID);
         let d = sag.damage.as_ref().expect("damage");

@@ -19,7 +19,7 @@ const WGS84_F: f64 = 1.0 / 298.257_223_563;
 /// Latitude in degrees; both radii in metres, returned as `(meridian_m, prime_vertical_m)`.
 ///
 /// # References
-/// insar-methods.md §8.2 (local tangent plane, computed check values [C], check GEO-2).
+/// insar-methods.md §8.2 (local tangent plane, computed check values \[C\], check GEO-2).
 ///
 /// # Examples
 /// ```
@@ -56,7 +56,7 @@ impl TownFrame {
     ///
     /// # References
     /// insar-methods.md §8.2: radii at the origin latitude err by at most 1.4 mm over 200 m at 52°
-    /// and 35 mm over 1 km [C]; the synthetic town spans under 1 km, so positions are exact to a few
+    /// and 35 mm over 1 km \[C\]; the synthetic town spans under 1 km, so positions are exact to a few
     /// centimetres, far below the metre-level geolocation of real points (§6.5).
     ///
     /// # Examples
@@ -92,7 +92,7 @@ impl TownFrame {
 /// Degrees in; dimensionless unit vector out.
 ///
 /// # References
-/// insar-methods.md §2.1 (derivation [C]) and §2.5 / Appendix A LOS-1, LOS-2.
+/// insar-methods.md §2.1 (derivation \[C\]) and §2.5 / Appendix A LOS-1, LOS-2.
 ///
 /// # Examples
 /// ```

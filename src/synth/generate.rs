@@ -187,7 +187,7 @@ fn assign_jumps(
                 ))
             })?;
         // The inside point with the highest coherence (first on ties): its noise is lowest, so the
-        // planted error stands out as clearly as in insar-methods §5.12 Series E.
+        // planted error stands out as clearly as in insar-methods.md §5.12 Series E.
         let p = points
             .iter_mut()
             .filter(|p| p.structure == Some(k) && p.role == PointRole::Inside)

@@ -13,8 +13,8 @@
 //! - [`model`]: the scenario and its noise-free displacement field;
 //! - [`generate`]: point placement and LOS series;
 //! - [`truth`]: planted period quantities and the expected damage category;
-//! - [`write`]: file writers;
-//! - [`demo`]: the demo portfolio; [`bench`]: large benchmark inputs, streamed.
+//! - [`mod@write`]: file writers;
+//! - [`demo`]: the demo portfolio; [`mod@bench`]: large benchmark inputs, streamed.
 
 pub mod bench;
 pub mod demo;

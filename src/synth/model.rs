@@ -38,7 +38,7 @@ impl StructureKind {
     /// E/G of the equivalent deep beam: 2.6 for isotropic masonry (ν = 0.3), 12.5 for frames.
     ///
     /// # References
-    /// damage-relations.md §2.4 (Burland & Wroth 1974, from memory [M]).
+    /// damage-relations.md §2.4 (Burland & Wroth 1974, from memory \[M\]).
     pub fn e_over_g(self) -> f64 {
         match self {
             StructureKind::Masonry => 2.6,
@@ -164,7 +164,7 @@ pub struct AlignmentPosition {
 }
 
 impl Trough {
-    /// Trough width i = K·z0, m (Peck 1969; damage-relations.md §7.1 eq. 7.5 [M]).
+    /// Trough width i = K·z0, m (Peck 1969; damage-relations.md §7.1 eq. 7.5 \[M\]).
     pub fn width_i_m(&self) -> f64 {
         self.k * self.axis_depth_m
     }
@@ -211,9 +211,9 @@ impl Trough {
     /// Fraction of the final transverse trough developed at `date` for a chainage:
     /// g = 1 − exp(−τ/τ_c) for τ > 0 days after the face passes, else 0.
     ///
-    /// Choice [D]: the longitudinal growth is modelled as a first-order approach to the final
+    /// Choice \[Rec\]: the longitudinal growth is modelled as a first-order approach to the final
     /// transverse trough after the face passes, a simple stand-in for the face-loss and
-    /// consolidation phases; it keeps the 12-day LOS change far below λ/4 (insar-methods §2.7).
+    /// consolidation phases; it keeps the 12-day LOS change far below λ/4 (insar-methods.md §2.7).
     pub fn development(&self, chainage_m: f64, date: NaiveDate) -> f64 {
         // A face that does not advance (speed ≤ 0) is taken to stand at chainage 0 only.
         let delay_days = if self.face_speed_m_per_day > 0.0 {
@@ -242,7 +242,7 @@ impl Trough {
     /// Returns `(settlement_mm (+ down), east_mm, north_mm)`.
     ///
     /// # References
-    /// damage-relations.md §7.1 eq. 7.1 and §7.2 (from memory [M] for the relations).
+    /// damage-relations.md §7.1 eq. 7.1 and §7.2 (from memory \[M\] for the relations).
     ///
     /// # Examples
     /// ```
@@ -313,7 +313,7 @@ impl Geometry {
 pub struct NoiseModel {
     /// When false, no random noise at all (values are exact projections of the planted motion).
     pub enabled: bool,
-    /// Coherence range of good points (σ per epoch follows from coherence, insar-methods §6.1).
+    /// Coherence range of good points (σ per epoch follows from coherence, insar-methods.md §6.1).
     pub good_coherence: (f64, f64),
     /// Coherence range of low-coherence points.
     pub low_coherence: (f64, f64),
@@ -360,7 +360,7 @@ impl NoiseModel {
     /// γ dimensionless in (0, 1]; mm out. γ outside (0, 1] returns NaN.
     ///
     /// # References
-    /// insar-methods.md §6.1 (γ ≈ exp(−σ_φ²/2) for Gaussian phase, derived [C]).
+    /// insar-methods.md §6.1 (γ ≈ exp(−σ_φ²/2) for Gaussian phase, derived \[C\]).
     ///
     /// # Examples
     /// ```

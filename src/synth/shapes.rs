@@ -120,7 +120,7 @@ impl Footprint {
 
     /// Principal axis from the second moments of area about the centroid:
     /// angle from east φ = ½·atan2(2S_xy, S_xx − S_yy), azimuth = 90° − φ
-    /// (insar-methods.md §7.7 [D]); extent from the vertices projected on it.
+    /// (insar-methods.md §7.7 \[Rec\]); extent from the vertices projected on it.
     ///
     /// Degenerate input (zero area) returns `None`.
     pub fn long_axis(&self) -> Option<LongAxis> {

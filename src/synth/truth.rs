@@ -12,7 +12,7 @@
 //! the trough included) between the default assessment window's start and end (the first and last
 //! common acquisition dates, as Plinth chooses them). Tilt and profile values are least-squares
 //! fits to that field sampled uniformly over the footprint: the population value of the plane fit
-//! (insar-methods §7.6) and of the quadratic smooth-fit profile (§7.7) under uniform point
+//! (insar-methods.md §7.6) and of the quadratic smooth-fit profile (§7.7) under uniform point
 //! coverage. For a planted rigid tilt and parabola they equal the planted values exactly; for the
 //! Gaussian trough they are what a uniformly sampled quadratic fit would give.
 
@@ -34,7 +34,7 @@ pub const POISSON_RATIO: f64 = 0.3;
 ///
 /// # References
 /// Boscardin & Cording (1989), Burland (1995): damage-relations.md §3.2 (confirmed in a secondary
-/// source [R]); boundary rule §3.3 (a value on a boundary goes to the more severe category).
+/// source \[R\]); boundary rule §3.3 (a value on a boundary goes to the more severe category).
 pub const CATEGORY_BOUNDARIES: [f64; 4] = [5.0e-4, 7.5e-4, 1.5e-3, 3.0e-3];
 
 /// Deep-beam factors (Fb, Fd) of Burland & Wroth for a zone, with ε_b = |Δ/L|/Fb, ε_d = |Δ/L|/Fd.
@@ -47,7 +47,7 @@ pub const CATEGORY_BOUNDARIES: [f64; 4] = [5.0e-4, 7.5e-4, 1.5e-3, 3.0e-3];
 ///
 /// # References
 /// Burland & Wroth (1974), central point load on a Timoshenko beam; dimensionless form of
-/// damage-relations.md §2.3 (derived [D]; original relations from memory [M]).
+/// damage-relations.md §2.3 (derived \[D\]; original relations from memory \[M\]).
 ///
 /// # Examples
 /// ```
@@ -639,7 +639,7 @@ pub fn build_truth(sc: &Scenario, generated: &Generated, designed: &[&str]) -> O
         scenario: sc.name.clone(),
         seed: sc.seed,
         conventions: vec![
-            "positions: town frame in metres, x = true east, y = true north; lon/lat via the local tangent plane (insar-methods §8.2)".into(),
+            "positions: town frame in metres, x = true east, y = true north; lon/lat via the local tangent plane (insar-methods.md §8.2)".into(),
             "settlement positive downward (mm); vertical velocity positive upward (mm/yr); LOS positive towards the satellite".into(),
             "period values: planted secular field (no seasonal term) between window.start and window.end".into(),
             "tilt and profile: least-squares plane and quadratic-along-the-long-axis fits to the field sampled uniformly over the footprint".into(),

@@ -99,7 +99,7 @@ fn rigidly_tilted_block_recovers_tilt_and_azimuth() {
 #[test]
 fn sagging_wall_line_recovers_deflection_ratio_and_category() {
     // 40 m × 4 m wall, H = 8 m; parabolic sag with Δ = 40 mm → Δ/L = 1.0e-3 (sagging).
-    // L/H = 5: Fb = 5/6 + 2.6/20 = 0.96333 (damage-relations §2.5 table), ε_b = 1.038e-3 → category 2
+    // L/H = 5: Fb = 5/6 + 2.6/20 = 0.96333 (damage-relations.md §2.5 table), ε_b = 1.038e-3 → category 2
     // (7.5e-4 ≤ ε < 1.5e-3, Boscardin & Cording 1989 / Burland 1995 thresholds).
     let (l, delta) = (40.0, 40.0);
     let (fx, p) = portfolio(
@@ -119,7 +119,7 @@ fn sagging_wall_line_recovers_deflection_ratio_and_category() {
 #[test]
 fn hogging_building_is_negative_and_categorised() {
     // 30 m × 10 m, H = 10 m; ends settle 18 mm more than the middle → Δ/L = −6e-4 (hogging).
-    // L/H = 3, hogging: Fb = 3/12 + 2.6/6 = 0.68333 (damage-relations §2.5), ε_b = 8.78e-4 → category 2.
+    // L/H = 3, hogging: Fb = 3/12 + 2.6/6 = 0.68333 (damage-relations.md §2.5), ε_b = 8.78e-4 → category 2.
     let (l, delta) = (30.0, 18.0);
     let (fx, p) = portfolio(
         vec![building("HOG", l, 10.0, 10.0)],

@@ -49,7 +49,7 @@ fn six(cx: f64) -> [(f64, f64); 6] {
 
 /// A block settling at 4 mm/yr with an annual swing 2.5·sin 2πt + 1.0·cos 2πt mm (vertical; t from
 /// 1 January, the run's time origin) over three years of 12-day acquisitions, noise 0.3 mm. The
-/// straight line over this window is biased by the seasonal term (insar-methods §5.4, §5.12
+/// straight line over this window is biased by the seasonal term (insar-methods.md §5.4, §5.12
 /// Series B: −4.585 against −4.061 with a larger noise); the headline must be the selected
 /// model's −4 within its SE, and the breakpoint test runs with the default B = 999.
 #[test]
@@ -97,7 +97,7 @@ fn seasonal_block_reports_the_selected_models_velocity() {
         .unwrap();
     assert!((v + 4.0).abs() < 4.0 * se, "v {v} ± {se}");
     // Also against the noise alone: white-noise SE of the velocity with an annual term,
-    // ≈ 0.3·√12/(3·√92) ≈ 0.036 mm/yr (insar-methods §5.2 rule of thumb); 4 SE ≈ 0.15. The
+    // ≈ 0.3·√12/(3·√92) ≈ 0.036 mm/yr (insar-methods.md §5.2 rule of thumb); 4 SE ≈ 0.15. The
     // straight line is 0.5 mm/yr off here (its own SE is inflated by the seasonal residuals).
     assert!((v + 4.0).abs() < 0.15, "v {v}");
     assert!(
@@ -194,7 +194,7 @@ fn grade_counts_the_epochs_of_the_datasets_a_structure_uses() {
 
 /// Twenty still blocks of six points each, white noise 0.4 mm per epoch over two years: the
 /// points' velocities agree within their own precision (SE ≈ 0.4·√12/(2·√61) ≈ 0.09 mm/yr,
-/// insar-methods §5.2), so none is an outlier — a bare MAD screen rejects good points in some of
+/// insar-methods.md §5.2), so none is an outlier — a bare MAD screen rejects good points in some of
 /// these blocks. A twenty-first block of eight points (2 × 4) has one inner point moving 3 mm/yr
 /// in LOS: that one is still rejected (noise-free, its plane residual is 4.2 robust σ out, hand-
 /// computed; with six points in 2 × 3 a single outlier leaks into the plane and stays below 3).

@@ -5,7 +5,7 @@
 
 use crate::fixture::*;
 
-/// Ascending (east-looking) and descending (west-looking) geometries of insar-methods Appendix A
+/// Ascending (east-looking) and descending (west-looking) geometries of insar-methods.md Appendix A
 /// (LOS-1 and LOS-2).
 const ASC: (f64, f64) = (39.0, -12.0);
 const DESC: (f64, f64) = (37.0, 192.0);
