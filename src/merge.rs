@@ -25,14 +25,7 @@ use crate::error::InputError;
 use crate::output::{self, guard};
 
 /// The files of an output folder that are merged rather than copied.
-pub const MERGED_FILES: [&str; 6] = [
-    "results.json",
-    "results.csv",
-    "results.geojson",
-    "points.csv",
-    "points.geojson",
-    "manifest.json",
-];
+pub const MERGED_FILES: &[&str] = guard::OUTPUT_FILES.split_at(guard::DATA_FILE_COUNT).0;
 
 fn read_json(path: &Path) -> Result<Value> {
     let text =

@@ -24,7 +24,12 @@ pub const FORMAT_KEY: &str = "format";
 /// The marker written into every `manifest.json` of an output folder.
 pub const FORMAT_MARKER: &str = "plinth-output-folder/1";
 
-/// The files Plinth writes at the top of an output folder (besides the `reports/` folder).
+/// How many of [`OUTPUT_FILES`], from the first, are the data files (`merge` merges these and
+/// copies the rest).
+pub const DATA_FILE_COUNT: usize = 6;
+
+/// The files Plinth writes at the top of an output folder (besides the `reports/` folder): the
+/// [`DATA_FILE_COUNT`] data files first, then the portfolio overview.
 pub const OUTPUT_FILES: [&str; 8] = [
     "results.json",
     "results.csv",

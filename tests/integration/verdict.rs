@@ -91,6 +91,31 @@ fn along(cx: f64, cy: f64, rot_deg: f64, s: &[f64], shift: f64) -> Vec<(f64, f64
         .collect()
 }
 
+/// An ascending (east-looking) and a descending (west-looking) dataset of 20 points each along
+/// a terrace rotated by `rot_deg`, moving by `f`, no reference drift.
+fn both_looks(f: &Field, rot_deg: f64) -> [FxDataset; 2] {
+    [
+        dataset(
+            "asc",
+            "ascending",
+            ASC,
+            &along(0.0, 0.0, rot_deg, &stations(), 0.0),
+            f,
+            0.0,
+            0,
+        ),
+        dataset(
+            "desc",
+            "descending",
+            DESC,
+            &along(0.0, 0.0, rot_deg, &stations(), 0.4),
+            f,
+            0.0,
+            50,
+        ),
+    ]
+}
+
 fn stations() -> Vec<f64> {
     (0..20).map(|i| -19.0 + 2.0 * i as f64).collect()
 }
@@ -159,24 +184,7 @@ fn two_same_look_tracks_give_no_east_west_and_a_category_from_bending() {
 fn building_at_45_degrees_has_no_horizontal_strain_and_says_so() {
     let rot = 45.0;
     let f = sag(45.0, rot);
-    let a = dataset(
-        "asc",
-        "ascending",
-        ASC,
-        &along(0.0, 0.0, rot, &stations(), 0.0),
-        &f,
-        0.0,
-        0,
-    );
-    let d = dataset(
-        "desc",
-        "descending",
-        DESC,
-        &along(0.0, 0.0, rot, &stations(), 0.4),
-        &f,
-        0.0,
-        50,
-    );
+    let [a, d] = both_looks(&f, rot);
     let fx = Fx::new();
     let p = fx.write_portfolio(&[terrace("D45", 0.0, 0.0, rot)], &[a, d], "");
     let r = run(&fx, &p);
@@ -203,24 +211,7 @@ fn east_west_building_recovers_a_planted_extension() {
     // East displacement growing by 0.1 mm per metre eastwards: ε_h = 1e-4 along the east–west
     // axis (hand-derived: Δu_E / Δx = 0.1 mm/m = 1e-4), no settlement beyond 2 mm uniform.
     let f = |e: f64, _n: f64| (2.0, 0.1 * e);
-    let a = dataset(
-        "asc",
-        "ascending",
-        ASC,
-        &along(0.0, 0.0, 0.0, &stations(), 0.0),
-        &f,
-        0.0,
-        0,
-    );
-    let d = dataset(
-        "desc",
-        "descending",
-        DESC,
-        &along(0.0, 0.0, 0.0, &stations(), 0.4),
-        &f,
-        0.0,
-        50,
-    );
+    let [a, d] = both_looks(&f, 0.0);
     let fx = Fx::new();
     let p = fx.write_portfolio(&[terrace("EW", 0.0, 0.0, 0.0)], &[a, d], "");
     let r = run(&fx, &p);
@@ -374,24 +365,7 @@ fn category_probabilities_sum_to_one_and_concentrate_on_a_clear_category() {
     // The terrace of the first test seen from both look directions: category 2 (ε_b = 1.168e-3,
     // 0.42e-3 from the next boundary against noise of 0.3 mm on 40 points).
     let f = sag(45.0, 0.0);
-    let a = dataset(
-        "asc",
-        "ascending",
-        ASC,
-        &along(0.0, 0.0, 0.0, &stations(), 0.0),
-        &f,
-        0.0,
-        0,
-    );
-    let d = dataset(
-        "desc",
-        "descending",
-        DESC,
-        &along(0.0, 0.0, 0.0, &stations(), 0.4),
-        &f,
-        0.0,
-        50,
-    );
+    let [a, d] = both_looks(&f, 0.0);
     let fx = Fx::new();
     let p = fx.write_portfolio(&[terrace("CLEAR", 0.0, 0.0, 0.0)], &[a, d], "");
     let r = run(&fx, &p);
