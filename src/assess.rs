@@ -9,6 +9,7 @@
 use std::collections::BTreeMap;
 
 use chrono::NaiveDate;
+use serde::Serialize;
 
 use crate::association::Role;
 use crate::ingest::{Dataset, PointRef, SeriesRef, Structure};
@@ -406,7 +407,7 @@ pub struct PointVerdict {
     /// Dataset index.
     pub dataset: usize,
     /// Point index in its dataset.
-    pub point_id: String,
+    pub point_index: usize,
     /// Role.
     pub role: Role,
     /// Rejection reason (None = kept).
@@ -596,7 +597,7 @@ pub fn screen_members(
         }
         verdicts.push(PointVerdict {
             dataset: m.dataset,
-            point_id: m.point.id().to_string(),
+            point_index: m.point_index,
             role: m.role,
             rejected,
             vertical_velocity_mm_per_yr: vv,
@@ -635,87 +636,256 @@ pub fn screen_members(
     (verdicts, period)
 }
 
-/// Assess one structure.
-pub fn assess_structure(
+/// Everything one structure's assessment produced: the compact record for results.json, the
+/// detail for `details/<stem>.json` and one screening verdict per member point.
+pub struct Assessment<'a> {
+    /// The compact per-structure record.
+    pub record: StructureResult,
+    /// The full detail (series, metrics, damage, grade inputs, works, per-point rows).
+    pub detail: StructureDetail<'a>,
+    /// One verdict per member point, in member order.
+    pub verdicts: Vec<PointVerdict>,
+}
+
+/// The per-structure detail file as written (`details/<stem>.json`, docs/formats.md); the
+/// reports read it back as [`crate::results::DetailRecord`]. Serialised straight from the stage
+/// outputs (no intermediate JSON tree).
+#[derive(Debug, Serialize)]
+pub struct StructureDetail<'a> {
+    /// Structure id.
+    pub id: String,
+    /// Time-series detail (structure series, fits, decomposition); null when no point passed
+    /// screening.
+    pub series: Option<crate::series::StructureSeries>,
+    /// Metrics detail (axes, profiles, zones, uncertainty); null when not assessed.
+    pub metrics: Option<crate::metrics::StructureMetrics>,
+    /// Damage detail (per-zone strains, screening flags, category probabilities).
+    pub damage: Option<DamageDetail>,
+    /// Evidence grade with its reasons and inputs.
+    pub grade: Option<GradeDetail>,
+    /// Works screening detail; null without `[works]`.
+    pub works: Option<crate::works::WorksScreening>,
+    /// One row per member point (structure and surroundings roles).
+    pub points: Vec<DetailPoint<'a>>,
+}
+
+/// Damage detail: the damage assessment plus the category probabilities.
+#[derive(Debug, Serialize)]
+pub struct DamageDetail {
+    /// The damage assessment on the supported zones.
+    #[serde(flatten)]
+    pub assessment: crate::damage::DamageAssessment,
+    /// Probability of each category from the Monte Carlo draws; null without a category.
+    pub category_probabilities: Option<crate::verdict::CategoryProbabilities>,
+}
+
+/// Evidence grade detail.
+#[derive(Debug, Serialize)]
+pub struct GradeDetail {
+    /// Grade name.
+    pub grade: String,
+    /// Why the grade is what it is.
+    pub reasons: Vec<String>,
+    /// The inputs the grade was decided from.
+    pub inputs: crate::grade::GradeInputs,
+}
+
+/// One member point of a structure in its detail file.
+#[derive(Debug, Serialize)]
+pub struct DetailPoint<'a> {
+    /// Dataset name.
+    pub dataset: &'a str,
+    /// Point id.
+    pub point_id: &'a str,
+    /// `structure` | `surroundings`.
+    pub role: &'static str,
+    /// Easting in the analysis CRS, m.
+    pub x: f64,
+    /// Northing in the analysis CRS, m.
+    pub y: f64,
+    /// `kept` | `rejected`.
+    pub status: &'static str,
+    /// Rejection reason (null when kept).
+    pub reason: Option<&'static str>,
+    /// Vertical velocity projected from LOS, mm/yr (+ up), when computed.
+    pub vertical_velocity_mm_per_yr: Option<f64>,
+}
+
+/// Assess one structure: a short sequence of stages, each handing the next a named struct
+/// (screening → series → sufficiency → metrics → damage → grade → works → record).
+pub fn assess_structure<'a>(
+    ctx: &RunContext<'a>,
+    s: &Structure,
+    members: &[Member<'a>],
+    report_file: Option<String>,
+) -> Assessment<'a> {
+    let mut screened = screening(ctx, s, members);
+    let series = series_stage(ctx, s, members, &mut screened);
+    let mut suff = sufficiency(ctx, &screened, &series);
+    let mut out = Filled::default();
+    let criteria_name = s
+        .raw
+        .criteria
+        .clone()
+        .unwrap_or_else(|| s.raw.structure_type.clone());
+    let mut detail = StructureDetail {
+        id: s.raw.id.clone(),
+        series: None,
+        metrics: None,
+        damage: None,
+        grade: None,
+        works: None,
+        points: detail_points(ctx, members, &screened.verdicts),
+    };
+    if suff.status == Status::Assessed {
+        let measured = measure(ctx, s, members, &screened, &series, &mut out, &mut suff);
+        detail.damage = damage_stage(
+            ctx,
+            s,
+            &measured.metrics,
+            &criteria_name,
+            &mut out,
+            &mut suff,
+        );
+        for r in &measured.metrics.refusals {
+            suff.assumptions.push(format!("metric not computed: {r}"));
+        }
+        detail.grade = Some(grade_stage(&measured, &mut out, &mut suff));
+        detail.metrics = Some(measured.metrics);
+    }
+    detail.series = series.series;
+    let works = works_stage(ctx, s, &criteria_name, &out, &detail, &mut suff);
+    let record = record(s, report_file, screened.n_rejected, suff, out, &works);
+    detail.works = works.detail;
+    Assessment {
+        record,
+        detail,
+        verdicts: screened.verdicts,
+    }
+}
+
+/// Screening stage output: one verdict per member, each member's period LOS displacement from
+/// the point statistics, and the rejections of the structure's own points by reason.
+struct Screened {
+    verdicts: Vec<PointVerdict>,
+    period: Vec<Option<(f64, f64)>>,
+    n_rejected: BTreeMap<String, usize>,
+}
+
+fn screening(ctx: &RunContext, s: &Structure, members: &[Member]) -> Screened {
+    let (verdicts, period) = screen_members(ctx, s, members);
+    let mut n_rejected: BTreeMap<String, usize> = BTreeMap::new();
+    for v in &verdicts {
+        if let (Some(r), Role::Structure) = (v.rejected, v.role) {
+            *n_rejected.entry(r.to_string()).or_default() += 1;
+        }
+    }
+    Screened {
+        verdicts,
+        period,
+        n_rejected,
+    }
+}
+
+/// Series stage output: the structure's time series (None when no point passed screening) and
+/// each member's period LOS displacement from the series stage.
+struct SeriesStage {
+    series: Option<crate::series::StructureSeries>,
+    point_period: Vec<Option<(f64, f64)>>,
+}
+
+/// Time series per geometry of the points that passed screening: aggregate, decomposition,
+/// fits, jumps (insar-methods.md §4–5). Points with an unwrapping jump are rejected here.
+fn series_stage(
     ctx: &RunContext,
     s: &Structure,
     members: &[Member],
-    report_file: Option<String>,
-) -> (StructureResult, Vec<PointVerdict>) {
+    screened: &mut Screened,
+) -> SeriesStage {
     let a = &ctx.portfolio.assessment;
-    let mut n_rejected: BTreeMap<String, usize> = BTreeMap::new();
-    let mut assumptions: Vec<String> = Vec::new();
-    let mut reasons: Vec<String> = Vec::new();
-
-    let (mut verdicts, period) = screen_members(ctx, s, members);
-    for v in &verdicts {
-        if let Some(r) = v.rejected {
-            if v.role == Role::Structure {
-                *n_rejected.entry(r.to_string()).or_default() += 1;
-            }
-        }
-    }
-    // Time series per geometry of the points that passed screening: aggregate, decomposition,
-    // fits, jumps (insar-methods.md §4–5). Points with an unwrapping jump are rejected here.
-    let mut ser: Option<crate::series::StructureSeries> = None;
+    let verdicts = &mut screened.verdicts;
     let mut point_period: Vec<Option<(f64, f64)>> = vec![None; verdicts.len()];
-    {
-        let mut by_ds: BTreeMap<usize, Vec<usize>> = BTreeMap::new(); // dataset -> verdict idx
-        let mut sur_by_ds: BTreeMap<usize, Vec<usize>> = BTreeMap::new();
-        for (i, v) in verdicts.iter().enumerate() {
-            if v.rejected.is_none() {
-                match v.role {
-                    Role::Structure => by_ds.entry(v.dataset).or_default().push(i),
-                    Role::Surroundings => sur_by_ds.entry(v.dataset).or_default().push(i),
-                }
+    let mut by_ds: BTreeMap<usize, Vec<usize>> = BTreeMap::new(); // dataset -> verdict idx
+    let mut sur_by_ds: BTreeMap<usize, Vec<usize>> = BTreeMap::new();
+    for (i, v) in verdicts.iter().enumerate() {
+        if v.rejected.is_none() {
+            match v.role {
+                Role::Structure => by_ds.entry(v.dataset).or_default().push(i),
+                Role::Surroundings => sur_by_ds.entry(v.dataset).or_default().push(i),
             }
-        }
-        if !by_ds.is_empty() {
-            let mk = |map: &BTreeMap<usize, Vec<usize>>| -> Vec<crate::series::GeometryInput> {
-                map.iter()
-                    .map(|(di, idxs)| crate::series::GeometryInput {
-                        name: &ctx.datasets[*di].name,
-                        pass: series_pass(ctx.portfolio.datasets[*di].pass),
-                        epochs: &ctx.datasets[*di].epochs,
-                        points: idxs
-                            .iter()
-                            .map(|i| crate::series::PointSeries {
-                                values_mm: members[*i].point.series(),
-                                unit_enu: point_unit(ctx, &members[*i]),
-                            })
-                            .collect(),
-                    })
-                    .collect()
-            };
-            let geoms = mk(&by_ds);
-            let surr = mk(&sur_by_ds);
-            let mut scfg = crate::series::SeriesConfig::new(ctx.window.start, ctx.window.end);
-            scfg.min_epochs = a.min_epochs;
-            scfg.min_span_yr = a.min_span_years;
-            scfg.wavelength_mm =
-                ctx.portfolio.datasets[*by_ds.keys().next().unwrap_or(&0)].wavelength_mm;
-            scfg.bootstrap_draws = a.bootstrap_draws;
-            scfg.max_condition_number = a.max_condition_number;
-            scfg.seed = a.seed ^ fnv(&s.raw.id);
-            let out_s = crate::series::analyse_structure(&geoms, &surr, &scfg);
-            for (g, idxs) in out_s.geometries.iter().zip(by_ds.values()) {
-                for pr in &g.points {
-                    let Some(&vi) = idxs.get(pr.index) else {
-                        continue;
-                    };
-                    if !pr.jumps.is_empty() && pr.excluded_from_aggregate {
-                        verdicts[vi].rejected = Some(reason::UNWRAPPING_JUMP);
-                        *n_rejected
-                            .entry(reason::UNWRAPPING_JUMP.to_string())
-                            .or_default() += 1;
-                    } else if let Some(pd) = &pr.period_los {
-                        point_period[vi] = Some((pd.displacement_mm, pd.sigma_mm));
-                    }
-                }
-            }
-            ser = Some(out_s);
         }
     }
+    if by_ds.is_empty() {
+        return SeriesStage {
+            series: None,
+            point_period,
+        };
+    }
+    let mk = |map: &BTreeMap<usize, Vec<usize>>| -> Vec<crate::series::GeometryInput> {
+        map.iter()
+            .map(|(di, idxs)| crate::series::GeometryInput {
+                name: &ctx.datasets[*di].name,
+                pass: series_pass(ctx.portfolio.datasets[*di].pass),
+                epochs: &ctx.datasets[*di].epochs,
+                points: idxs
+                    .iter()
+                    .map(|i| crate::series::PointSeries {
+                        values_mm: members[*i].point.series(),
+                        unit_enu: point_unit(ctx, &members[*i]),
+                    })
+                    .collect(),
+            })
+            .collect()
+    };
+    let geoms = mk(&by_ds);
+    let surr = mk(&sur_by_ds);
+    let mut scfg = crate::series::SeriesConfig::new(ctx.window.start, ctx.window.end);
+    scfg.min_epochs = a.min_epochs;
+    scfg.min_span_yr = a.min_span_years;
+    scfg.wavelength_mm = ctx.portfolio.datasets[*by_ds.keys().next().unwrap_or(&0)].wavelength_mm;
+    scfg.bootstrap_draws = a.bootstrap_draws;
+    scfg.max_condition_number = a.max_condition_number;
+    scfg.seed = a.seed ^ fnv(&s.raw.id);
+    let out_s = crate::series::analyse_structure(&geoms, &surr, &scfg);
+    for (g, idxs) in out_s.geometries.iter().zip(by_ds.values()) {
+        for pr in &g.points {
+            let Some(&vi) = idxs.get(pr.index) else {
+                continue;
+            };
+            if !pr.jumps.is_empty() && pr.excluded_from_aggregate {
+                verdicts[vi].rejected = Some(reason::UNWRAPPING_JUMP);
+                *screened
+                    .n_rejected
+                    .entry(reason::UNWRAPPING_JUMP.to_string())
+                    .or_default() += 1;
+            } else if let Some(pd) = &pr.period_los {
+                point_period[vi] = Some((pd.displacement_mm, pd.sigma_mm));
+            }
+        }
+    }
+    SeriesStage {
+        series: Some(out_s),
+        point_period,
+    }
+}
+
+/// Sufficiency stage output: the status with its reasons, the assumptions so far, and the
+/// counts the record and the grade need.
+struct Sufficiency {
+    status: Status,
+    reasons: Vec<String>,
+    assumptions: Vec<String>,
+    n_points: usize,
+    n_surroundings: usize,
+    datasets: Vec<String>,
+    n_window_epochs: usize,
+    series_span_yr: Option<f64>,
+}
+
+/// Decide whether the structure meets the minimums (points, epochs, span, series).
+fn sufficiency(ctx: &RunContext, screened: &Screened, series: &SeriesStage) -> Sufficiency {
+    let a = &ctx.portfolio.assessment;
+    let verdicts = &screened.verdicts;
     let kept: Vec<&PointVerdict> = verdicts
         .iter()
         .filter(|v| v.role == Role::Structure && v.rejected.is_none())
@@ -731,7 +901,6 @@ pub fn assess_structure(
         .collect();
     datasets.sort();
     datasets.dedup();
-
     let used_ds: Vec<usize> = {
         let mut v: Vec<usize> = kept.iter().map(|v| v.dataset).collect();
         v.sort_unstable();
@@ -739,6 +908,7 @@ pub fn assess_structure(
         v
     };
     let (n_window_epochs, series_span_yr) = series_extent(ctx, &used_ds);
+    let mut reasons = Vec::new();
     if n_points == 0 {
         reasons.push("no measurement points kept on the structure".into());
     } else if n_points < a.min_points {
@@ -760,7 +930,7 @@ pub fn assess_structure(
             a.min_span_years
         ));
     }
-    if let Some(sr) = &ser {
+    if let Some(sr) = &series.series {
         if !sr.status.sufficient && reasons.is_empty() {
             for r in &sr.status.reasons {
                 reasons.push(format!("time series insufficient: {r}"));
@@ -772,6 +942,7 @@ pub fn assess_structure(
     } else {
         Status::InsufficientData
     };
+    let mut assumptions = Vec::new();
     if datasets.len() == 1 {
         assumptions.push(
             "one viewing geometry: vertical movement assumes no horizontal motion (d_v = d_LOS / cos θ)"
@@ -781,226 +952,338 @@ pub fn assess_structure(
     if status == Status::Assessed {
         reasons.push("minimums met".into());
     }
-    let mut out = Filled::default();
-    let criteria_name = s
-        .raw
-        .criteria
-        .clone()
-        .unwrap_or_else(|| s.raw.structure_type.clone());
-    if status == Status::Assessed {
-        let sr = ser.as_ref();
-        out.mean_vertical_mm = sr.and_then(|x| x.mean_vertical_mm);
-        out.mean_east_mm = sr.and_then(|x| x.mean_east_mm);
-        out.vertical_velocity_mm_per_yr = sr.and_then(|x| x.vertical_velocity_mm_per_yr);
-        out.vertical_velocity_se_mm_per_yr = sr.and_then(|x| x.se_vertical_velocity_mm_per_yr);
-        out.east_velocity_mm_per_yr = sr.and_then(|x| x.east_velocity_mm_per_yr);
-        out.east_velocity_se_mm_per_yr = sr.and_then(|x| x.se_east_velocity_mm_per_yr);
-        if let Some(x) = sr {
-            assumptions.extend(x.assumptions.iter().cloned());
-        }
-        let east_mm = out.mean_east_mm;
-        if east_mm.is_some() {
-            assumptions.push(
-                "per-point vertical displacement corrected for the structure's mean east–west displacement (both geometries); north–south motion neglected".into(),
-            );
-        }
-        // Per-point period settlement in the structure's local frame (insar-methods.md §7.4).
-        let mut mpts = Vec::new();
-        let mut coh_sum = 0.0;
-        let mut coh_n = 0usize;
-        for (i, (m, v)) in members.iter().zip(&verdicts).enumerate() {
-            if v.role != Role::Structure || v.rejected.is_some() {
-                continue;
-            }
-            if let Some(c) = m.point.coherence() {
-                coh_sum += c as f64;
-                coh_n += 1;
-            }
-            let Some((d_los, sigma)) = point_period[i].or(period[i]) else {
-                continue;
-            };
-            let u = point_unit(ctx, m);
-            let (x, y) = s.frame.to_local(m.point.x(), m.point.y());
-            let d_v = (d_los - u[0] * east_mm.unwrap_or(0.0)) / u[2];
-            mpts.push(crate::metrics::MetricPoint {
-                x_m: x,
-                y_m: y,
-                settlement_mm: -d_v,
-                sigma_mm: sigma / u[2],
-                geometry: m.dataset,
-                los_mm: d_los,
-                unit_enu: u,
-            });
-        }
-        assumptions.extend(reference_note(ctx, &mpts));
-        let mcfg = crate::metrics::MetricsConfig {
-            monte_carlo_draws: a.monte_carlo_draws,
-            seed: a.seed ^ fnv(&s.raw.id),
-            strain_max_condition: a.max_condition_number,
-            strain_axis_max_angle_deg: a.strain_axis_max_angle_deg,
-            ..Default::default()
-        };
-        let met =
-            crate::metrics::structure_metrics(&mpts, &s.footprint_local, s.raw.height_m, &mcfg);
-        out.settlement_mm = met.settlement_mm;
-        out.differential_settlement_mm = met.differential_settlement_mm;
-        if out.mean_vertical_mm.is_none() {
-            out.mean_vertical_mm = met.mean_settlement_mm.map(|x| -x);
-        }
-        out.tilt = met.tilt;
-        out.tilt_se = met.tilt_se;
-        out.deflection_ratio_se = met
-            .uncertainty
-            .as_ref()
-            .and_then(|u| u.deflection_ratio.as_ref())
-            .map(|sp| sp.se);
-        out.angular_distortion_se = met
-            .uncertainty
-            .as_ref()
-            .and_then(|u| u.angular_distortion.as_ref())
-            .map(|sp| sp.se);
-        out.tilt_azimuth_deg = met.tilt_azimuth_deg;
-        out.horizontal_strain = met.horizontal_strain;
-        out.look_directions = met
-            .look_directions
-            .iter()
-            .map(|l| l.label().to_string())
-            .collect();
-        match ctx.criteria.get(&criteria_name) {
-            Ok(set) => {
-                let v = crate::verdict::judge(&crate::verdict::VerdictInput {
-                    metrics: &met,
-                    set,
-                    height_m: s.raw.height_m,
-                    seed: a.seed ^ fnv(&s.raw.id),
-                });
-                let dmg = &v.damage;
-                out.deflection_ratio = v.deflection_ratio;
-                out.angular_distortion = v.angular_distortion;
-                out.governing_strain = dmg.governing_strain;
-                out.damage_category = dmg.category.map(|c| c.number());
-                out.damage_category_name = dmg.category.map(|c| c.label().to_string());
-                out.damage_route = Some(match &dmg.governing {
-                    Some(g) => format!("{} ({})", set.route.label(), branch_label(g.branch)),
-                    None => set.route.label().to_string(),
-                });
-                out.criteria_set = Some(set.name.clone());
-                if dmg.category.is_none() {
-                    for r in &dmg.category_reasons {
-                        reasons.push(format!("damage category not computed: {r}"));
-                    }
-                }
-                assumptions.extend(dmg.assumptions.iter().cloned());
-                out.horizontal_strain_status = Some(v.horizontal_strain_status.key().to_string());
-                out.category_lower_bound = dmg.category.map(|_| v.category_lower_bound);
-                if v.category_lower_bound {
-                    assumptions.push(lower_bound_note(v.horizontal_strain_status));
-                }
-                out.probabilities = v.probabilities.clone();
-                out.damage = serde_json::to_value(dmg).unwrap_or_default();
-                if let Some(p) = &v.probabilities {
-                    if let Some(o) = out.damage.as_object_mut() {
-                        o.insert(
-                            "category_probabilities".into(),
-                            serde_json::to_value(p).unwrap_or_default(),
-                        );
-                    }
-                }
-            }
-            Err(e) => reasons.push(format!("damage category not computed: {e}")),
-        }
-        for r in &met.refusals {
-            assumptions.push(format!("metric not computed: {r}"));
-        }
-        // Evidence grade (grade.rs): the stated category's probability decides how certain it is.
-        let certainty = out
-            .damage_category
-            .zip(out.probabilities.as_ref())
-            .map(|(c, p)| crate::grade::CategoryCertainty {
-                category: c,
-                probability: p.of(c),
-                probability_higher: p.above(c),
-            });
-        let gi = crate::grade::GradeInputs::from_metrics(
-            &met,
-            Some(n_window_epochs),
-            series_span_yr,
-            (coh_n > 0).then(|| coh_sum / coh_n as f64),
-            certainty,
-        );
-        let (g, why) = crate::grade::grade(&gi, &crate::grade::GradeThresholds::default());
-        if g == crate::grade::Grade::Insufficient && out.damage_category.is_some() {
-            reasons
-                .push("damage category withheld: the evidence grade is insufficient".to_string());
-            out.damage_category = None;
-            out.damage_category_name = None;
-            out.governing_strain = None;
-            out.probabilities = None;
-            out.category_lower_bound = None;
-        }
-        out.evidence_grade = Some(g.name().to_string());
-        out.grade = serde_json::json!({"grade": g.name(), "reasons": why, "inputs": gi});
-        out.metrics = serde_json::to_value(&met).unwrap_or_default();
-    }
-    // ---- Screening near planned works (src/works) -------------------------------------------
-    // Predictions never change the measured fields above; they fill only the works fields.
-    let mut works_out = WorksOut::default();
-    if let Some(w) = &ctx.works {
-        let observed = crate::works::Observed {
-            settlement_mm: out.settlement_mm,
-            tilt: out.tilt,
-            max_slope: match (out.tilt, out.angular_distortion) {
-                (Some(t), Some(b)) => Some(t + b),
-                (Some(t), None) => Some(t),
-                _ => None,
-            },
-            deflection_ratio: out.deflection_ratio,
-            damage_category: out.damage_category,
-            series: ser
-                .as_ref()
-                .and_then(|x| x.vertical.as_ref())
-                .map(|v| {
-                    v.dates
-                        .iter()
-                        .zip(&v.vertical_mm)
-                        .map(|(d, x)| (*d, x.map(|up| -up)))
-                        .collect()
-                })
-                .unwrap_or_default(),
-            unavailable_because: (status != Status::Assessed).then(|| reasons.join("; ")),
-        };
-        let input = crate::works::StructureInput {
-            id: &s.raw.id,
-            footprint: &s.footprint,
-            height_m: s.raw.height_m,
-            window_start: ctx.window.start,
-            window_end: ctx.window.end,
-            observed,
-        };
-        match ctx.criteria.get(&criteria_name) {
-            Ok(set) => match crate::works::screen_structure(w, &input, set) {
-                Ok(sc) => {
-                    works_out.predicted_settlement_mm = Some(sc.predicted_settlement_mm);
-                    works_out.predicted_category = sc.predicted_category;
-                    works_out.observed_to_predicted_settlement =
-                        sc.comparison.observed_to_predicted_settlement;
-                    works_out.detail = serde_json::to_value(&sc).unwrap_or_default();
-                }
-                Err(e) => assumptions.push(format!("works screening not computed: {e}")),
-            },
-            Err(e) => assumptions.push(format!("works screening not computed: {e}")),
-        }
-    }
-
-    let result = StructureResult {
-        id: s.raw.id.clone(),
-        name: s.raw.name.clone(),
+    Sufficiency {
         status,
-        status_reasons: reasons,
+        reasons,
+        assumptions,
         n_points,
-        n_rejected,
         n_surroundings,
         datasets,
+        n_window_epochs,
+        series_span_yr,
+    }
+}
+
+/// Metrics stage output.
+struct Measured {
+    metrics: crate::metrics::StructureMetrics,
+    /// Mean coherence of the kept structure points (None without coherence).
+    coherence_mean: Option<f64>,
+}
+
+/// Velocities from the series, per-point period settlement in the structure's local frame
+/// (insar-methods.md §7.4) and the structure metrics.
+fn measure(
+    ctx: &RunContext,
+    s: &Structure,
+    members: &[Member],
+    screened: &Screened,
+    series: &SeriesStage,
+    out: &mut Filled,
+    suff: &mut Sufficiency,
+) -> Measured {
+    let a = &ctx.portfolio.assessment;
+    let sr = series.series.as_ref();
+    out.mean_vertical_mm = sr.and_then(|x| x.mean_vertical_mm);
+    out.mean_east_mm = sr.and_then(|x| x.mean_east_mm);
+    out.vertical_velocity_mm_per_yr = sr.and_then(|x| x.vertical_velocity_mm_per_yr);
+    out.vertical_velocity_se_mm_per_yr = sr.and_then(|x| x.se_vertical_velocity_mm_per_yr);
+    out.east_velocity_mm_per_yr = sr.and_then(|x| x.east_velocity_mm_per_yr);
+    out.east_velocity_se_mm_per_yr = sr.and_then(|x| x.se_east_velocity_mm_per_yr);
+    if let Some(x) = sr {
+        suff.assumptions.extend(x.assumptions.iter().cloned());
+    }
+    let east_mm = out.mean_east_mm;
+    if east_mm.is_some() {
+        suff.assumptions.push(
+            "per-point vertical displacement corrected for the structure's mean east–west displacement (both geometries); north–south motion neglected".into(),
+        );
+    }
+    let mut mpts = Vec::new();
+    let mut coh_sum = 0.0;
+    let mut coh_n = 0usize;
+    for (i, (m, v)) in members.iter().zip(&screened.verdicts).enumerate() {
+        if v.role != Role::Structure || v.rejected.is_some() {
+            continue;
+        }
+        if let Some(c) = m.point.coherence() {
+            coh_sum += c as f64;
+            coh_n += 1;
+        }
+        let Some((d_los, sigma)) = series.point_period[i].or(screened.period[i]) else {
+            continue;
+        };
+        let u = point_unit(ctx, m);
+        let (x, y) = s.frame.to_local(m.point.x(), m.point.y());
+        let d_v = (d_los - u[0] * east_mm.unwrap_or(0.0)) / u[2];
+        mpts.push(crate::metrics::MetricPoint {
+            x_m: x,
+            y_m: y,
+            settlement_mm: -d_v,
+            sigma_mm: sigma / u[2],
+            geometry: m.dataset,
+            los_mm: d_los,
+            unit_enu: u,
+        });
+    }
+    suff.assumptions.extend(reference_note(ctx, &mpts));
+    let mcfg = crate::metrics::MetricsConfig {
+        monte_carlo_draws: a.monte_carlo_draws,
+        seed: a.seed ^ fnv(&s.raw.id),
+        strain_max_condition: a.max_condition_number,
+        strain_axis_max_angle_deg: a.strain_axis_max_angle_deg,
+        ..Default::default()
+    };
+    let met = crate::metrics::structure_metrics(&mpts, &s.footprint_local, s.raw.height_m, &mcfg);
+    out.settlement_mm = met.settlement_mm;
+    out.differential_settlement_mm = met.differential_settlement_mm;
+    if out.mean_vertical_mm.is_none() {
+        out.mean_vertical_mm = met.mean_settlement_mm.map(|x| -x);
+    }
+    out.tilt = met.tilt;
+    out.tilt_se = met.tilt_se;
+    out.deflection_ratio_se = met
+        .uncertainty
+        .as_ref()
+        .and_then(|u| u.deflection_ratio.as_ref())
+        .map(|sp| sp.se);
+    out.angular_distortion_se = met
+        .uncertainty
+        .as_ref()
+        .and_then(|u| u.angular_distortion.as_ref())
+        .map(|sp| sp.se);
+    out.tilt_azimuth_deg = met.tilt_azimuth_deg;
+    out.horizontal_strain = met.horizontal_strain;
+    out.look_directions = met
+        .look_directions
+        .iter()
+        .map(|l| l.label().to_string())
+        .collect();
+    Measured {
+        metrics: met,
+        coherence_mean: (coh_n > 0).then(|| coh_sum / coh_n as f64),
+    }
+}
+
+/// The damage verdict (`verdict::judge`) with the structure's criteria set; None when the set
+/// is unknown (the reason joins the status reasons).
+fn damage_stage(
+    ctx: &RunContext,
+    s: &Structure,
+    met: &crate::metrics::StructureMetrics,
+    criteria_name: &str,
+    out: &mut Filled,
+    suff: &mut Sufficiency,
+) -> Option<DamageDetail> {
+    let a = &ctx.portfolio.assessment;
+    let set = match ctx.criteria.get(criteria_name) {
+        Ok(set) => set,
+        Err(e) => {
+            suff.reasons
+                .push(format!("damage category not computed: {e}"));
+            return None;
+        }
+    };
+    let v = crate::verdict::judge(&crate::verdict::VerdictInput {
+        metrics: met,
+        set,
+        height_m: s.raw.height_m,
+        seed: a.seed ^ fnv(&s.raw.id),
+    });
+    let dmg = v.damage;
+    out.deflection_ratio = v.deflection_ratio;
+    out.angular_distortion = v.angular_distortion;
+    out.governing_strain = dmg.governing_strain;
+    out.damage_category = dmg.category.map(|c| c.number());
+    out.damage_category_name = dmg.category.map(|c| c.label().to_string());
+    out.damage_route = Some(match &dmg.governing {
+        Some(g) => format!("{} ({})", set.route.label(), branch_label(g.branch)),
+        None => set.route.label().to_string(),
+    });
+    out.criteria_set = Some(set.name.clone());
+    if dmg.category.is_none() {
+        for r in &dmg.category_reasons {
+            suff.reasons
+                .push(format!("damage category not computed: {r}"));
+        }
+    }
+    suff.assumptions.extend(dmg.assumptions.iter().cloned());
+    out.horizontal_strain_status = Some(v.horizontal_strain_status.key().to_string());
+    out.category_lower_bound = dmg.category.map(|_| v.category_lower_bound);
+    if v.category_lower_bound {
+        suff.assumptions
+            .push(lower_bound_note(v.horizontal_strain_status));
+    }
+    out.probabilities = v.probabilities.clone();
+    Some(DamageDetail {
+        assessment: dmg,
+        category_probabilities: v.probabilities,
+    })
+}
+
+/// Evidence grade (grade.rs): the stated category's probability decides how certain it is; an
+/// insufficient grade withholds the category.
+fn grade_stage(measured: &Measured, out: &mut Filled, suff: &mut Sufficiency) -> GradeDetail {
+    let certainty = out
+        .damage_category
+        .zip(out.probabilities.as_ref())
+        .map(|(c, p)| crate::grade::CategoryCertainty {
+            category: c,
+            probability: p.of(c),
+            probability_higher: p.above(c),
+        });
+    let gi = crate::grade::GradeInputs::from_metrics(
+        &measured.metrics,
+        Some(suff.n_window_epochs),
+        suff.series_span_yr,
+        measured.coherence_mean,
+        certainty,
+    );
+    let (g, why) = crate::grade::grade(&gi, &crate::grade::GradeThresholds::default());
+    if g == crate::grade::Grade::Insufficient && out.damage_category.is_some() {
+        suff.reasons
+            .push("damage category withheld: the evidence grade is insufficient".to_string());
+        out.damage_category = None;
+        out.damage_category_name = None;
+        out.governing_strain = None;
+        out.probabilities = None;
+        out.category_lower_bound = None;
+    }
+    out.evidence_grade = Some(g.name().to_string());
+    out.evidence_grade_reasons = why.clone();
+    GradeDetail {
+        grade: g.name().to_string(),
+        reasons: why,
+        inputs: gi,
+    }
+}
+
+/// Values filled by the works screening (`src/works`).
+#[derive(Default)]
+struct WorksOut {
+    predicted_settlement_mm: Option<f64>,
+    predicted_category: Option<u8>,
+    observed_to_predicted_settlement: Option<f64>,
+    detail: Option<crate::works::WorksScreening>,
+}
+
+/// Screening near planned works: predictions never change the measured fields, they fill only
+/// the works fields.
+fn works_stage(
+    ctx: &RunContext,
+    s: &Structure,
+    criteria_name: &str,
+    out: &Filled,
+    detail: &StructureDetail,
+    suff: &mut Sufficiency,
+) -> WorksOut {
+    let mut works_out = WorksOut::default();
+    let Some(w) = &ctx.works else {
+        return works_out;
+    };
+    let observed = crate::works::Observed {
+        settlement_mm: out.settlement_mm,
+        tilt: out.tilt,
+        max_slope: match (out.tilt, out.angular_distortion) {
+            (Some(t), Some(b)) => Some(t + b),
+            (Some(t), None) => Some(t),
+            _ => None,
+        },
+        deflection_ratio: out.deflection_ratio,
+        damage_category: out.damage_category,
+        series: detail
+            .series
+            .as_ref()
+            .and_then(|x| x.vertical.as_ref())
+            .map(|v| {
+                v.dates
+                    .iter()
+                    .zip(&v.vertical_mm)
+                    .map(|(d, x)| (*d, x.map(|up| -up)))
+                    .collect()
+            })
+            .unwrap_or_default(),
+        unavailable_because: (suff.status != Status::Assessed).then(|| suff.reasons.join("; ")),
+    };
+    let input = crate::works::StructureInput {
+        id: &s.raw.id,
+        footprint: &s.footprint,
+        height_m: s.raw.height_m,
+        window_start: ctx.window.start,
+        window_end: ctx.window.end,
+        observed,
+    };
+    match ctx.criteria.get(criteria_name) {
+        Ok(set) => match crate::works::screen_structure(w, &input, set) {
+            Ok(sc) => {
+                works_out.predicted_settlement_mm = Some(sc.predicted_settlement_mm);
+                works_out.predicted_category = sc.predicted_category;
+                works_out.observed_to_predicted_settlement =
+                    sc.comparison.observed_to_predicted_settlement;
+                works_out.detail = Some(sc);
+            }
+            Err(e) => suff
+                .assumptions
+                .push(format!("works screening not computed: {e}")),
+        },
+        Err(e) => suff
+            .assumptions
+            .push(format!("works screening not computed: {e}")),
+    }
+    works_out
+}
+
+/// The detail file's per-point rows, one per member.
+fn detail_points<'a>(
+    ctx: &RunContext<'a>,
+    members: &[Member<'a>],
+    verdicts: &[PointVerdict],
+) -> Vec<DetailPoint<'a>> {
+    members
+        .iter()
+        .zip(verdicts)
+        .map(|(m, v)| DetailPoint {
+            dataset: ctx.datasets[m.dataset].name.as_str(),
+            point_id: m.point.id(),
+            role: match m.role {
+                Role::Structure => "structure",
+                Role::Surroundings => "surroundings",
+            },
+            x: m.point.x(),
+            y: m.point.y(),
+            status: if v.rejected.is_some() {
+                "rejected"
+            } else {
+                "kept"
+            },
+            reason: v.rejected,
+            vertical_velocity_mm_per_yr: v.vertical_velocity_mm_per_yr,
+        })
+        .collect()
+}
+
+/// The compact per-structure record (the detail goes to its own file).
+fn record(
+    s: &Structure,
+    report_file: Option<String>,
+    n_rejected: BTreeMap<String, usize>,
+    suff: Sufficiency,
+    out: Filled,
+    works: &WorksOut,
+) -> StructureResult {
+    let probability = out
+        .damage_category
+        .zip(out.probabilities.as_ref())
+        .map(|(c, p)| (p.of(c), p.above(c)));
+    StructureResult {
+        id: s.raw.id.clone(),
+        name: s.raw.name.clone(),
+        status: suff.status,
+        status_reasons: suff.reasons,
+        n_points: suff.n_points,
+        n_rejected,
+        n_surroundings: suff.n_surroundings,
+        datasets: suff.datasets,
         settlement_mm: out.settlement_mm,
         differential_settlement_mm: out.differential_settlement_mm,
         mean_vertical_mm: out.mean_vertical_mm,
@@ -1016,15 +1299,10 @@ pub fn assess_structure(
         damage_category: out.damage_category,
         damage_route: out.damage_route,
         evidence_grade: out.evidence_grade,
+        evidence_grade_reasons: out.evidence_grade_reasons,
         damage_category_probabilities: out.probabilities.as_ref().map(|p| p.as_map()),
-        damage_category_probability: out
-            .damage_category
-            .zip(out.probabilities.as_ref())
-            .map(|(c, p)| p.of(c)),
-        damage_category_exceedance_probability: out
-            .damage_category
-            .zip(out.probabilities.as_ref())
-            .map(|(c, p)| p.above(c)),
+        damage_category_probability: probability.map(|p| p.0),
+        damage_category_exceedance_probability: probability.map(|p| p.1),
         horizontal_strain_status: out.horizontal_strain_status,
         category_lower_bound: out.category_lower_bound,
         look_directions: out.look_directions,
@@ -1039,33 +1317,21 @@ pub fn assess_structure(
         structure_type: s.raw.structure_type.clone(),
         trigger_status: None,
         triggers: vec![],
+        detail_file: report_file
+            .as_ref()
+            .map(|stem| format!("{DETAILS_DIR}/{stem}.json")),
         report_file,
         fallbacks: s.raw.fallbacks.clone(),
-        assumptions,
+        assumptions: suff.assumptions,
         change: None,
-        series: ser
-            .as_ref()
-            .map(|x| serde_json::to_value(x).unwrap_or_default())
-            .unwrap_or_default(),
-        metrics: out.metrics,
-        damage: out.damage,
-        grade: out.grade,
-        predicted_settlement_mm: works_out.predicted_settlement_mm,
-        predicted_category: works_out.predicted_category,
-        observed_to_predicted_settlement: works_out.observed_to_predicted_settlement,
-        works: works_out.detail,
-    };
-    (result, verdicts)
+        predicted_settlement_mm: works.predicted_settlement_mm,
+        predicted_category: works.predicted_category,
+        observed_to_predicted_settlement: works.observed_to_predicted_settlement,
+    }
 }
 
-/// Values filled by the works screening (`src/works`).
-#[derive(Default)]
-struct WorksOut {
-    predicted_settlement_mm: Option<f64>,
-    predicted_category: Option<u8>,
-    observed_to_predicted_settlement: Option<f64>,
-    detail: serde_json::Value,
-}
+/// Folder (inside the output folder) of the per-structure detail files.
+pub const DETAILS_DIR: &str = "details";
 
 /// Values filled by the metrics and damage stages.
 #[derive(Default)]
@@ -1092,13 +1358,11 @@ struct Filled {
     east_velocity_mm_per_yr: Option<f64>,
     east_velocity_se_mm_per_yr: Option<f64>,
     evidence_grade: Option<String>,
+    evidence_grade_reasons: Vec<String>,
     horizontal_strain_status: Option<String>,
     category_lower_bound: Option<bool>,
     look_directions: Vec<String>,
     probabilities: Option<crate::verdict::CategoryProbabilities>,
-    grade: serde_json::Value,
-    metrics: serde_json::Value,
-    damage: serde_json::Value,
 }
 
 /// The assumption line on the datasets' common reference, when points of two or more datasets
@@ -1182,7 +1446,7 @@ fn lower_bound_note(status: crate::metrics::HorizontalStrainStatus) -> String {
 /// of the structure's kept points), as the evidence grade defines them (`grade::GradeInputs`).
 /// With no dataset used: the largest epoch count of any dataset (for the status message) and no
 /// span.
-fn series_extent(ctx: &RunContext, used: &[usize]) -> (usize, Option<f64>) {
+pub fn series_extent(ctx: &RunContext, used: &[usize]) -> (usize, Option<f64>) {
     if used.is_empty() {
         let n = ctx.window_idx.iter().map(Vec::len).max().unwrap_or(0);
         return (n, None);

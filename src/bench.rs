@@ -7,7 +7,7 @@
 //!   field is only split off), on all cores, nothing kept;
 //! - `ingest`: Plinth's reading of footprints and points (reach filter included) plus point-to-
 //!   structure association;
-//! - `analysis`: `run::analyse` + `run::write` with `no_reports` (outputs go to `DIR/bench-out`);
+//! - `analysis`: `run::assess_into` with `no_reports` (outputs go to `DIR/bench-out`);
 //! - `hash`: SHA-256 of every input, as `run::manifest` does (a second full read of each file);
 //! - `reports`: measured only when a [`ReportHook`] is supplied (the report renderer's own hook).
 //!
@@ -338,8 +338,7 @@ pub fn run_phase(phase: &str, dir: &Path, hook: Option<ReportHook>) -> Result<Ph
                 ..Default::default()
             };
             let out = dir.join("bench-out");
-            let a = crate::run::analyse(&portfolio, &opts)?;
-            crate::run::write(&a, &opts, &out)?;
+            let a = crate::run::assess_into(&portfolio, &opts, &out)?;
             if phase == "reports" {
                 let hook = hook.context("no report hook is installed")?;
                 hook(&a, &out)?;

@@ -49,19 +49,17 @@ fn dispatch(cli: &Cli) -> anyhow::Result<()> {
                 progress: plinth::cli::progress_allowed(cli.quiet),
                 shard: *shard,
             };
-            let a = plinth::run::analyse(portfolio, &opts)?;
-            plinth::run::write(&a, &opts, out)?;
+            let a = plinth::run::assess_into(portfolio, &opts, out)?;
             if !cli.quiet {
-                print_summary(&a);
+                print_summary(&a.results.portfolio, &a.warnings);
                 eprintln!("results written to {}", out.display());
             }
             Ok(())
         }
         Command::Check { portfolio } => {
-            let opts = plinth::run::RunOptions::default();
-            let a = plinth::run::analyse(portfolio, &opts)?;
+            let c = plinth::run::check(portfolio)?;
             if !cli.quiet {
-                print_summary(&a);
+                print_check(&c);
                 eprintln!("check passed: nothing was written");
             }
             Ok(())
@@ -114,8 +112,7 @@ fn dispatch(cli: &Cli) -> anyhow::Result<()> {
     }
 }
 
-fn print_summary(a: &plinth::run::Analysis) {
-    let p = &a.results.portfolio;
+fn print_summary(p: &plinth::results::PortfolioResult, warnings: &plinth::error::Warnings) {
     let c = &p.coverage;
     eprintln!("portfolio: {}", p.name);
     eprintln!(
@@ -128,6 +125,48 @@ fn print_summary(a: &plinth::run::Analysis) {
     for (k, v) in &c.by_status {
         eprintln!("  {k}: {v}");
     }
+    print_points(c);
+    for line in warnings.summary(3) {
+        eprintln!("{line}");
+    }
+}
+
+fn print_check(c: &plinth::run::CheckSummary) {
+    let p = &c.prepared;
+    let cov = &c.coverage;
+    eprintln!("portfolio: {}", p.portfolio.name);
+    eprintln!(
+        "window: {} to {}   analysis CRS: {}",
+        p.window.start,
+        p.window.end,
+        p.inputs.analysis_crs.name()
+    );
+    eprintln!("structures: {}", cov.structures);
+    eprintln!("  meeting the minimums: {}", c.meeting_minimums);
+    let below: usize = c.below_minimum.values().sum();
+    let by: Vec<String> = c
+        .below_minimum
+        .iter()
+        .map(|(k, v)| format!("{k} {v}"))
+        .collect();
+    if below > 0 {
+        eprintln!(
+            "  insufficient_data: {below} (below a minimum after the point screens: {})",
+            by.join(", ")
+        );
+    } else {
+        eprintln!("  insufficient_data: 0");
+    }
+    print_points(cov);
+    eprintln!(
+        "not checked here: unwrapping jumps, the time-series checks, metrics and damage (`plinth assess` decides them; it can find more structures insufficient)"
+    );
+    for line in p.warnings.summary(3) {
+        eprintln!("{line}");
+    }
+}
+
+fn print_points(c: &plinth::results::Coverage) {
     for (k, v) in &c.points_read {
         eprintln!("points read from {k}: {v}");
     }
@@ -141,8 +180,5 @@ fn print_summary(a: &plinth::run::Analysis) {
         for (k, v) in &c.points_rejected {
             eprintln!("  {k}: {v}");
         }
-    }
-    for line in a.warnings.summary(3) {
-        eprintln!("{line}");
     }
 }

@@ -280,10 +280,7 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
     portfolio_v["by_grade"] = map_value(&by_grade);
     portfolio_v["gone_since_previous"] = Value::Array(gone.unwrap_or_default());
     portfolio_v["shard"] = Value::Null;
-    let results = serde_json::json!({
-        "portfolio": portfolio_v,
-        "structures": structures.iter().map(|(_, s)| s.clone()).collect::<Vec<_>>(),
-    });
+    let records: Vec<Value> = structures.into_iter().map(|(_, s)| s).collect();
 
     // results.csv and results.geojson.
     let mut r_header = None;
@@ -322,11 +319,9 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
     let staging = output::Staging::new(&target)?;
     let res = (|| -> Result<()> {
         let d = &staging.dir;
-        output::write_file(
-            d,
-            "results.json",
-            (serde_json::to_string_pretty(&results)? + "\n").as_bytes(),
-        )?;
+        output::write_with(d, "results.json", |w| {
+            output::results_layout_to(&portfolio_v, &records, w)
+        })?;
         let rh = r_header.context("no results.csv")?;
         let rr: Vec<csv::StringRecord> = r_rows.into_iter().map(|(_, r)| r).collect();
         output::write_file(d, "results.csv", &write_csv(&rh, &rr)?)?;

@@ -110,6 +110,9 @@ pub struct StructureResult {
     pub damage_route: Option<String>,
     /// Evidence grade.
     pub evidence_grade: Option<String>,
+    /// Why the evidence grade is what it is (empty when not graded).
+    #[serde(default)]
+    pub evidence_grade_reasons: Vec<String>,
     /// Probability of each damage category, `{"0": p, …, "4": p}` ("4" stands for 4–5), from
     /// the Monte Carlo draws through the whole chain; sums to 1; null without a category.
     #[serde(default)]
@@ -159,24 +162,16 @@ pub struct StructureResult {
     pub triggers: Vec<TriggerHit>,
     /// Safe file stem of this structure's report.
     pub report_file: Option<String>,
+    /// Path of this structure's detail file inside the output folder
+    /// (`details/<report_file>.json`, see [`DetailRecord`]).
+    #[serde(default)]
+    pub detail_file: Option<String>,
     /// Properties that fell back to defaults.
     pub fallbacks: Vec<String>,
     /// Assumptions made for this structure.
     pub assumptions: Vec<String>,
     /// Change since the previous period.
     pub change: Option<Change>,
-    /// Time-series detail (structure series, fits, decomposition).
-    #[serde(default)]
-    pub series: serde_json::Value,
-    /// Metrics detail (axes, profiles, zones, uncertainty).
-    #[serde(default)]
-    pub metrics: serde_json::Value,
-    /// Damage detail (per-zone strains, screening flags).
-    #[serde(default)]
-    pub damage: serde_json::Value,
-    /// Evidence-grade detail.
-    #[serde(default)]
-    pub grade: serde_json::Value,
     /// Largest predicted greenfield settlement on the footprint from the `[works]`, all works
     /// complete, mm (+ down); null without works.
     #[serde(default)]
@@ -189,10 +184,6 @@ pub struct StructureResult {
     /// missing or the prediction is below 0.1 mm.
     #[serde(default)]
     pub observed_to_predicted_settlement: Option<f64>,
-    /// Works screening detail (stages, sections, predicted against observed, face history);
-    /// null without works.
-    #[serde(default)]
-    pub works: serde_json::Value,
 }
 
 /// Names of the scalar fields written to results.csv and results.geojson, in order.
@@ -236,6 +227,7 @@ pub const SCALAR_FIELDS: &[&str] = &[
     "structure_type",
     "trigger_status",
     "report_file",
+    "detail_file",
     "predicted_settlement_mm",
     "predicted_category",
     "observed_to_predicted_settlement",
@@ -392,4 +384,69 @@ pub struct Results {
     pub portfolio: PortfolioResult,
     /// One record per structure, input order.
     pub structures: Vec<StructureResult>,
+}
+
+/// A per-structure detail file (`details/<stem>.json`) as read back: the nested detail the
+/// compact record leaves out. Each part is null when it was not computed (the record's
+/// `status_reasons` say why). Written by `assess::StructureDetail`.
+#[derive(Debug, Clone, PartialEq, Default, Serialize, Deserialize)]
+pub struct DetailRecord {
+    /// Structure id.
+    pub id: String,
+    /// Time-series detail (structure series, fits, decomposition).
+    #[serde(default)]
+    pub series: serde_json::Value,
+    /// Metrics detail (axes, profiles, zones, uncertainty).
+    #[serde(default)]
+    pub metrics: serde_json::Value,
+    /// Damage detail (per-zone strains, screening flags, category probabilities).
+    #[serde(default)]
+    pub damage: serde_json::Value,
+    /// Evidence grade with its reasons and inputs.
+    #[serde(default)]
+    pub grade: serde_json::Value,
+    /// Works screening detail (stages, sections, predicted against observed, face history).
+    #[serde(default)]
+    pub works: serde_json::Value,
+    /// One row per member point.
+    #[serde(default)]
+    pub points: Vec<DetailPointRecord>,
+}
+
+/// One member point of a structure in its detail file.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DetailPointRecord {
+    /// Dataset name.
+    pub dataset: String,
+    /// Point id.
+    pub point_id: String,
+    /// `structure` | `surroundings`.
+    pub role: String,
+    /// Easting in the analysis CRS, m.
+    pub x: f64,
+    /// Northing in the analysis CRS, m.
+    pub y: f64,
+    /// `kept` | `rejected`.
+    pub status: String,
+    /// Rejection reason (null when kept).
+    pub reason: Option<String>,
+    /// Vertical velocity projected from LOS, mm/yr (+ up), when computed.
+    pub vertical_velocity_mm_per_yr: Option<f64>,
+}
+
+impl DetailRecord {
+    /// Read the detail file `rel` of the output folder `dir`.
+    pub fn read(dir: &std::path::Path, rel: &str) -> anyhow::Result<DetailRecord> {
+        use anyhow::Context;
+        let path = dir.join(rel);
+        let f = std::fs::File::open(&path)
+            .with_context(|| format!("cannot open the detail file {}", path.display()))?;
+        serde_json::from_reader(std::io::BufReader::new(f)).map_err(|e| {
+            anyhow::anyhow!(
+                "{}: line {}: not a Plinth detail file ({e}); re-run `plinth assess` to rewrite it",
+                path.display(),
+                e.line()
+            )
+        })
+    }
 }

@@ -18,11 +18,6 @@ use crate::output::{self, PointRow, guard};
 use crate::portfolio::{LookSide, Pass, Portfolio};
 use crate::results::{Change, Coverage, PortfolioResult, Results, Status, StructureResult};
 
-/// (structure, dataset, point id) of a screening verdict.
-type VerdictKey<'a> = (usize, usize, &'a str);
-/// (rejection reason, vertical velocity mm/yr) of a screening verdict.
-type VerdictValue = (Option<&'static str>, Option<f64>);
-
 /// Options of one run, resolved from the command line.
 #[derive(Debug, Clone, Default)]
 pub struct RunOptions {
@@ -40,7 +35,7 @@ pub struct RunOptions {
     pub shard: Option<(usize, usize)>,
 }
 
-/// Everything a run produced in memory.
+/// Everything a run produced in memory (the per-structure detail is in the output folder).
 pub struct Analysis {
     /// The portfolio.
     pub portfolio: Portfolio,
@@ -48,12 +43,91 @@ pub struct Analysis {
     pub inputs: Inputs,
     /// The results document.
     pub results: Results,
-    /// points.csv rows.
-    pub point_rows: Vec<PointRow>,
+    /// Every point's screening verdict (for points.csv and points.geojson).
+    pub points: PointVerdicts,
     /// Warnings.
     pub warnings: Warnings,
     /// The window.
     pub window: Window,
+}
+
+impl Analysis {
+    /// What the reports render.
+    pub fn report_input(&self) -> crate::report::pipeline::ReportInput<'_> {
+        crate::report::pipeline::ReportInput {
+            portfolio: &self.portfolio,
+            structures: &self.inputs.structures,
+            datasets: &self.inputs.datasets,
+            analysis_crs: &self.inputs.analysis_crs,
+            results: &self.results,
+            window: self.window,
+        }
+    }
+
+    fn new(p: Prepared, results: Results, points: PointVerdicts) -> Self {
+        Self {
+            portfolio: p.portfolio,
+            inputs: p.inputs,
+            results,
+            points,
+            warnings: p.warnings,
+            window: p.window,
+        }
+    }
+
+    /// The rows of points.csv, built on the fly: one per point within reach — its owning
+    /// structure, or for a point only in surroundings rings the nearest structure whose ring
+    /// holds it (rows per (point, structure) link would grow with the ring size times the point
+    /// count) — plus one `tie` row per point equidistant between two structures' buffers.
+    pub fn point_rows<'a>(
+        &'a self,
+        to_wgs: &'a crate::coords::Transformer,
+    ) -> impl Iterator<Item = PointRow<'a>> + 'a {
+        let structures = &self.inputs.structures;
+        self.inputs
+            .datasets
+            .iter()
+            .enumerate()
+            .flat_map(move |(di, d)| {
+                (0..d.len()).flat_map(move |pi| {
+                    let l = d.association[pi];
+                    let p = d.point(pi);
+                    let (lon, lat) = to_wgs.apply(p.x(), p.y()).unwrap_or((f64::NAN, f64::NAN));
+                    let base = PointRow {
+                        dataset: d.name.as_str(),
+                        point_id: p.id(),
+                        line: p.line(),
+                        lon,
+                        lat,
+                        structure_id: "",
+                        role: "tie",
+                        inside: false,
+                        distance_m: 0.0,
+                        status: "rejected",
+                        reason: assess::reason::TIE,
+                        vertical_velocity_mm_per_yr: None,
+                        surroundings_of: usize::from(l.rings),
+                    };
+                    let owned = l.structure().map(|k| {
+                        let (rej, vv) = self.points.get(di, pi).unwrap_or((None, None));
+                        PointRow {
+                            structure_id: structures[k].raw.id.as_str(),
+                            role: match l.role() {
+                                Role::Structure => "structure",
+                                Role::Surroundings => "surroundings",
+                            },
+                            inside: l.inside(),
+                            distance_m: (f64::from(l.distance_m) * 1000.0).round() / 1000.0,
+                            status: if rej.is_some() { "rejected" } else { "kept" },
+                            reason: rej.unwrap_or(""),
+                            vertical_velocity_mm_per_yr: vv.map(|v| (v * 1000.0).round() / 1000.0),
+                            ..base.clone()
+                        }
+                    });
+                    l.tie().then_some(base).into_iter().chain(owned)
+                })
+            })
+    }
 }
 
 fn to_series_pass(p: Pass) -> crate::series::los::Pass {
@@ -209,7 +283,7 @@ pub fn run_context<'a>(
             _ => None,
         })
         .collect();
-    let criteria = build_criteria(pf)?;
+    let criteria = crate::criteria::registry_for(pf)?;
     let works = pf
         .works
         .as_ref()
@@ -307,11 +381,46 @@ pub fn dataset_geometries(
         .collect()
 }
 
-/// Read, associate and assess. Nothing is written.
-pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
+/// The first stages of a run: the portfolio and its inputs read, the window decided and every
+/// point associated with the structures. All that `plinth check` needs.
+pub struct Prepared {
+    /// The portfolio.
+    pub portfolio: Portfolio,
+    /// The inputs (structures of this shard, datasets, CRS, spatial index).
+    pub inputs: Inputs,
+    /// The assessment window.
+    pub window: Window,
+    /// Warnings so far.
+    pub warnings: Warnings,
+}
+
+/// One point linked to a structure (dataset index, point index, role), 12 bytes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct MemberLink {
+    /// Dataset index.
+    pub dataset: u32,
+    /// Point index in its dataset.
+    pub point: u32,
+    /// Role for this structure.
+    pub role: Role,
+}
+
+/// Every structure's linked points and the portfolio counts of the association.
+#[derive(Debug, Clone, Default)]
+pub struct Association {
+    /// Per structure (input order), its linked points in dataset then point order.
+    pub members: Vec<Vec<MemberLink>>,
+    /// Points excluded as ties between structures.
+    pub ties: usize,
+    /// Points only in surroundings rings.
+    pub surroundings_only: usize,
+}
+
+/// Read the portfolio and its inputs (every kept point's owner is decided as it is read) and
+/// decide the window: the stages before the structures are assessed. With `opts.out`, the output folder is checked before any
+/// input is read and again against every input the portfolio names.
+pub fn prepare(portfolio_path: &Path, opts: &RunOptions) -> Result<Prepared> {
     let mut warnings = Warnings::default();
-    // The output folder is checked before any input is read, and again against every input the
-    // portfolio names before the data files are opened.
     if let Some(out) = &opts.out {
         check_out(out, portfolio_path, None, opts)?;
     }
@@ -319,53 +428,86 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
     if let Some(out) = &opts.out {
         check_out(out, portfolio_path, Some(&pf), opts)?;
     }
-    let (mut structures, analysis_crs, index) = ingest::load_structures(&pf, &mut warnings)?;
-    if let Some((k, n)) = opts.shard {
-        structures.retain(|s| shard_of(&s.raw.id, n) == k);
-    }
-    // Re-index after sharding so that each shard reads only points near its own structures.
-    let index = if opts.shard.is_some() {
-        for (i, s) in structures.iter_mut().enumerate() {
-            s.index = i;
-        }
-        crate::association::SpatialIndex::new(
-            structures.iter().map(|s| s.footprint.clone()).collect(),
-            pf.assessment.buffer_m,
-            pf.assessment.surroundings_m,
-        )
-    } else {
-        index
-    };
-    for (i, d) in pf.datasets.iter().enumerate() {
-        if let (Some(inc), Some(head)) = (d.incidence_deg, d.heading_deg) {
-            let geo = crate::series::los::los_from_angles(
-                inc,
-                head,
-                to_series_look(d.look),
-                to_series_pass(d.pass),
-            )
-            .map_err(|e| {
-                InputError::new(
-                    &pf.file,
-                    format!("key datasets[{i}]"),
-                    format!("line-of-sight geometry of `{}` is not valid: {e}", d.name),
-                    "check pass, heading_deg (flight azimuth, clockwise from north) and look side",
-                )
-            })?;
-            for m in geo.warnings {
-                warnings.push("los_geometry", format!("dataset `{}`: {m}", d.name));
-            }
-        }
-    }
+    let (structures, analysis_crs, index) = load_shard(&pf, opts.shard, &mut warnings)?;
+    check_geometries(&pf, &mut warnings)?;
     let datasets = ingest::read_datasets(&pf, &analysis_crs, &index, &mut warnings)?;
     let window = window_for(&pf, &datasets, &mut warnings)?;
+    Ok(Prepared {
+        portfolio: pf,
+        inputs: Inputs {
+            structures,
+            datasets,
+            analysis_crs,
+            index,
+        },
+        window,
+        warnings,
+    })
+}
 
-    // Association.
-    let n_s = structures.len();
-    let mut members: Vec<Vec<Member>> = vec![Vec::new(); n_s];
-    let mut ties = 0usize;
-    let mut surroundings_only = 0usize;
-    let mut link_rows: Vec<(usize, usize, crate::association::PointAssociation)> = Vec::new();
+/// The structures (of one shard when sharding) with their spatial index.
+fn load_shard(
+    pf: &Portfolio,
+    shard: Option<(usize, usize)>,
+    warnings: &mut Warnings,
+) -> Result<(
+    Vec<ingest::Structure>,
+    crate::coords::Crs,
+    crate::association::SpatialIndex,
+)> {
+    let (mut structures, analysis_crs, index) = ingest::load_structures(pf, warnings)?;
+    let Some((k, n)) = shard else {
+        return Ok((structures, analysis_crs, index));
+    };
+    structures.retain(|s| shard_of(&s.raw.id, n) == k);
+    // Re-index after sharding so that each shard reads only points near its own structures.
+    for (i, s) in structures.iter_mut().enumerate() {
+        s.index = i;
+    }
+    let index = crate::association::SpatialIndex::new(
+        structures.iter().map(|s| s.footprint.clone()).collect(),
+        pf.assessment.buffer_m,
+        pf.assessment.surroundings_m,
+    );
+    Ok((structures, analysis_crs, index))
+}
+
+/// Every dataset's scene line-of-sight geometry is valid (insar-methods.md §2).
+fn check_geometries(pf: &Portfolio, warnings: &mut Warnings) -> Result<(), InputError> {
+    for (i, d) in pf.datasets.iter().enumerate() {
+        let (Some(inc), Some(head)) = (d.incidence_deg, d.heading_deg) else {
+            continue;
+        };
+        let geo = crate::series::los::los_from_angles(
+            inc,
+            head,
+            to_series_look(d.look),
+            to_series_pass(d.pass),
+        )
+        .map_err(|e| {
+            InputError::new(
+                &pf.file,
+                format!("key datasets[{i}]"),
+                format!("line-of-sight geometry of `{}` is not valid: {e}", d.name),
+                "check pass, heading_deg (flight azimuth, clockwise from north) and look side",
+            )
+        })?;
+        for m in geo.warnings {
+            warnings.push("los_geometry", format!("dataset `{}`: {m}", d.name));
+        }
+    }
+    Ok(())
+}
+
+/// Link every point with the structures whose footprint, buffer or surroundings ring holds it.
+pub fn associate(p: &Prepared) -> Association {
+    let datasets = &p.inputs.datasets;
+    let index = &p.inputs.index;
+    let n_structures = p.inputs.structures.len();
+    let mut a = Association {
+        members: vec![Vec::new(); n_structures],
+        ..Default::default()
+    };
     for (di, d) in datasets.iter().enumerate() {
         let links: Vec<crate::association::PointLinks> = d
             .points
@@ -374,124 +516,207 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
             .collect();
         for (pi, l) in links.into_iter().enumerate() {
             if l.tie {
-                ties += 1;
+                a.ties += 1;
             } else if l.links.iter().all(|k| k.role == Role::Surroundings) && !l.links.is_empty() {
-                surroundings_only += 1;
+                a.surroundings_only += 1;
             }
             for k in &l.links {
-                members[k.structure].push(Member {
-                    point_index: pi,
-                    dataset: di,
-                    point: d.point(pi),
+                a.members[k.structure].push(MemberLink {
+                    dataset: di as u32,
+                    point: pi as u32,
                     role: k.role,
                 });
             }
-            // The summary the reader stored (the same value as `l.summary()`, tested).
-            link_rows.push((di, pi, d.association[pi]));
+        }
+    }
+    a
+}
+
+/// Everything the assessment stage produced, in structure order.
+pub struct Assessed {
+    /// Compact records (triggers and change not yet filled).
+    pub records: Vec<StructureResult>,
+    /// The screening verdict of every point for the points outputs.
+    pub points: PointVerdicts,
+}
+
+/// Each point's screening verdict by its owning structure — or, for a point only in surroundings
+/// rings, by the nearest structure whose ring holds it — packed per dataset (9 bytes a point).
+#[derive(Debug, Clone, Default)]
+pub struct PointVerdicts {
+    /// Per dataset, per point: 0 = kept, 1 + index in [`REASONS`] = rejected, [`NO_VERDICT`] =
+    /// no structure assessed the point.
+    pub code: Vec<Vec<u8>>,
+    /// Per dataset, per point: vertical velocity, mm/yr (+ up); NaN when not computed.
+    pub velocity: Vec<Vec<f64>>,
+}
+
+/// Rejection reasons in the order of their codes in [`PointVerdicts`].
+pub const REASONS: [&str; 6] = [
+    assess::reason::LOW_COHERENCE,
+    assess::reason::TOO_FEW_EPOCHS,
+    assess::reason::MISSING_VALUES,
+    assess::reason::UNWRAPPING_JUMP,
+    assess::reason::OUTLIER_VELOCITY,
+    assess::reason::TIE,
+];
+
+/// Code of a point no structure assessed.
+pub const NO_VERDICT: u8 = u8::MAX;
+
+impl PointVerdicts {
+    fn new(datasets: &[ingest::Dataset]) -> Self {
+        Self {
+            code: datasets.iter().map(|d| vec![NO_VERDICT; d.len()]).collect(),
+            velocity: datasets.iter().map(|d| vec![f64::NAN; d.len()]).collect(),
         }
     }
 
+    /// `(rejection reason, vertical velocity)` of a point; None when no structure assessed it.
+    pub fn get(&self, dataset: usize, point: usize) -> Option<(Option<&'static str>, Option<f64>)> {
+        let code = self.code[dataset][point];
+        if code == NO_VERDICT {
+            return None;
+        }
+        let reason = code.checked_sub(1).map(|c| REASONS[usize::from(c)]);
+        let v = self.velocity[dataset][point];
+        Some((reason, v.is_finite().then_some(v)))
+    }
+}
+
+/// One owned point's verdict as a structure's worker returns it.
+type OwnedVerdict = (u32, u32, u8, f64);
+
+fn reason_code(r: Option<&'static str>) -> u8 {
+    match r {
+        None => 0,
+        Some(r) => REASONS
+            .iter()
+            .position(|x| *x == r)
+            .map_or(NO_VERDICT, |i| i as u8 + 1),
+    }
+}
+
+/// Assess every structure in parallel. Each structure's detail is written to
+/// `details_dir/<stem>.json` (when given) as soon as it is assessed and then dropped, so memory
+/// holds only the compact records whatever the number of structures.
+pub fn assess_all(
+    p: &Prepared,
+    association: &Association,
+    details_dir: Option<&Path>,
+    progress: bool,
+) -> Result<Assessed> {
+    let Prepared {
+        portfolio: pf,
+        inputs,
+        window,
+        ..
+    } = p;
+    let datasets = &inputs.datasets;
     // A point is in the surroundings of many structures: its statistics are worked out once.
     let ctx = run_context(
-        &pf,
-        &datasets,
-        window,
-        &analysis_crs,
+        pf,
+        datasets,
+        *window,
+        &inputs.analysis_crs,
         assess::StatsCache::EveryPoint,
     )?;
-    let ids: Vec<&str> = structures.iter().map(|s| s.raw.id.as_str()).collect();
-    let stems = output::safe_names::assign(&ids);
-    let bar = if opts.progress {
-        indicatif::ProgressBar::new(structures.len() as u64).with_style(
-            indicatif::ProgressStyle::with_template(
-                "assessing {bar:30} {pos}/{len} structures ({eta})",
-            )
-            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
-        )
-    } else {
-        indicatif::ProgressBar::hidden()
-    };
-    let assessed: Vec<(StructureResult, Vec<assess::PointVerdict>)> = structures
-        .par_iter()
-        .zip(members.par_iter())
-        .zip(stems.par_iter())
-        .map(|((s, m), stem)| {
-            let r = assess::assess_structure(&ctx, s, m, Some(stem.clone()));
-            bar.inc(1);
-            r
-        })
+    let ids: Vec<&str> = inputs
+        .structures
+        .iter()
+        .map(|s| s.raw.id.as_str())
         .collect();
+    let stems = output::safe_names::assign(&ids);
+    if let Some(d) = details_dir {
+        std::fs::create_dir_all(d).with_context(|| format!("cannot create {}", d.display()))?;
+    }
+    let bar = progress_bar(progress, inputs.structures.len());
+    let assessed: Vec<(StructureResult, Vec<OwnedVerdict>)> = inputs
+        .structures
+        .par_iter()
+        .zip(association.members.par_iter())
+        .zip(stems.par_iter())
+        .map(|((s, links), stem)| {
+            let members: Vec<Member> = links
+                .iter()
+                .map(|l| Member {
+                    dataset: l.dataset as usize,
+                    point: datasets[l.dataset as usize].point(l.point as usize),
+                    role: l.role,
+                    point_index: l.point as usize,
+                })
+                .collect();
+            let a = assess::assess_structure(&ctx, s, &members, Some(stem.clone()));
+            if let Some(d) = details_dir {
+                write_detail(d, stem, &a.detail)?;
+            }
+            let owned = a
+                .verdicts
+                .iter()
+                .filter(|v| {
+                    datasets[v.dataset].association[v.point_index].structure() == Some(s.index)
+                })
+                .map(|v| {
+                    (
+                        v.dataset as u32,
+                        v.point_index as u32,
+                        reason_code(v.rejected),
+                        v.vertical_velocity_mm_per_yr.unwrap_or(f64::NAN),
+                    )
+                })
+                .collect();
+            bar.inc(1);
+            Ok((a.record, owned))
+        })
+        .collect::<Result<_>>()?;
     bar.finish_and_clear();
-
-    // points.csv rows: one per point within reach (see below), ties included.
-    let mut verdict_map: BTreeMap<VerdictKey, VerdictValue> = BTreeMap::new();
-    for (si, (_, vs)) in assessed.iter().enumerate() {
-        for v in vs {
-            verdict_map.insert(
-                (si, v.dataset, v.point_id.as_str()),
-                (v.rejected, v.vertical_velocity_mm_per_yr),
-            );
+    let mut points = PointVerdicts::new(datasets);
+    let mut records = Vec::with_capacity(assessed.len());
+    for (r, owned) in assessed {
+        for (d, i, code, v) in owned {
+            points.code[d as usize][i as usize] = code;
+            points.velocity[d as usize][i as usize] = v;
         }
+        records.push(r);
     }
-    let mut point_rows = Vec::new();
-    // Longitude/latitude for the points outputs, from the analysis CRS (the store keeps only the
-    // analysis position).
-    let to_wgs = crate::coords::Transformer::new(&analysis_crs, &crate::coords::Crs::wgs84());
-    for (di, pi, l) in &link_rows {
-        let p = datasets[*di].point(*pi);
-        let (lon, lat) = to_wgs.apply(p.x(), p.y()).unwrap_or((f64::NAN, f64::NAN));
-        if l.tie() {
-            point_rows.push(PointRow {
-                dataset: datasets[*di].name.clone(),
-                point_id: p.id().to_string(),
-                line: p.line(),
-                lon,
-                lat,
-                structure_id: String::new(),
-                role: "tie".into(),
-                inside: false,
-                distance_m: 0.0,
-                status: "rejected".into(),
-                reason: assess::reason::TIE.into(),
-                vertical_velocity_mm_per_yr: None,
-                surroundings_of: usize::from(l.rings),
-            });
-        }
-        // One row per point: its owning structure, or — for a point only in surroundings rings —
-        // the nearest structure whose ring holds it (and how many rings hold it). Rows per
-        // (point, structure) link would grow with the ring size times the point count.
-        if let Some(k) = l.structure() {
-            let (rej, vv) = verdict_map
-                .get(&(k, *di, p.id()))
-                .copied()
-                .unwrap_or((None, None));
-            point_rows.push(PointRow {
-                dataset: datasets[*di].name.clone(),
-                point_id: p.id().to_string(),
-                line: p.line(),
-                lon,
-                lat,
-                structure_id: structures[k].raw.id.clone(),
-                role: match l.role() {
-                    Role::Structure => "structure".into(),
-                    Role::Surroundings => "surroundings".into(),
-                },
-                inside: l.inside(),
-                distance_m: (f64::from(l.distance_m) * 1000.0).round() / 1000.0,
-                status: if rej.is_some() {
-                    "rejected".into()
-                } else {
-                    "kept".into()
-                },
-                reason: rej.unwrap_or("").into(),
-                vertical_velocity_mm_per_yr: vv.map(|v| (v * 1000.0).round() / 1000.0),
-                surroundings_of: usize::from(l.rings),
-            });
-        }
-    }
+    Ok(Assessed { records, points })
+}
 
-    let mut results_list: Vec<StructureResult> = assessed.into_iter().map(|(r, _)| r).collect();
-    for r in &mut results_list {
+fn progress_bar(progress: bool, n: usize) -> indicatif::ProgressBar {
+    if !progress {
+        return indicatif::ProgressBar::hidden();
+    }
+    indicatif::ProgressBar::new(n as u64).with_style(
+        indicatif::ProgressStyle::with_template(
+            "assessing {bar:30} {pos}/{len} structures ({eta})",
+        )
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    )
+}
+
+/// Write one structure's detail file (compact JSON, one line).
+fn write_detail(dir: &Path, stem: &str, detail: &assess::StructureDetail) -> Result<()> {
+    use std::io::Write;
+    let path = dir.join(format!("{stem}.json"));
+    let f = std::fs::File::create(&path)
+        .with_context(|| format!("cannot create {}", path.display()))?;
+    let mut w = std::io::BufWriter::with_capacity(64 * 1024, f);
+    serde_json::to_writer(&mut w, detail)?;
+    w.write_all(b"\n")?;
+    w.flush()
+        .with_context(|| format!("cannot write {}", path.display()))?;
+    Ok(())
+}
+
+/// Triggers, the comparison with `--previous`, the coverage and the portfolio block.
+pub fn summarise(
+    p: &Prepared,
+    association: &Association,
+    mut records: Vec<StructureResult>,
+    opts: &RunOptions,
+) -> Result<Results> {
+    let pf = &p.portfolio;
+    for r in &mut records {
         let (status, hits, unevaluated) = crate::triggers::evaluate(&pf.triggers, r);
         r.trigger_status = if pf.triggers.is_empty() {
             None
@@ -501,30 +726,77 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
         r.triggers = hits;
         r.assumptions.extend(unevaluated);
     }
+    let gone = match &opts.previous {
+        Some(prev) => compare_previous(prev, &mut records)?,
+        None => Vec::new(),
+    };
+    let (coverage, by_category, by_grade) = tally(p, association, &records);
+    let datasets = &p.inputs.datasets;
+    let window = p.window;
+    let analysis_date = datasets
+        .iter()
+        .filter_map(|d| d.epochs.iter().filter(|e| **e <= window.end).max())
+        .max()
+        .map(|d| d.to_string());
+    let portfolio = PortfolioResult {
+        name: pf.name.clone(),
+        analysis_crs: p.inputs.analysis_crs.name(),
+        window_start: Some(window.start.to_string()),
+        window_end: Some(window.end.to_string()),
+        analysis_date,
+        tool_version: env!("CARGO_PKG_VERSION").to_string(),
+        coverage,
+        by_category,
+        by_grade,
+        previous: opts.previous.as_ref().map(|p| p.display().to_string()),
+        gone_since_previous: gone,
+        shard: opts.shard.map(|(k, n)| format!("{k}/{n}")),
+        datasets: dataset_geometries(pf, datasets),
+        common_reference: pf
+            .reference
+            .as_ref()
+            .map(|r| crate::results::CommonReference {
+                point: r.point,
+                crs: r.crs.clone(),
+                radius_m: r.radius_m,
+                min_points: crate::ingest::reference::MIN_REFERENCE_POINTS,
+            }),
+    };
+    Ok(Results {
+        portfolio,
+        structures: records,
+    })
+}
 
-    let mut gone = Vec::new();
-    if let Some(prev) = &opts.previous {
-        gone = compare_previous(prev, &mut results_list)?;
-    }
+/// Structures per damage category (`insufficient_data` separate).
+type ByCategory = BTreeMap<String, usize>;
+/// Structures per evidence grade.
+type ByGrade = BTreeMap<String, usize>;
 
+/// The coverage summary and the counts per category and per grade.
+fn tally(
+    p: &Prepared,
+    association: &Association,
+    records: &[StructureResult],
+) -> (Coverage, ByCategory, ByGrade) {
     let mut coverage = Coverage {
-        structures: n_s,
-        ties,
-        points_surroundings_only: surroundings_only,
+        structures: records.len(),
+        ties: association.ties,
+        points_surroundings_only: association.surroundings_only,
         ..Default::default()
     };
-    for d in &datasets {
+    for d in &p.inputs.datasets {
         coverage.points_read.insert(d.name.clone(), d.rows_read);
         coverage.points_out_of_reach += d.rows_out_of_reach;
     }
-    if ties > 0 {
+    if association.ties > 0 {
         coverage
             .points_rejected
-            .insert(assess::reason::TIE.into(), ties);
+            .insert(assess::reason::TIE.into(), association.ties);
     }
     let mut by_category = BTreeMap::new();
     let mut by_grade = BTreeMap::new();
-    for r in &results_list {
+    for r in records {
         let st = match r.status {
             Status::Assessed => "assessed",
             Status::InsufficientData => "insufficient_data",
@@ -548,77 +820,127 @@ pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
             )
             .or_default() += 1;
     }
-    let analysis_date = datasets
-        .iter()
-        .filter_map(|d| d.epochs.iter().filter(|e| **e <= window.end).max())
-        .max()
-        .map(|d| d.to_string());
-    let portfolio = PortfolioResult {
-        name: pf.name.clone(),
-        analysis_crs: analysis_crs.name(),
-        window_start: Some(window.start.to_string()),
-        window_end: Some(window.end.to_string()),
-        analysis_date,
-        tool_version: env!("CARGO_PKG_VERSION").to_string(),
-        coverage,
-        by_category,
-        by_grade,
-        previous: opts.previous.as_ref().map(|p| p.display().to_string()),
-        gone_since_previous: gone,
-        shard: opts.shard.map(|(k, n)| format!("{k}/{n}")),
-        datasets: dataset_geometries(&pf, &datasets),
-        common_reference: pf
-            .reference
-            .as_ref()
-            .map(|r| crate::results::CommonReference {
-                point: r.point,
-                crs: r.crs.clone(),
-                radius_m: r.radius_m,
-                min_points: crate::ingest::reference::MIN_REFERENCE_POINTS,
-            }),
+    (coverage, by_category, by_grade)
+}
+
+/// What `plinth check` found after reading, association and point screening.
+pub struct CheckSummary {
+    /// The inputs read.
+    pub prepared: Prepared,
+    /// Coverage: points read, out of reach, ties, kept and rejected by the point screens.
+    pub coverage: Coverage,
+    /// Structures meeting the point, epoch and span minimums after the point screens.
+    pub meeting_minimums: usize,
+    /// Structures below a minimum, by the first minimum missed (`min_points`, `min_epochs`,
+    /// `min_span_years`).
+    pub below_minimum: BTreeMap<&'static str, usize>,
+}
+
+/// `plinth check`: read the inputs, associate the points with their owners and screen every
+/// structure's own points (coherence, epochs, velocity outliers — `assess::screen_members`),
+/// without the time-series, metrics or damage stages and without writing anything.
+pub fn check(portfolio_path: &Path) -> Result<CheckSummary> {
+    let p = prepare(portfolio_path, &RunOptions::default())?;
+    let datasets = &p.inputs.datasets;
+    let structures = &p.inputs.structures;
+    let ctx = run_context(
+        &p.portfolio,
+        datasets,
+        p.window,
+        &p.inputs.analysis_crs,
+        assess::StatsCache::OnDemand,
+    )?;
+    let owners = crate::association::Owners::from_datasets(datasets, structures.len());
+    let a = &p.portfolio.assessment;
+    let screened: Vec<(usize, BTreeMap<&'static str, usize>, Option<&'static str>)> = structures
+        .par_iter()
+        .enumerate()
+        .map(|(si, s)| {
+            let members: Vec<Member> = owners
+                .owned(si)
+                .map(|(d, i)| Member {
+                    dataset: d,
+                    point: datasets[d].point(i),
+                    role: Role::Structure,
+                    point_index: i,
+                })
+                .collect();
+            let (verdicts, _) = assess::screen_members(&ctx, s, &members);
+            let mut rejected: BTreeMap<&'static str, usize> = BTreeMap::new();
+            let mut used: Vec<usize> = Vec::new();
+            for v in &verdicts {
+                match v.rejected {
+                    Some(r) => *rejected.entry(r).or_default() += 1,
+                    None => used.push(v.dataset),
+                }
+            }
+            let kept = used.len();
+            used.dedup();
+            // The same minimums, in the same order, as `assess::assess_structure`.
+            let (epochs, _) = assess::series_extent(&ctx, &used);
+            let below = if kept < a.min_points.max(1) {
+                Some("min_points")
+            } else if epochs < a.min_epochs {
+                Some("min_epochs")
+            } else if p.window.span_years() < a.min_span_years {
+                Some("min_span_years")
+            } else {
+                None
+            };
+            (kept, rejected, below)
+        })
+        .collect();
+    let mut coverage = Coverage {
+        structures: structures.len(),
+        ..Default::default()
     };
-    let results = Results {
-        portfolio,
-        structures: results_list,
-    };
+    for d in datasets {
+        coverage.points_read.insert(d.name.clone(), d.rows_read);
+        coverage.points_out_of_reach += d.rows_out_of_reach;
+        for l in &d.association {
+            if l.tie() {
+                coverage.ties += 1;
+            } else if l.structure().is_some() && l.role() == Role::Surroundings {
+                coverage.points_surroundings_only += 1;
+            }
+        }
+    }
+    if coverage.ties > 0 {
+        coverage
+            .points_rejected
+            .insert(assess::reason::TIE.into(), coverage.ties);
+    }
+    let mut meeting_minimums = 0;
+    let mut below_minimum: BTreeMap<&'static str, usize> = BTreeMap::new();
+    for (kept, rejected, below) in &screened {
+        coverage.points_kept += kept;
+        match below {
+            Some(m) => *below_minimum.entry(m).or_default() += 1,
+            None => meeting_minimums += 1,
+        }
+        for (k, v) in rejected {
+            *coverage
+                .points_rejected
+                .entry((*k).to_string())
+                .or_default() += v;
+        }
+    }
     drop(ctx);
-    Ok(Analysis {
-        portfolio: pf,
-        inputs: Inputs {
-            structures,
-            datasets,
-            analysis_crs,
-            index,
-        },
-        results,
-        point_rows,
-        warnings,
-        window,
+    Ok(CheckSummary {
+        prepared: p,
+        coverage,
+        meeting_minimums,
+        below_minimum,
     })
 }
 
-/// Built-in criteria sets plus the portfolio's `[criteria.NAME]` sets, validated.
-pub fn build_criteria(pf: &Portfolio) -> Result<crate::criteria::CriteriaRegistry, InputError> {
-    let mut user = BTreeMap::new();
-    for (name, table) in &pf.criteria {
-        let o: crate::criteria::CriteriaOverride = toml::Value::Table(table.clone()).try_into().map_err(|e: toml::de::Error| {
-            InputError::new(
-                &pf.file,
-                format!("key criteria.{name}"),
-                e.message().trim().to_string(),
-                "keys of a criteria set: base, route, e_over_g, poisson, neutral_axis, thresholds, compressive_strain, source (docs/formats.md)",
-            )
-        })?;
-        user.insert(name.clone(), o);
-    }
-    crate::criteria::CriteriaRegistry::with_user_sets(&user).map_err(|e| {
-        InputError::new(
-            &pf.file,
-            "key criteria",
-            e.to_string(),
-            "see docs/formats.md for criteria sets",
-        )
-    })
+/// Read, associate and assess without writing anything (details are not kept).
+pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
+    let p = prepare(portfolio_path, opts)?;
+    let association = associate(&p);
+    let assessed = assess_all(&p, &association, None, opts.progress)?;
+    let results = summarise(&p, &association, assessed.records, opts)?;
+    Ok(Analysis::new(p, results, assessed.points))
 }
 
 /// Compare with a previous run's results.json; returns the ids gone since then.
@@ -780,46 +1102,68 @@ pub fn manifest(a: &Analysis, opts: &RunOptions) -> Result<serde_json::Value> {
     }))
 }
 
-/// Write every output into `out` atomically (the folder is checked by [`check_out`] first).
-pub fn write(a: &Analysis, opts: &RunOptions, out: &Path) -> Result<()> {
-    let target = check_out(out, &a.portfolio.file, Some(&a.portfolio), opts)?;
+/// The whole `assess` job: prepare, then assess into a staging folder next to `out` (each
+/// structure's detail file written as soon as it is assessed), write the portfolio outputs and
+/// the reports, and swap the folder in atomically. Any failure abandons the staging folder.
+pub fn assess_into(portfolio_path: &Path, opts: &RunOptions, out: &Path) -> Result<Analysis> {
+    let p = prepare(portfolio_path, opts)?;
+    let target = check_out(out, portfolio_path, Some(&p.portfolio), opts)?;
     let staging = output::Staging::new(&target)?;
-    let res = (|| -> Result<()> {
-        let d = &staging.dir;
-        output::write_with(d, "results.json", |w| {
-            output::results_json_to(&a.results, w)
-        })?;
-        output::write_with(d, "results.csv", |w| output::results_csv_to(&a.results, w))?;
-        let fps: Vec<&geo::MultiPolygon<f64>> = a
-            .inputs
-            .structures
-            .iter()
-            .map(|s| &s.footprint_wgs84)
-            .collect();
-        output::write_with(d, "results.geojson", |w| {
-            output::results_geojson_to(&a.results, &fps, w)
-        })?;
-        output::write_with(d, "points.csv", |w| output::points_csv_to(&a.point_rows, w))?;
-        output::write_with(d, "points.geojson", |w| {
-            output::points_geojson_to(&a.point_rows, w)
-        })?;
-        let m = manifest(a, opts)?;
-        output::write_file(
-            d,
-            "manifest.json",
-            (serde_json::to_string_pretty(&m)? + "\n").as_bytes(),
-        )?;
-        // PDF reports (report::pipeline); a failure abandons the staging folder below.
-        if !opts.no_reports {
-            crate::report::pipeline::render_reports(a, &staging.dir, opts.jobs, opts.progress)?;
-        }
-        Ok(())
+    let res = (|| -> Result<Analysis> {
+        let details = staging.dir.join(assess::DETAILS_DIR);
+        let association = associate(&p);
+        let assessed = assess_all(&p, &association, Some(&details), opts.progress)?;
+        let results = summarise(&p, &association, assessed.records, opts)?;
+        drop(association);
+        let a = Analysis::new(p, results, assessed.points);
+        write_outputs(&a, opts, &staging.dir)?;
+        Ok(a)
     })();
     match res {
-        Ok(()) => staging.commit(),
+        Ok(a) => {
+            staging.commit()?;
+            Ok(a)
+        }
         Err(e) => {
             staging.abandon();
             Err(e)
         }
     }
+}
+
+/// Write the portfolio outputs and the reports into the staging folder `d` (the detail files
+/// are already there).
+fn write_outputs(a: &Analysis, opts: &RunOptions, d: &Path) -> Result<()> {
+    output::write_with(d, "results.json", |w| {
+        output::results_json_to(&a.results, w)
+    })?;
+    output::write_with(d, "results.csv", |w| output::results_csv_to(&a.results, w))?;
+    let fps: Vec<&geo::MultiPolygon<f64>> = a
+        .inputs
+        .structures
+        .iter()
+        .map(|s| &s.footprint_wgs84)
+        .collect();
+    output::write_with(d, "results.geojson", |w| {
+        output::results_geojson_to(&a.results, &fps, w)
+    })?;
+    let to_wgs =
+        crate::coords::Transformer::new(&a.inputs.analysis_crs, &crate::coords::Crs::wgs84());
+    output::write_with(d, "points.csv", |w| {
+        output::points_csv_to(a.point_rows(&to_wgs), w)
+    })?;
+    output::write_with(d, "points.geojson", |w| {
+        output::points_geojson_to(a.point_rows(&to_wgs), w)
+    })?;
+    let m = manifest(a, opts)?;
+    output::write_file(
+        d,
+        "manifest.json",
+        (serde_json::to_string_pretty(&m)? + "\n").as_bytes(),
+    )?;
+    // PDF reports (report::pipeline) read the detail files back from `d`.
+    if !opts.no_reports {
+        crate::report::pipeline::render_reports(&a.report_input(), d, opts.jobs, opts.progress)?;
+    }
+    Ok(())
 }

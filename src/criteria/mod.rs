@@ -442,6 +442,32 @@ impl CriteriaRegistry {
     }
 }
 
+/// Built-in criteria sets plus the portfolio's `[criteria.NAME]` sets, validated.
+pub fn registry_for(
+    pf: &crate::portfolio::Portfolio,
+) -> Result<CriteriaRegistry, crate::error::InputError> {
+    let mut user = BTreeMap::new();
+    for (name, table) in &pf.criteria {
+        let o: CriteriaOverride = toml::Value::Table(table.clone()).try_into().map_err(|e: toml::de::Error| {
+            crate::error::InputError::new(
+                &pf.file,
+                format!("key criteria.{name}"),
+                e.message().trim().to_string(),
+                "keys of a criteria set: base, route, e_over_g, poisson, neutral_axis, thresholds, compressive_strain, source (docs/formats.md)",
+            )
+        })?;
+        user.insert(name.clone(), o);
+    }
+    CriteriaRegistry::with_user_sets(&user).map_err(|e| {
+        crate::error::InputError::new(
+            &pf.file,
+            "key criteria",
+            e.to_string(),
+            "see docs/formats.md for criteria sets",
+        )
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

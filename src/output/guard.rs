@@ -44,6 +44,13 @@ pub const OUTPUT_FILES: [&str; 8] = [
 /// The folder of per-structure reports inside an output folder.
 pub const REPORTS_DIR: &str = crate::report::pipeline::REPORTS_DIR;
 
+/// The folder of per-structure detail files inside an output folder.
+pub const DETAILS_DIR: &str = crate::assess::DETAILS_DIR;
+
+/// The folders Plinth writes inside an output folder, each holding only per-structure files
+/// named by a safe stem ([`is_report_name`]).
+pub const OUTPUT_DIRS: [&str; 2] = [REPORTS_DIR, DETAILS_DIR];
+
 /// What the folder may already be.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Policy {
@@ -312,18 +319,19 @@ pub fn is_report_name(name: &str) -> bool {
 }
 
 /// The first entry (relative path, sorted order) of an output folder that Plinth does not write:
-/// anything but a plain file named in [`OUTPUT_FILES`], or a plain `reports/` folder holding plain
-/// report files ([`is_report_name`]). None when the folder holds only Plinth's names.
+/// anything but a plain file named in [`OUTPUT_FILES`], or a plain `reports/` or `details/` folder
+/// holding plain per-structure files ([`is_report_name`]). None when the folder holds only
+/// Plinth's names.
 pub fn foreign_entry(dir: &Path) -> Result<Option<String>, Reason> {
     for name in list(dir)? {
         let p = dir.join(&name);
         if OUTPUT_FILES.contains(&name.as_str()) && is_plain_file(&p) {
             continue;
         }
-        if name == REPORTS_DIR && is_plain_dir(&p) {
+        if OUTPUT_DIRS.contains(&name.as_str()) && is_plain_dir(&p) {
             for r in list(&p)? {
                 if !(is_report_name(&r) && is_plain_file(&p.join(&r))) {
-                    return Ok(Some(format!("{REPORTS_DIR}/{r}")));
+                    return Ok(Some(format!("{name}/{r}")));
                 }
             }
             continue;
@@ -336,16 +344,19 @@ pub fn foreign_entry(dir: &Path) -> Result<Option<String>, Reason> {
 /// Delete a replaced folder (moved aside after the new one is in place): only the entries Plinth
 /// writes are removed. Returns the first entry left behind, if any (then the folder stays).
 pub fn remove_replaced(dir: &Path) -> io::Result<Option<String>> {
-    let reports = dir.join(REPORTS_DIR);
-    if is_plain_dir(&reports) {
-        for e in std::fs::read_dir(&reports)? {
+    for sub in OUTPUT_DIRS {
+        let sub = dir.join(sub);
+        if !is_plain_dir(&sub) {
+            continue;
+        }
+        for e in std::fs::read_dir(&sub)? {
             let e = e?;
             let name = e.file_name().to_string_lossy().into_owned();
             if is_report_name(&name) && e.file_type()?.is_file() {
                 std::fs::remove_file(e.path())?;
             }
         }
-        std::fs::remove_dir(&reports).ok();
+        std::fs::remove_dir(&sub).ok();
     }
     for f in OUTPUT_FILES {
         let p = dir.join(f);
@@ -467,6 +478,8 @@ mod tests {
         std::fs::write(dir.join("results.json"), "{}").unwrap();
         std::fs::write(dir.join("reports/B-1.pdf"), "%PDF").unwrap();
         std::fs::write(dir.join("reports/B-1.json"), "{}").unwrap();
+        std::fs::create_dir_all(dir.join("details")).unwrap();
+        std::fs::write(dir.join("details/B-1.json"), "{}").unwrap();
     }
 
     fn reason(r: Result<Target, Refused>) -> Reason {
@@ -495,6 +508,12 @@ mod tests {
             reason(check(&d, Policy::NewOrEmpty, &[])),
             Reason::NotEmpty(_)
         ));
+        std::fs::write(d.join("details/notes.txt"), "mine").unwrap();
+        assert_eq!(
+            reason(check(&d, Policy::ReplaceOutput, &[])),
+            Reason::Foreign("details/notes.txt".into())
+        );
+        std::fs::remove_file(d.join("details/notes.txt")).unwrap();
         std::fs::write(d.join("reports/notes.txt"), "mine").unwrap();
         assert_eq!(
             reason(check(&d, Policy::ReplaceOutput, &[])),

@@ -206,17 +206,34 @@ pub fn hex(b: &[u8]) -> String {
     b.iter().map(|x| format!("{x:02x}")).collect()
 }
 
-/// results.json text (pretty, stable field order).
+/// results.json text (see [`results_json_to`]).
 pub fn results_json(r: &Results) -> Result<String> {
     let mut v = Vec::new();
     results_json_to(r, &mut v)?;
     Ok(String::from_utf8(v)?)
 }
 
-/// Stream results.json.
+/// Stream results.json: the portfolio block indented, then one structure record per line (a
+/// city of records stays readable line by line and compact), stable field order.
 pub fn results_json_to(r: &Results, w: &mut dyn Write) -> Result<()> {
-    serde_json::to_writer_pretty(&mut *w, r)?;
-    w.write_all(b"\n")?;
+    results_layout_to(&r.portfolio, &r.structures, w)
+}
+
+/// The results.json layout of [`results_json_to`] for any serialisable portfolio block and
+/// records (`merge` writes parsed values with it).
+pub fn results_layout_to<P: serde::Serialize, S: serde::Serialize>(
+    portfolio: &P,
+    structures: &[S],
+    w: &mut dyn Write,
+) -> Result<()> {
+    w.write_all(b"{\n\"portfolio\": ")?;
+    serde_json::to_writer_pretty(&mut *w, portfolio)?;
+    w.write_all(b",\n\"structures\": [")?;
+    for (i, s) in structures.iter().enumerate() {
+        w.write_all(if i == 0 { b"\n" } else { b",\n" })?;
+        serde_json::to_writer(&mut *w, s)?;
+    }
+    w.write_all(b"\n]\n}\n")?;
     Ok(())
 }
 
@@ -306,13 +323,13 @@ pub fn results_geojson_to(
     Ok(())
 }
 
-/// One row of points.csv.
+/// One row of points.csv (borrowing the inputs: built on the fly while writing).
 #[derive(Debug, Clone, serde::Serialize)]
-pub struct PointRow {
+pub struct PointRow<'a> {
     /// Dataset name.
-    pub dataset: String,
+    pub dataset: &'a str,
     /// Point id.
-    pub point_id: String,
+    pub point_id: &'a str,
     /// Line in the points file.
     pub line: u64,
     /// Longitude (WGS84).
@@ -320,73 +337,86 @@ pub struct PointRow {
     /// Latitude (WGS84).
     pub lat: f64,
     /// Structure id ("" for a tie).
-    pub structure_id: String,
+    pub structure_id: &'a str,
     /// `structure` | `surroundings` | `tie`.
-    pub role: String,
+    pub role: &'static str,
     /// Inside the footprint.
     pub inside: bool,
     /// Distance to the footprint, m.
     pub distance_m: f64,
     /// `kept` | `rejected`.
-    pub status: String,
+    pub status: &'static str,
     /// Rejection reason ("" when kept).
-    pub reason: String,
+    pub reason: &'static str,
     /// Vertical velocity of the point, mm/yr (+ up), when computed.
     pub vertical_velocity_mm_per_yr: Option<f64>,
     /// Number of structures whose surroundings ring holds the point.
     pub surroundings_of: usize,
 }
 
-/// points.csv text.
-pub fn points_csv(rows: &[PointRow]) -> Result<Vec<u8>> {
-    let mut v = Vec::new();
-    points_csv_to(rows, &mut v)?;
-    Ok(v)
-}
+/// Column names of points.csv, in order.
+pub const POINT_COLUMNS: [&str; 13] = [
+    "dataset",
+    "point_id",
+    "line",
+    "lon",
+    "lat",
+    "structure_id",
+    "role",
+    "inside",
+    "distance_m",
+    "status",
+    "reason",
+    "vertical_velocity_mm_per_yr",
+    "surroundings_of",
+];
 
 /// Stream points.csv.
-pub fn points_csv_to(rows: &[PointRow], out: &mut dyn Write) -> Result<()> {
-    let mut w = csv::Writer::from_writer(out);
+pub fn points_csv_to<'a>(
+    rows: impl IntoIterator<Item = PointRow<'a>>,
+    out: &mut dyn Write,
+) -> Result<()> {
+    let mut w = csv::WriterBuilder::new()
+        .has_headers(false)
+        .from_writer(out);
+    w.write_record(POINT_COLUMNS)?;
     for r in rows {
         w.serialize(r)?;
-    }
-    if rows.is_empty() {
-        w.write_record([
-            "dataset",
-            "point_id",
-            "line",
-            "lon",
-            "lat",
-            "structure_id",
-            "role",
-            "inside",
-            "distance_m",
-            "status",
-            "reason",
-            "vertical_velocity_mm_per_yr",
-            "surroundings_of",
-        ])?;
     }
     w.flush()?;
     Ok(())
 }
 
-/// points.geojson text.
-pub fn points_geojson(rows: &[PointRow]) -> Result<String> {
-    let mut v = Vec::new();
-    points_geojson_to(rows, &mut v)?;
-    Ok(String::from_utf8(v)?)
+/// The geometry member of a point feature.
+#[derive(serde::Serialize)]
+struct PointGeometry {
+    r#type: &'static str,
+    coordinates: [f64; 2],
+}
+
+/// One point feature of points.geojson.
+#[derive(serde::Serialize)]
+struct PointFeature<'r, 'a> {
+    r#type: &'static str,
+    properties: &'r PointRow<'a>,
+    geometry: PointGeometry,
 }
 
 /// Stream points.geojson, one feature at a time.
-pub fn points_geojson_to(rows: &[PointRow], w: &mut dyn Write) -> Result<()> {
+pub fn points_geojson_to<'a>(
+    rows: impl IntoIterator<Item = PointRow<'a>>,
+    w: &mut dyn Write,
+) -> Result<()> {
     w.write_all(b"{\"type\":\"FeatureCollection\",\"features\":[")?;
-    for (i, r) in rows.iter().enumerate() {
-        let f = serde_json::json!({
-            "type": "Feature",
-            "properties": r,
-            "geometry": {"type": "Point", "coordinates": [round9(r.lon), round9(r.lat)]},
-        });
+    for (i, r) in rows.into_iter().enumerate() {
+        let f = PointFeature {
+            r#type: "Feature",
+            properties: &r,
+            geometry: PointGeometry {
+                r#type: "Point",
+                coordinates: [round9(r.lon), round9(r.lat)],
+            },
+        };
         if i > 0 {
             w.write_all(b",")?;
         }

@@ -1,4 +1,5 @@
-//! From a finished analysis ([`crate::run::Analysis`]) to rendered PDF reports in a folder.
+//! From the results of a run ([`ReportInput`]: the portfolio, its inputs, results.json and the
+//! per-structure detail files) to rendered PDF reports in a folder.
 //!
 //! Owns: the run-level report context (names, date, people, inputs with SHA-256, parameters,
 //! references), the chart data of every structure report taken from the pipeline's own results
@@ -11,7 +12,8 @@
 //! [`super::charts`]), the typst world, or the atomic swap of the output folder (the caller
 //! passes its staging folder and discards it when this returns an error).
 //!
-//! The nested detail of a result (`series`, `metrics`, `damage`) is read back through small
+//! The nested detail of a result (`series`, `metrics`, `damage`, the points), read from its
+//! detail file (`details/<stem>.json`) in the folder being written, comes back through small
 //! private `Deserialize` mirrors of the fields drawn here, rather than through the stage types
 //! (which serialise only). A field that is missing or renamed makes that chart "not computed"
 //! with the reason, never a silent zero; the integration tests check that the demo charts are
@@ -52,10 +54,29 @@ use super::references::{CORE_METHODS, Method, citations};
 use super::render::{ReportJob, render_batch};
 use super::text::{TextBlocks, TextContext};
 use super::world::ReportShared;
-use crate::ingest::{Point, Structure};
-use crate::output::PointRow;
-use crate::results::{Status, StructureResult};
-use crate::run::Analysis;
+use crate::assess::Window;
+use crate::coords::Crs;
+use crate::ingest::{Dataset, Structure};
+use crate::portfolio::Portfolio;
+use crate::results::{DetailRecord, Results, Status, StructureResult};
+
+/// What the reports render: the portfolio, its inputs and the results. The per-structure
+/// detail is read from the detail files named by the results (`detail_file`) in the folder the
+/// reports are written to.
+pub struct ReportInput<'a> {
+    /// The portfolio.
+    pub portfolio: &'a Portfolio,
+    /// Structures in input order (of this shard).
+    pub structures: &'a [Structure],
+    /// Datasets (names and epochs).
+    pub datasets: &'a [Dataset],
+    /// The analysis CRS.
+    pub analysis_crs: &'a Crs,
+    /// The results document.
+    pub results: &'a Results,
+    /// The assessment window.
+    pub window: Window,
+}
 
 /// Folder (inside the output folder) of the per-structure reports.
 pub const REPORTS_DIR: &str = "reports";
@@ -84,7 +105,7 @@ pub struct ReportSummary {
 /// Any failing document fails the call with the document's id and the typst diagnostics
 /// (`asset.typ:LINE:COL`); files already written stay in `dir`, which the caller discards.
 pub fn render_reports(
-    a: &Analysis,
+    a: &ReportInput,
     dir: &Path,
     jobs: Option<usize>,
     progress: bool,
@@ -98,12 +119,11 @@ pub fn render_reports(
         None => (ReportShared::builtin(), TextBlocks::builtin()?),
     };
     let ctx = report_context(a)?;
-    let criteria = crate::run::build_criteria(&a.portfolio)?;
-    let lookup = PointLookup::new(a);
+    let criteria = crate::criteria::registry_for(a.portfolio)?;
     // The works geometry is not in results.json: rebuilt once from `[works]` (see super::works).
     let works_geometry = match &a.portfolio.works {
         Some(w) => Some(
-            crate::works::WorksGeometry::project(w, &a.inputs.analysis_crs, &a.portfolio.file)
+            crate::works::WorksGeometry::project(w, a.analysis_crs, &a.portfolio.file)
                 .context("planned works for the reports")?,
         ),
         None => None,
@@ -114,7 +134,6 @@ pub fn render_reports(
         .max(1);
 
     let by_id: BTreeMap<&str, &Structure> = a
-        .inputs
         .structures
         .iter()
         .map(|s| (s.raw.id.as_str(), s))
@@ -137,16 +156,19 @@ pub fn render_reports(
     let build_error: Mutex<Option<anyhow::Error>> = Mutex::new(None);
     let portfolio_job = portfolio_job(a, &ctx, &blocks)?;
     let asset_jobs = items.iter().map_while(|(r, s, _)| {
-        match asset_job(
-            a,
-            r,
-            s,
-            &ctx,
-            &blocks,
-            &criteria,
-            &lookup,
-            works_geometry.as_ref(),
-        ) {
+        let job = read_detail(dir, r).and_then(|detail| {
+            asset_job(
+                a,
+                r,
+                s,
+                &ctx,
+                &blocks,
+                &criteria,
+                &detail,
+                works_geometry.as_ref(),
+            )
+        });
+        match job {
             Ok(job) => Some(job),
             Err(e) => {
                 if let Ok(mut slot) = build_error.lock() {
@@ -233,7 +255,7 @@ fn display_path(path: &Path, base: Option<&Path>) -> String {
 
 /// The methods whose references a run prints: the damage core, the point screening and the
 /// time-series methods every run uses, the decomposition when two geometries were read.
-fn run_methods(a: &Analysis) -> Vec<Method> {
+fn run_methods(a: &ReportInput) -> Vec<Method> {
     let mut m = CORE_METHODS.to_vec();
     m.extend_from_slice(&[
         Method::SonCording2005,
@@ -254,7 +276,7 @@ fn run_methods(a: &Analysis) -> Vec<Method> {
 /// Run-level report facts: names and people from `[report]`, the report date from the data
 /// (`analysis_date`, else the window end — never the clock), inputs with SHA-256 (hashed once),
 /// the assessment parameters and the method references.
-pub fn report_context(a: &Analysis) -> Result<ReportContext> {
+pub fn report_context(a: &ReportInput) -> Result<ReportContext> {
     let pf = &a.portfolio;
     let date = a
         .results
@@ -280,7 +302,7 @@ pub fn report_context(a: &Analysis) -> Result<ReportContext> {
     }
     let s = &pf.assessment;
     let parameters = vec![
-        Param::new("Analysis CRS", a.inputs.analysis_crs.name()),
+        Param::new("Analysis CRS", a.analysis_crs.name()),
         Param::new(
             "Assessment window",
             format!("{} to {}", a.window.start, a.window.end),
@@ -504,6 +526,17 @@ struct DamageZoneJson {
     horizontal_strain_unavailable: bool,
 }
 
+/// The detail file of a result, from the folder being written.
+fn read_detail(dir: &Path, r: &StructureResult) -> Result<DetailRecord> {
+    let rel = r.detail_file.as_deref().ok_or_else(|| {
+        anyhow!(
+            "report for `{}`: the result names no detail file (results written by an older Plinth; re-run `plinth assess`)",
+            r.id
+        )
+    })?;
+    DetailRecord::read(dir, rel).with_context(|| format!("report for `{}`", r.id))
+}
+
 /// Reads a nested detail value into its mirror; `Err(reason)` when absent or not as expected.
 fn mirror<T: for<'de> Deserialize<'de>>(v: &serde_json::Value, what: &str) -> Result<T, String> {
     if v.is_null() {
@@ -515,31 +548,6 @@ fn mirror<T: for<'de> Deserialize<'de>>(v: &serde_json::Value, what: &str) -> Re
 // ---------------------------------------------------------------------------------------------
 // Plan map
 // ---------------------------------------------------------------------------------------------
-
-/// Points of the run by (dataset name, point id).
-struct PointLookup<'a> {
-    points: BTreeMap<(&'a str, &'a str), &'a Point>,
-    /// Point rows per structure id.
-    rows: BTreeMap<&'a str, Vec<&'a PointRow>>,
-}
-
-impl<'a> PointLookup<'a> {
-    fn new(a: &'a Analysis) -> Self {
-        let mut points = BTreeMap::new();
-        for d in &a.inputs.datasets {
-            for p in d.iter_points() {
-                points.insert((d.name.as_str(), p.id()), &d.points[p.index()]);
-            }
-        }
-        let mut rows: BTreeMap<&str, Vec<&PointRow>> = BTreeMap::new();
-        for r in &a.point_rows {
-            if r.role == "structure" {
-                rows.entry(r.structure_id.as_str()).or_default().push(r);
-            }
-        }
-        Self { points, rows }
-    }
-}
 
 fn rings_of(
     mp: &geo::MultiPolygon<f64>,
@@ -559,7 +567,7 @@ fn rings_of(
 }
 
 /// Plan-map data of one structure (local metres of the structure's frame).
-fn map_chart(a: &Analysis, s: &Structure, lookup: &PointLookup) -> Result<MapChart, String> {
+fn map_chart(a: &ReportInput, s: &Structure, detail: &DetailRecord) -> Result<MapChart, String> {
     let to_local = |x: f64, y: f64| s.frame.to_local(x, y);
     let mut footprints = rings_of(&s.footprint, &to_local);
     if footprints.is_empty() {
@@ -576,14 +584,8 @@ fn map_chart(a: &Analysis, s: &Structure, lookup: &PointLookup) -> Result<MapCha
     };
     let mut kept = Vec::new();
     let mut rejected = Vec::new();
-    for row in lookup.rows.get(s.raw.id.as_str()).into_iter().flatten() {
-        let Some(p) = lookup
-            .points
-            .get(&(row.dataset.as_str(), row.point_id.as_str()))
-        else {
-            continue;
-        };
-        let (x, y) = to_local(p.x, p.y);
+    for row in detail.points.iter().filter(|p| p.role == "structure") {
+        let (x, y) = to_local(row.x, row.y);
         let v = row.vertical_velocity_mm_per_yr.unwrap_or(f64::NAN);
         let mp = MapPoint {
             x_m: x,
@@ -606,7 +608,7 @@ fn map_chart(a: &Analysis, s: &Structure, lookup: &PointLookup) -> Result<MapCha
             bb.max().x + grow,
             bb.max().y + grow,
         );
-        for other in &a.inputs.structures {
+        for other in a.structures {
             if other.raw.id == s.raw.id {
                 continue;
             }
@@ -621,7 +623,7 @@ fn map_chart(a: &Analysis, s: &Structure, lookup: &PointLookup) -> Result<MapCha
     }
     Ok(MapChart {
         title: format!("Plan of {} and its measurement points", one_line(&s.raw.id)),
-        crs_label: a.inputs.analysis_crs.name(),
+        crs_label: a.analysis_crs.name(),
         origin_m: [s.frame.origin_x, s.frame.origin_y],
         footprint,
         buffer,
@@ -976,10 +978,11 @@ const Z90: f64 = 1.645;
 
 fn interaction_chart(
     r: &StructureResult,
+    damage: &serde_json::Value,
     metrics: &Result<MetricsJson, String>,
     criteria: &crate::criteria::CriteriaRegistry,
 ) -> Result<InteractionChart, String> {
-    let dmg: DamageJson = mirror(&r.damage, "damage")?;
+    let dmg: DamageJson = mirror(damage, "damage")?;
     let gov = dmg
         .governing
         .as_ref()
@@ -1092,39 +1095,41 @@ fn for_display(r: &StructureResult) -> Cow<'_, StructureResult> {
 /// The structure report model and its chart data.
 #[allow(clippy::too_many_arguments)]
 fn asset_job(
-    a: &Analysis,
+    a: &ReportInput,
     r: &StructureResult,
     s: &Structure,
     ctx: &ReportContext,
     blocks: &TextBlocks,
     criteria: &crate::criteria::CriteriaRegistry,
-    lookup: &PointLookup,
+    detail: &DetailRecord,
     works_geometry: Option<&crate::works::WorksGeometry>,
 ) -> Result<ReportJob> {
     let mut model = build::asset_report(&for_display(r), ctx, blocks)
         .with_context(|| format!("report model for `{}`", r.id))?;
     let metrics: Result<MetricsJson, String> = match r.status {
-        Status::Assessed => mirror(&r.metrics, "metrics"),
+        Status::Assessed => mirror(&detail.metrics, "metrics"),
         Status::InsufficientData => Err("structure not assessable (see status reasons)".into()),
     };
-    enrich_model(a, r, &mut model, &metrics, criteria, lookup);
+    enrich_model(a, r, &mut model, &metrics, criteria, detail);
     let timeseries = match r.status {
-        Status::Assessed => timeseries_chart(&r.id, &r.series),
+        Status::Assessed => timeseries_chart(&r.id, &detail.series),
         // The vertical series of a structure that failed the minimums is not shown: its
         // trend would read as a finding.
         Status::InsufficientData => Err("structure not assessable (see status reasons)".into()),
     };
     let mut charts = AssetCharts {
-        map: map_chart(a, s, lookup),
+        map: map_chart(a, s, detail),
         timeseries,
         profiles: profile_charts(&metrics),
         interaction: match r.status {
-            Status::Assessed => interaction_chart(r, &metrics, criteria),
+            Status::Assessed => interaction_chart(r, &detail.damage, &metrics, criteria),
             Status::InsufficientData => Err("structure not assessable".into()),
         },
         works: None,
     };
-    if let Some((view, works_charts)) = super::works::works_section(a, r, s, works_geometry) {
+    if let Some((view, works_charts)) =
+        super::works::works_section(a, r, s, &detail.works, works_geometry)
+    {
         model.works = Some(view);
         charts.works = Some(works_charts);
     }
@@ -1134,23 +1139,23 @@ fn asset_job(
 /// Fills the model fields the results record alone cannot: footprint length and area, the
 /// data sets per geometry, and the criteria parameters.
 fn enrich_model(
-    a: &Analysis,
+    a: &ReportInput,
     r: &StructureResult,
     model: &mut AssetReport,
     metrics: &Result<MetricsJson, String>,
     criteria: &crate::criteria::CriteriaRegistry,
-    lookup: &PointLookup,
+    detail: &DetailRecord,
 ) {
     if let Ok(Some(ax)) = metrics.as_ref().map(|m| m.axes.as_ref()) {
         model.structure.length = with_unit(ax.principal.length_m, 1, "m");
         model.structure.footprint_area = with_unit(ax.footprint_area_m2, 0, "m²");
     }
-    let rows = lookup.rows.get(r.id.as_str());
+    let rows = detail.points.iter().filter(|p| p.role == "structure");
     model.data_quality.datasets = a
         .portfolio
         .datasets
         .iter()
-        .zip(&a.inputs.datasets)
+        .zip(a.datasets)
         .map(|(spec, d)| {
             let in_window: Vec<&NaiveDate> = d
                 .epochs
@@ -1158,8 +1163,7 @@ fn enrich_model(
                 .filter(|e| **e >= a.window.start && **e <= a.window.end)
                 .collect();
             let kept = rows
-                .into_iter()
-                .flatten()
+                .clone()
                 .filter(|row| row.dataset == d.name && row.status == "kept")
                 .count();
             let g = a
@@ -1244,7 +1248,7 @@ fn category_text(c: Option<u8>, status: Option<Status>) -> String {
 }
 
 /// The overview model and its map.
-fn portfolio_job(a: &Analysis, ctx: &ReportContext, blocks: &TextBlocks) -> Result<ReportJob> {
+fn portfolio_job(a: &ReportInput, ctx: &ReportContext, blocks: &TextBlocks) -> Result<ReportJob> {
     let res = &a.results;
     let mut rows = rank_rows(
         res.structures
@@ -1402,9 +1406,8 @@ fn portfolio_job(a: &Analysis, ctx: &ReportContext, blocks: &TextBlocks) -> Resu
 }
 
 /// All footprints in a common plain frame at their mean centroid (analysis CRS axes).
-fn portfolio_map(a: &Analysis) -> Result<PortfolioMapChart, String> {
+fn portfolio_map(a: &ReportInput) -> Result<PortfolioMapChart, String> {
     let centroids: Vec<(f64, f64)> = a
-        .inputs
         .structures
         .iter()
         .filter_map(|s| s.footprint.centroid().map(|c| (c.x(), c.y())))
@@ -1422,7 +1425,7 @@ fn portfolio_map(a: &Analysis) -> Result<PortfolioMapChart, String> {
         .map(|r| (r.id.as_str(), r))
         .collect();
     let mut structures = Vec::new();
-    for s in &a.inputs.structures {
+    for s in a.structures {
         let category_index = by_id.get(s.raw.id.as_str()).and_then(|r| match r.status {
             Status::Assessed => r.damage_category,
             Status::InsufficientData => None,
@@ -1437,7 +1440,7 @@ fn portfolio_map(a: &Analysis) -> Result<PortfolioMapChart, String> {
     }
     Ok(PortfolioMapChart {
         title: format!("{} by damage category", one_line(&a.results.portfolio.name)),
-        crs_label: a.inputs.analysis_crs.name(),
+        crs_label: a.analysis_crs.name(),
         origin_m: [ox, oy],
         structures,
     })
@@ -1576,7 +1579,7 @@ mod tests {
         let criteria =
             crate::criteria::CriteriaRegistry::with_user_sets(&BTreeMap::new()).expect("builtin");
         let masonry = criteria.get("masonry").expect("masonry set");
-        let mut r: StructureResult = serde_json::from_str(
+        let r: StructureResult = serde_json::from_str(
             r#"{
             "id": "T-1", "name": "n", "status": "assessed", "status_reasons": [],
             "n_points": 10, "n_rejected": {}, "n_surroundings": 0, "datasets": ["asc"],
@@ -1589,21 +1592,21 @@ mod tests {
             "east_velocity_se_mm_per_yr": null, "tilt_se": null, "damage_category_name": null,
             "criteria_set": "masonry", "height_m": 8.0, "structure_type": "masonry",
             "trigger_status": null, "triggers": [], "report_file": null, "fallbacks": [],
-            "assumptions": [], "change": null,
-            "damage": {"governing": {"route": "limiting-tensile-strain", "zone_index": 0},
-                       "zones": [{"mode": "hogging", "l_over_h": 2.5, "deflection_ratio": -2e-4,
-                                  "horizontal_strain_used": 0.0,
-                                  "horizontal_strain_signed": null,
-                                  "horizontal_strain_unavailable": true}]}
+            "assumptions": [], "change": null
         }"#,
         )
         .expect("result");
+        let mut damage = json!({"governing": {"route": "limiting-tensile-strain", "zone_index": 0},
+                       "zones": [{"mode": "hogging", "l_over_h": 2.5, "deflection_ratio": -2e-4,
+                                  "horizontal_strain_used": 0.0,
+                                  "horizontal_strain_signed": null,
+                                  "horizontal_strain_unavailable": true}]});
         let metrics: Result<MetricsJson, String> = serde_json::from_value(json!({
             "axes": null, "axis_metrics": [], "horizontal_strain": null,
             "uncertainty": {"deflection_ratio": {"se": 1e-5}}
         }))
         .map_err(|e| e.to_string());
-        let c = interaction_chart(&r, &metrics, &criteria).expect("chart");
+        let c = interaction_chart(&r, &damage, &metrics, &criteria).expect("chart");
         assert_eq!(c.mode, BendingMode::Hogging);
         assert_eq!(
             (c.l_over_h, c.e_over_g, c.poisson),
@@ -1617,7 +1620,7 @@ mod tests {
         assert!((c.deflection_ratio.upper - (2e-4 + 1.645e-5)).abs() < 1e-15);
         assert_eq!(c.horizontal_strain.lower, c.horizontal_strain.upper);
         assert!(c.note.contains("not measured"));
-        r.damage["governing"]["route"] = json!("son-cording");
-        assert!(interaction_chart(&r, &metrics, &criteria).is_err());
+        damage["governing"]["route"] = json!("son-cording");
+        assert!(interaction_chart(&r, &damage, &metrics, &criteria).is_err());
     }
 }

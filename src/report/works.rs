@@ -32,9 +32,9 @@ use serde::Deserialize;
 
 use super::format::{fixed, one_in, one_line, per_mille, percent, with_unit};
 use super::model::*;
+use super::pipeline::ReportInput;
 use crate::ingest::Structure;
 use crate::results::StructureResult;
-use crate::run::Analysis;
 use crate::works::WorksGeometry;
 
 /// Works nearer than this to the footprint centroid are framed in the plan view, m.
@@ -387,13 +387,14 @@ fn stage_facts(w: &WorksJson) -> Vec<Param> {
 /// The works section model and its chart data for one structure; `None` when the portfolio
 /// has no `[works]`.
 pub fn works_section(
-    a: &Analysis,
+    a: &ReportInput,
     r: &StructureResult,
     s: &Structure,
+    works: &serde_json::Value,
     geometry: Option<&WorksGeometry>,
 ) -> Option<(WorksView, WorksCharts)> {
     a.portfolio.works.as_ref()?;
-    let w = match read_works(&r.works) {
+    let w = match read_works(works) {
         Ok(w) => w,
         Err(reason) => {
             let charts = WorksCharts {
@@ -487,7 +488,7 @@ pub fn works_section(
 // ---------------------------------------------------------------------------------------------
 
 fn plan_chart(
-    a: &Analysis,
+    a: &ReportInput,
     s: &Structure,
     g: &WorksGeometry,
     w: &WorksJson,
@@ -672,7 +673,7 @@ fn plan_chart(
     let pad = pad_m.max(0.08 * (x1 - x0).max(y1 - y0));
     Ok(WorksPlanChart {
         title: format!("Planned works near {}", one_line(&s.raw.id)),
-        crs_label: a.inputs.analysis_crs.name(),
+        crs_label: a.analysis_crs.name(),
         origin_m: [s.frame.origin_x, s.frame.origin_y],
         footprint,
         tunnels,

@@ -27,6 +27,14 @@ fn demo_headline_results_match_planted_truth() {
         &["--no-reports"],
     );
     let t = truth();
+    // The results layout: one compact record per line of results.json, at most 5 KB each (the
+    // detail is in details/<stem>.json, joined in by `assess` above).
+    let text = std::fs::read_to_string(fx.path("out/results.json")).unwrap();
+    let records: Vec<&str> = text.lines().filter(|l| l.starts_with("{\"id\":")).collect();
+    assert_eq!(records.len(), r["structures"].as_array().unwrap().len());
+    for l in &records {
+        assert!(l.len() <= 5 * 1024, "{} bytes: {}", l.len(), &l[..80]);
+    }
     // Every structure's status is the planted one (empty, sparse and mostly low-coherence ones
     // are insufficient, never category 0).
     for s in r["structures"].as_array().unwrap() {

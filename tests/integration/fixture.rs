@@ -196,7 +196,9 @@ pub fn plinth(args: &[&str]) -> std::process::Output {
         .unwrap()
 }
 
-/// Run `assess` and return results.json parsed; panics with stderr on failure.
+/// Run `assess` and return results.json parsed, each structure record joined with the parts of
+/// its detail file (`series`, `metrics`, `damage`, `grade`, `works`, `points`); panics with
+/// stderr on failure.
 pub fn assess(portfolio: &Path, out: &Path, extra: &[&str]) -> serde_json::Value {
     let mut args = vec![
         "assess",
@@ -213,7 +215,27 @@ pub fn assess(portfolio: &Path, out: &Path, extra: &[&str]) -> serde_json::Value
         o.status,
         String::from_utf8_lossy(&o.stderr)
     );
-    serde_json::from_str(&std::fs::read_to_string(out.join("results.json")).unwrap()).unwrap()
+    read_results(out)
+}
+
+/// results.json of an output folder, each record joined with its detail file.
+pub fn read_results(out: &Path) -> serde_json::Value {
+    let mut r: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("results.json")).unwrap()).unwrap();
+    for s in r["structures"].as_array_mut().unwrap() {
+        let rel = s["detail_file"]
+            .as_str()
+            .unwrap_or_else(|| panic!("{} names no detail file", s["id"]))
+            .to_string();
+        let d: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(out.join(&rel)).unwrap()).unwrap();
+        assert_eq!(d["id"], s["id"], "{rel}");
+        for k in ["series", "metrics", "damage", "grade", "works", "points"] {
+            assert!(s.get(k).is_none(), "{k} is in the compact record");
+            s[k] = d[k].clone();
+        }
+    }
+    r
 }
 
 /// The structure record with this id.

@@ -258,13 +258,33 @@ fn check_prints_coverage_and_writes_nothing() {
     let o = plinth(&["check", p.to_str().unwrap()]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let err = String::from_utf8_lossy(&o.stderr);
+    assert!(!fx.path("out").exists());
+    // The point screens of `check` are those of `assess`: the same structure count and the same
+    // coherence and epoch rejections; `assess` may find more structures insufficient (its
+    // time-series stage runs after the point screens).
+    let r = assess(&p, &fx.path("full"), &["--no-reports"]);
+    let cov = &r["portfolio"]["coverage"];
     assert!(
-        err.contains("structures: 5") && err.contains("insufficient_data: 4")
-            || err.contains("insufficient_data"),
+        err.contains(&format!("structures: {}", cov["structures"])),
         "{err}"
     );
+    for reason in ["low_coherence", "too_few_epochs"] {
+        let n = cov["points_rejected"][reason].as_u64().unwrap_or(0);
+        if n > 0 {
+            assert!(err.contains(&format!("{reason}: {n}")), "{reason}: {err}");
+        }
+    }
     assert!(err.contains("low_coherence: 1"), "{err}");
-    assert!(!fx.path("out").exists());
+    let line = err
+        .lines()
+        .find(|l| l.contains("meeting the minimums:"))
+        .expect("a minimums line");
+    let meeting: u64 = line.rsplit(' ').next().unwrap().parse().unwrap();
+    assert!(
+        meeting >= cov["by_status"]["assessed"].as_u64().unwrap(),
+        "{err}"
+    );
+    assert!(err.contains("not checked here"), "{err}");
 }
 
 #[test]
