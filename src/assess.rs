@@ -665,7 +665,7 @@ pub struct StructureDetail<'a> {
     pub grade: Option<GradeDetail>,
     /// Works screening detail; null without `[works]`.
     pub works: Option<crate::works::WorksScreening>,
-    /// One row per member point (structure and surroundings roles).
+    /// One row per point of the structure itself (role `structure`).
     pub points: Vec<DetailPoint<'a>>,
 }
 
@@ -1233,7 +1233,10 @@ fn works_stage(
     works_out
 }
 
-/// The detail file's per-point rows, one per member.
+/// The detail file's per-point rows: one per point of the structure itself (role `structure`).
+/// Surroundings points are left out: each lies in the rings of many structures, so their rows
+/// would repeat across detail files (points.csv has one row per point; the surroundings enter
+/// the detail through `series.relative_to_surroundings`).
 fn detail_points<'a>(
     ctx: &RunContext<'a>,
     members: &[Member<'a>],
@@ -1242,6 +1245,7 @@ fn detail_points<'a>(
     members
         .iter()
         .zip(verdicts)
+        .filter(|(m, _)| m.role == Role::Structure)
         .map(|(m, v)| DetailPoint {
             dataset: ctx.datasets[m.dataset].name.as_str(),
             point_id: m.point.id(),

@@ -408,7 +408,7 @@ pub struct DetailRecord {
     /// Works screening detail (stages, sections, predicted against observed, face history).
     #[serde(default)]
     pub works: serde_json::Value,
-    /// One row per member point.
+    /// One row per point of the structure itself (role `structure`).
     #[serde(default)]
     pub points: Vec<DetailPointRecord>,
 }
