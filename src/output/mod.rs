@@ -28,7 +28,6 @@ pub fn write_file(dir: &Path, rel: &str, bytes: &[u8]) -> Result<()> {
         std::fs::File::create(&p).with_context(|| format!("cannot write {}", p.display()))?;
     f.write_all(bytes)
         .with_context(|| format!("cannot write {}", p.display()))?;
-    f.sync_all().ok();
     Ok(())
 }
 
@@ -47,10 +46,8 @@ pub fn write_with(
         std::fs::File::create(&p).with_context(|| format!("cannot write {}", p.display()))?;
     let mut w = std::io::BufWriter::with_capacity(1 << 20, file);
     f(&mut w).with_context(|| format!("cannot write {}", p.display()))?;
-    let file = w
-        .into_inner()
+    w.into_inner()
         .map_err(|e| anyhow::anyhow!("cannot write {}: {}", p.display(), e.error()))?;
-    file.sync_all().ok();
     Ok(())
 }
 
@@ -101,6 +98,7 @@ impl Staging {
     /// previous output the guard accepted) is moved aside first and removed only after the new
     /// one is in place, and then only the names Plinth writes ([`guard::remove_replaced`]).
     pub fn commit(self) -> Result<()> {
+        flush_to_disk(&self.dir);
         let (parent, name) = parent_and_name(&self.target)?;
         if std::fs::symlink_metadata(&self.target).is_err() {
             return std::fs::rename(&self.dir, &self.target).with_context(|| {
@@ -167,6 +165,36 @@ impl Staging {
     /// Remove the staging folder (on failure); the target is untouched.
     pub fn abandon(self) {
         std::fs::remove_dir_all(&self.dir).ok();
+    }
+}
+
+/// Flush everything written into the staging folder to disk before it is swapped in: one
+/// `syncfs` of its file system on Linux (instead of one `fsync` per file, about 0.4 ms each: 8 s
+/// for the 20 000 files of a 10 000-structure run with reports), each file's `fsync` elsewhere.
+/// Best effort: a failure here surfaces when the files are read, as it would after `fsync`.
+fn flush_to_disk(dir: &Path) {
+    #[cfg(target_os = "linux")]
+    {
+        if let Ok(d) = std::fs::File::open(dir) {
+            rustix::fs::syncfs(&d).ok();
+        }
+    }
+    #[cfg(not(target_os = "linux"))]
+    {
+        fn walk(p: &Path) {
+            for e in std::fs::read_dir(p).into_iter().flatten().flatten() {
+                match e.file_type() {
+                    Ok(t) if t.is_dir() => walk(&e.path()),
+                    Ok(t) if t.is_file() => {
+                        if let Ok(f) = std::fs::File::open(e.path()) {
+                            f.sync_all().ok();
+                        }
+                    }
+                    _ => {}
+                }
+            }
+        }
+        walk(dir);
     }
 }
 
