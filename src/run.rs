@@ -1187,3 +1187,25 @@ fn write_outputs(a: &Analysis, opts: &RunOptions, d: &Path) -> Result<()> {
     }
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn point_verdict_codes_round_trip_every_reason() {
+        let mut v = PointVerdicts {
+            code: vec![vec![NO_VERDICT; REASONS.len() + 2]],
+            velocity: vec![vec![f64::NAN; REASONS.len() + 2]],
+        };
+        assert_eq!(v.get(0, 0), None, "no structure assessed the point");
+        v.code[0][0] = reason_code(None);
+        v.velocity[0][0] = -1.25;
+        assert_eq!(v.get(0, 0), Some((None, Some(-1.25))));
+        for (i, r) in REASONS.iter().enumerate() {
+            v.code[0][i + 1] = reason_code(Some(r));
+            assert_eq!(v.get(0, i + 1), Some((Some(*r), None)), "{r}");
+        }
+        assert_eq!(reason_code(Some("not a reason")), NO_VERDICT);
+    }
+}
