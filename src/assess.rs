@@ -17,6 +17,7 @@ use crate::portfolio::Portfolio;
 use crate::results::{Status, StructureResult};
 
 /// Point rejection reasons (stable keys of `n_rejected`).
+/// (A new reason also joins `run::REASONS`, the codes of the packed point verdicts.)
 pub mod reason {
     /// Coherence below `min_coherence`.
     pub const LOW_COHERENCE: &str = "low_coherence";
