@@ -439,9 +439,9 @@ impl DetailRecord {
     pub fn read(dir: &std::path::Path, rel: &str) -> anyhow::Result<DetailRecord> {
         use anyhow::Context;
         let path = dir.join(rel);
-        let f = std::fs::File::open(&path)
-            .with_context(|| format!("cannot open the detail file {}", path.display()))?;
-        serde_json::from_reader(std::io::BufReader::new(f)).map_err(|e| {
+        let bytes = std::fs::read(&path)
+            .with_context(|| format!("cannot read the detail file {}", path.display()))?;
+        serde_json::from_slice(&bytes).map_err(|e| {
             anyhow::anyhow!(
                 "{}: line {}: not a Plinth detail file ({e}); re-run `plinth assess` to rewrite it",
                 path.display(),
