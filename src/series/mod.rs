@@ -44,9 +44,9 @@ use fit::{
     compare_models, decimal_years, fit_linear, fit_linear_annual, fit_quadratic, huber_line,
     theil_sen,
 };
-use jumps::{C_BAND_FREQUENCY_HZ, JumpFlag, detect_jumps, wavelength_mm};
+use jumps::{C_BAND_FREQUENCY_HZ, JumpFlag, jump_flags, wavelength_mm};
 pub use los::{LookDirection, Pass};
-use period::{PeriodDisplacement, PeriodMethod, period_displacement, window_velocity};
+use period::{PeriodDisplacement, PeriodMethod, period_and_velocity, period_displacement};
 
 /// One measurement point's LOS series as handed over by the association stage.
 #[derive(Debug, Clone, Copy)]
@@ -730,7 +730,7 @@ fn process_geometry(
         .iter()
         .map(|v| {
             v.as_ref()
-                .map(|v| detect_jumps(v, cfg.wavelength_mm).flags)
+                .map(|v| jump_flags(v, cfg.wavelength_mm))
                 .unwrap_or_default()
         })
         .collect();
@@ -782,11 +782,12 @@ fn process_geometry(
         if let Some(v) = &values[idx] {
             result.valid_epochs_in_window = v.iter().filter(|x| x.is_finite()).count();
             if with_points {
-                match period_displacement(&t_all, v, t1, t2, cfg.period_method) {
+                let (period, velocity) = period_and_velocity(&t_all, v, t1, t2, cfg.period_method);
+                match period {
                     Ok(pd) => result.period_los = Some(pd),
                     Err(e) => result.period_los_unavailable_because = Some(e.to_string()),
                 }
-                if let Ok(f) = window_velocity(&t_all, v, t1, t2) {
+                if let Ok(f) = velocity {
                     result.los_velocity_mm_per_yr = Some(f.velocity_mm_per_yr);
                     result.se_los_velocity_mm_per_yr = Some(f.se_velocity_mm_per_yr);
                     result.se_los_velocity_adjusted_mm_per_yr = f.se_velocity_adjusted_mm_per_yr;
