@@ -34,7 +34,7 @@ use std::collections::BTreeMap;
 use chrono::{Datelike, NaiveDate};
 use serde::Serialize;
 
-use aggregate::{AggregateSeries, aggregate_epochs};
+use aggregate::{AggregateSeries, aggregate_epochs, aggregate_medians};
 use breakpoint::{BreakpointConfig, BreakpointTest, Cusum, breakpoint_test, ols_cusum};
 use decompose::{
     AscDescConsistency, LosObservation, asc_desc_consistency, decompose_east_up_within,
@@ -810,7 +810,12 @@ fn process_geometry(
     } else {
         [f64::NAN; 3]
     };
-    let aggregate = aggregate_epochs(dates.len(), &included);
+    // Without the points' details (the surroundings) only the medians and counts are used.
+    let aggregate = if with_points {
+        aggregate_epochs(dates.len(), &included)
+    } else {
+        aggregate_medians(dates.len(), &included)
+    };
     let (t, d): (Vec<f64>, Vec<f64>) = (0..dates.len())
         .filter(|&e| aggregate.n_points[e] >= cfg.min_points_per_epoch.max(1))
         .filter_map(|e| aggregate.median_mm[e].map(|m| (t_all[e], m)))
@@ -923,12 +928,22 @@ fn deseasonalise(
         .iter()
         .map(|&i| decimal_years(input.epochs[i], origin))
         .collect();
+    // The annual term at each window epoch, once for all points (the same numbers `remove`
+    // would form point by point).
+    let seasonal: Vec<f64> = t_all.iter().map(|t| annual_term(&annual, *t)).collect();
+    let mut v = Vec::with_capacity(window.len());
     for pr in gs.points.iter_mut().filter(|p| p.period_los.is_some()) {
         let Some(p) = input.points.get(pr.index) else {
             continue;
         };
-        let v: Vec<f64> = window.iter().map(|&i| p.values_mm.get(i) as f64).collect();
-        match period_displacement(&t_all, &remove(&t_all, &v), t1, t2, cfg.period_method) {
+        v.clear();
+        v.extend(
+            window
+                .iter()
+                .zip(&seasonal)
+                .map(|(&i, s)| p.values_mm.get(i) as f64 - s),
+        );
+        match period_displacement(&t_all, &v, t1, t2, cfg.period_method) {
             Ok(pd) => pr.period_los = Some(pd),
             Err(e) => {
                 pr.period_los = None;
