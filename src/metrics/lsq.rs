@@ -53,23 +53,28 @@ pub(crate) enum LsError {
     NonFinite,
 }
 
-/// Solve `y = X·p` in the least-squares sense.
-///
-/// `rows` holds the design matrix row by row (all rows must have `cols` entries).
-pub(crate) fn solve(rows: &[Vec<f64>], y: &[f64], cols: usize) -> Result<LsFit, LsError> {
+/// Singular value decomposition of a checked design matrix (shared by [`solve`] and
+/// [`pseudo_inverse`]).
+struct Factored {
+    x: DMatrix<f64>,
+    u: DMatrix<f64>,
+    v: DMatrix<f64>,
+    sv: Vec<f64>,
+}
+
+/// Check the design (shape, finiteness, rank) and decompose it.
+fn factor(rows: &[Vec<f64>], cols: usize) -> Result<Factored, LsError> {
     let n = rows.len();
-    if n < cols || cols == 0 || y.len() != n {
+    if n < cols || cols == 0 {
         return Err(LsError::Underdetermined { rows: n, cols });
     }
     if rows
         .iter()
         .any(|r| r.len() != cols || r.iter().any(|v| !v.is_finite()))
-        || y.iter().any(|v| !v.is_finite())
     {
         return Err(LsError::NonFinite);
     }
     let x = DMatrix::from_fn(n, cols, |i, j| rows[i][j]);
-    let yv = DVector::from_column_slice(y);
     let svd = x.clone().svd(true, true);
     let sv = &svd.singular_values;
     let max_sv = sv.iter().cloned().fold(0.0_f64, f64::max);
@@ -78,24 +83,44 @@ pub(crate) fn solve(rows: &[Vec<f64>], y: &[f64], cols: usize) -> Result<LsFit, 
     if !(ratio >= MIN_SINGULAR_RATIO) {
         return Err(LsError::RankDeficient { ratio });
     }
-    let (Some(u), Some(v_t)) = (svd.u.as_ref(), svd.v_t.as_ref()) else {
+    let (Some(u), Some(v_t)) = (svd.u, svd.v_t) else {
         return Err(LsError::RankDeficient { ratio });
     };
+    Ok(Factored {
+        x,
+        u,
+        v: v_t.transpose(),
+        sv: svd.singular_values.iter().copied().collect(),
+    })
+}
+
+/// Solve `y = X·p` in the least-squares sense.
+///
+/// `rows` holds the design matrix row by row (all rows must have `cols` entries).
+pub(crate) fn solve(rows: &[Vec<f64>], y: &[f64], cols: usize) -> Result<LsFit, LsError> {
+    let n = rows.len();
+    if n < cols || cols == 0 || y.len() != n {
+        return Err(LsError::Underdetermined { rows: n, cols });
+    }
+    if y.iter().any(|v| !v.is_finite()) {
+        return Err(LsError::NonFinite);
+    }
+    let f = factor(rows, cols)?;
+    let yv = DVector::from_column_slice(y);
     // p = V Σ⁻¹ Uᵀ y ; (XᵀX)⁻¹ = V Σ⁻² Vᵀ
-    let uty = u.transpose() * &yv;
-    let k = sv.len();
+    let uty = f.u.transpose() * &yv;
+    let k = f.sv.len();
     let mut scaled = DVector::zeros(k);
     for i in 0..k {
-        scaled[i] = uty[i] / sv[i];
+        scaled[i] = uty[i] / f.sv[i];
     }
-    let v = v_t.transpose();
-    let p = &v * scaled;
+    let p = &f.v * scaled;
     let mut inv_s2 = DMatrix::zeros(k, k);
     for i in 0..k {
-        inv_s2[(i, i)] = 1.0 / (sv[i] * sv[i]);
+        inv_s2[(i, i)] = 1.0 / (f.sv[i] * f.sv[i]);
     }
-    let cov = &v * inv_s2 * v.transpose();
-    let fitted = &x * &p;
+    let cov = &f.v * inv_s2 * f.v.transpose();
+    let fitted = &f.x * &p;
     let residuals: Vec<f64> = (0..n).map(|i| y[i] - fitted[i]).collect();
     let rss = residuals.iter().map(|r| r * r).sum();
     Ok(LsFit {
@@ -105,6 +130,30 @@ pub(crate) fn solve(rows: &[Vec<f64>], y: &[f64], cols: usize) -> Result<LsFit, 
         rss,
         dof: n - cols,
     })
+}
+
+/// Rows of the pseudo-inverse X⁺ = V Σ⁻¹ Uᵀ of the design matrix (k rows of n entries).
+///
+/// For a design that stays fixed while only the observations change (Monte Carlo draws), the
+/// least-squares coefficients are p_j = Σ_i X⁺\[j, i\]·y_i: one dot product per coefficient
+/// instead of a decomposition per draw. Same rank check and errors as [`solve`]; the result
+/// equals [`solve`]'s coefficients up to round-off (the products are only associated
+/// differently).
+pub(crate) fn pseudo_inverse(rows: &[Vec<f64>], cols: usize) -> Result<Vec<Vec<f64>>, LsError> {
+    let f = factor(rows, cols)?;
+    let n = rows.len();
+    Ok((0..cols)
+        .map(|j| {
+            (0..n)
+                .map(|i| (0..cols).map(|l| f.v[(j, l)] / f.sv[l] * f.u[(i, l)]).sum())
+                .collect()
+        })
+        .collect())
+}
+
+/// Σ a_i·b_i.
+pub(crate) fn dot(a: &[f64], b: &[f64]) -> f64 {
+    a.iter().zip(b).map(|(x, y)| x * y).sum()
 }
 
 #[cfg(test)]
@@ -133,6 +182,31 @@ mod tests {
         let y = vec![1.0, 2.0, 3.0, 4.0];
         assert!(matches!(
             solve(&rows, &y, 3),
+            Err(LsError::RankDeficient { .. })
+        ));
+    }
+
+    #[test]
+    fn pseudo_inverse_gives_the_solve_coefficients() {
+        // A plane with two intercepts on an irregular layout: X⁺·y must equal the SVD solve.
+        let rows: Vec<Vec<f64>> = (0..9)
+            .map(|i| {
+                let x = (i * 7 % 5) as f64 - 1.3;
+                let y = (i * 3 % 4) as f64 * 1.7;
+                vec![f64::from(i % 2 == 0), f64::from(i % 2 == 1), x, y]
+            })
+            .collect();
+        let y: Vec<f64> = (0..9).map(|i| ((i * i) % 7) as f64 - 2.5).collect();
+        let fit = solve(&rows, &y, 4).unwrap();
+        let pinv = pseudo_inverse(&rows, 4).unwrap();
+        for (row, c) in pinv.iter().zip(&fit.coefficients) {
+            assert!((dot(row, &y) - c).abs() < 1e-12 * (1.0 + c.abs()), "{c}");
+        }
+        let line: Vec<Vec<f64>> = (0..4)
+            .map(|i| vec![1.0, i as f64, 2.0 * i as f64])
+            .collect();
+        assert!(matches!(
+            pseudo_inverse(&line, 3),
             Err(LsError::RankDeficient { .. })
         ));
     }

@@ -727,17 +727,7 @@ pub fn structure_metrics(
         tilt_by_geometry.into_iter().map(|(g, _)| g).collect();
 
     // 5. Axes.
-    let axis_cfg = |ax: &Axis| ProfileConfig {
-        min_points: cfg.min_points_profile,
-        min_axis_coverage: cfg.min_axis_coverage,
-        min_points_cubic: cfg.min_points_cubic,
-        min_zone_length_m: (cfg.min_zone_fraction * ax.length_m).max(cfg.min_pair_spacing_m),
-        curve_samples: cfg.curve_samples,
-        force_degree: None,
-        across_axis_term: cfg.profile_across_axis_term,
-        min_across_spread_m: cfg.min_across_spread_m,
-        force_across_term: None,
-    };
+    let axis_cfg = |ax: &Axis| profile_config(ax, cfg);
     let mut axis_metrics = Vec::new();
     if let Some(ax) = &axes {
         for (kind, axis) in [
@@ -768,67 +758,8 @@ pub fn structure_metrics(
     let mut raw_draws: Vec<(Option<f64>, Vec<AxisDraw>)> = Vec::new();
     let any_metric = plane.is_some() || axis_metrics.iter().any(|a| a.profile.is_some());
     if cfg.monte_carlo_draws > 0 && any_metric {
-        let fixed: Vec<(AxisKind, Axis, usize, bool, Option<f64>)> = axes
-            .iter()
-            .flat_map(|ax| {
-                [
-                    (AxisKind::Principal, ax.principal),
-                    (AxisKind::Secondary, ax.secondary),
-                ]
-            })
-            .filter_map(|(k, axis)| {
-                let am = axis_metrics.iter().find(|a| a.kind == k)?;
-                let prof = am.profile.as_ref()?;
-                let eps = am.horizontal_strain.as_ref().map(|s| s.horizontal_strain);
-                Some((
-                    k,
-                    axis,
-                    prof.degree,
-                    prof.across_slope_mm_per_m.is_some(),
-                    eps,
-                ))
-            })
-            .collect();
-        let has_tilt = plane.is_some();
-        raw_draws = uncertainty::monte_carlo(&pts, cfg.monte_carlo_draws, cfg.seed, |w| {
-            let tilt = has_tilt
-                .then(|| tilt::fit_plane(w, cfg.min_points_tilt, cfg.collinearity_min_m2).ok())
-                .flatten()
-                .map(|f| f.tilt);
-            let mut per_axis = Vec::new();
-            for (kind, axis, deg, across, eps) in &fixed {
-                let pc = ProfileConfig {
-                    force_degree: Some(*deg),
-                    force_across_term: Some(*across),
-                    curve_samples: 2,
-                    ..axis_cfg(axis)
-                };
-                if let Ok(p) =
-                    profile::fit_profile(&samples_on(axis, w), axis.s_min_m, axis.s_max_m, &pc)
-                {
-                    let zones = p
-                        .zones
-                        .iter()
-                        .map(|z| DamageZone {
-                            axis: *kind,
-                            axis_azimuth_deg: axis.azimuth_deg,
-                            mode: z.mode,
-                            length_m: z.length_m,
-                            deflection_ratio: z.deflection_ratio,
-                            horizontal_strain: *eps,
-                            governing: false,
-                        })
-                        .collect();
-                    per_axis.push(AxisDraw {
-                        kind: *kind,
-                        deflection_ratio: p.deflection_ratio,
-                        angular_distortion: p.angular_distortion,
-                        zones,
-                    });
-                }
-            }
-            (tilt, per_axis)
-        });
+        let fixed = draw_axes(axes.as_ref(), &axis_metrics, cfg);
+        raw_draws = draws_fast(&pts, plane.is_some(), &fixed, &axis_metrics, cfg);
         for am in &mut axis_metrics {
             let of = |f: fn(&AxisDraw) -> f64| -> Vec<f64> {
                 raw_draws
@@ -1092,6 +1023,173 @@ fn axis_result(
     }
 }
 
+/// Profile settings of an axis (the data fit's; the Monte Carlo forces the model on top).
+fn profile_config(ax: &Axis, cfg: &MetricsConfig) -> ProfileConfig {
+    ProfileConfig {
+        min_points: cfg.min_points_profile,
+        min_axis_coverage: cfg.min_axis_coverage,
+        min_points_cubic: cfg.min_points_cubic,
+        min_zone_length_m: (cfg.min_zone_fraction * ax.length_m).max(cfg.min_pair_spacing_m),
+        curve_samples: cfg.curve_samples,
+        force_degree: None,
+        across_axis_term: cfg.profile_across_axis_term,
+        min_across_spread_m: cfg.min_across_spread_m,
+        force_across_term: None,
+    }
+}
+
+/// The axes with a fitted profile, principal first, with the model chosen on the data.
+fn draw_axes(
+    axes: Option<&PrincipalAxes>,
+    axis_metrics: &[AxisMetrics],
+    cfg: &MetricsConfig,
+) -> Vec<DrawAxis> {
+    axes.iter()
+        .flat_map(|ax| {
+            [
+                (AxisKind::Principal, ax.principal),
+                (AxisKind::Secondary, ax.secondary),
+            ]
+        })
+        .filter_map(|(kind, axis)| {
+            let am = axis_metrics.iter().find(|a| a.kind == kind)?;
+            am.profile.as_ref()?;
+            Some(DrawAxis {
+                kind,
+                axis,
+                eps: am.horizontal_strain.as_ref().map(|s| s.horizontal_strain),
+                cfg: profile_config(&axis, cfg),
+            })
+        })
+        .collect()
+}
+
+/// An axis whose profile the Monte Carlo redraws, with the model chosen on the data.
+struct DrawAxis {
+    kind: AxisKind,
+    axis: Axis,
+    /// The axis's horizontal strain, copied into every draw's zones.
+    eps: Option<f64>,
+    /// Profile settings of the data fit.
+    cfg: ProfileConfig,
+}
+
+/// The Monte Carlo draws of tilt and per-axis profiles (insar-methods.md §7.10 \[Rec\]), with
+/// each design factorised once (`tilt::FixedPlane`, `profile::FixedProfile`): only the
+/// settlements change between draws. Equal to [`draws_plain`] up to round-off (tested).
+fn draws_fast(
+    pts: &[MetricPoint],
+    has_tilt: bool,
+    fixed: &[DrawAxis],
+    axis_metrics: &[AxisMetrics],
+    cfg: &MetricsConfig,
+) -> Vec<(Option<f64>, Vec<AxisDraw>)> {
+    let plane = has_tilt
+        .then(|| tilt::FixedPlane::new(pts, cfg.min_points_tilt, cfg.collinearity_min_m2).ok())
+        .flatten();
+    let profiles: Vec<(&DrawAxis, profile::FixedProfile)> = fixed
+        .iter()
+        .filter_map(|d| {
+            let fit = axis_metrics
+                .iter()
+                .find(|a| a.kind == d.kind)?
+                .profile
+                .as_ref()?;
+            Some((
+                d,
+                profile::FixedProfile::new(&samples_on(&d.axis, pts), fit, &d.cfg)?,
+            ))
+        })
+        .collect();
+    uncertainty::monte_carlo_settlements(pts, cfg.monte_carlo_draws, cfg.seed, |s| {
+        let tilt = plane.as_ref().map(|p| p.tilt(s));
+        let per_axis = profiles
+            .iter()
+            .map(|(d, fp)| {
+                let p = fp.evaluate(s);
+                axis_draw(d, p.deflection_ratio, p.angular_distortion, &p.zones)
+            })
+            .collect();
+        (tilt, per_axis)
+    })
+}
+
+/// One axis's draw in the shape the damage stage wants.
+fn axis_draw(
+    d: &DrawAxis,
+    deflection_ratio: f64,
+    angular_distortion: f64,
+    zones: &[profile::ProfileZone],
+) -> AxisDraw {
+    AxisDraw {
+        kind: d.kind,
+        deflection_ratio,
+        angular_distortion,
+        zones: zones
+            .iter()
+            .map(|z| DamageZone {
+                axis: d.kind,
+                axis_azimuth_deg: d.axis.azimuth_deg,
+                mode: z.mode,
+                length_m: z.length_m,
+                deflection_ratio: z.deflection_ratio,
+                horizontal_strain: d.eps,
+                governing: false,
+            })
+            .collect(),
+    }
+}
+
+/// The plain computation of [`draws_fast`]: every draw refits the plane and the profiles from
+/// scratch (`fit_plane`, `fit_profile` with the degree and across-axis term forced). Kept as
+/// the tests' reference.
+#[cfg(test)]
+fn draws_plain(
+    pts: &[MetricPoint],
+    has_tilt: bool,
+    fixed: &[DrawAxis],
+    axis_metrics: &[AxisMetrics],
+    cfg: &MetricsConfig,
+) -> Vec<(Option<f64>, Vec<AxisDraw>)> {
+    let model = |d: &DrawAxis| {
+        let fit = axis_metrics
+            .iter()
+            .find(|a| a.kind == d.kind)
+            .and_then(|a| a.profile.as_ref());
+        (
+            fit.map(|f| f.degree),
+            fit.map(|f| f.across_slope_mm_per_m.is_some()),
+        )
+    };
+    uncertainty::monte_carlo(pts, cfg.monte_carlo_draws, cfg.seed, |w| {
+        let tilt = has_tilt
+            .then(|| tilt::fit_plane(w, cfg.min_points_tilt, cfg.collinearity_min_m2).ok())
+            .flatten()
+            .map(|f| f.tilt);
+        let mut per_axis = Vec::new();
+        for d in fixed {
+            let (degree, across) = model(d);
+            let pc = ProfileConfig {
+                force_degree: degree,
+                force_across_term: across,
+                curve_samples: 2,
+                ..d.cfg.clone()
+            };
+            if let Ok(p) =
+                profile::fit_profile(&samples_on(&d.axis, w), d.axis.s_min_m, d.axis.s_max_m, &pc)
+            {
+                per_axis.push(axis_draw(
+                    d,
+                    p.deflection_ratio,
+                    p.angular_distortion,
+                    &p.zones,
+                ));
+            }
+        }
+        (tilt, per_axis)
+    })
+}
+
 /// One axis's metrics in one Monte Carlo draw.
 struct AxisDraw {
     kind: AxisKind,
@@ -1268,6 +1366,72 @@ mod tests {
         // The principal-axis pairwise cross-check is computed on the points.
         assert!(m.axis_metrics[0].pairwise_angular_distortion.is_some());
         assert_eq!(m.draws.len(), 500);
+    }
+
+    /// The fast Monte Carlo (designs factorised once) against the plain one (every draw
+    /// refitted): same draws up to round-off, on BLD-1 and on a two-geometry block whose
+    /// principal profile is a cubic with two zones and an across-axis term.
+    #[test]
+    fn fast_monte_carlo_draws_equal_the_plain_refits() {
+        let close = |a: f64, b: f64| (a - b).abs() <= 1e-9 * a.abs().max(b.abs()) + 1e-15;
+        let mut k = 0u32;
+        let block: Vec<MetricPoint> = grid(40.0, 16.0, 30.0, 9, 4, |s, t| {
+            k += 1;
+            let wobble = f64::from(k * 7919 % 13) / 13.0 - 0.5;
+            2e-3 * s * s * s + 0.05 * t + 0.4 * wobble
+        })
+        .into_iter()
+        .enumerate()
+        .map(|(i, mut p)| {
+            p.geometry = i % 2;
+            p.settlement_mm += 3.0 * (i % 2) as f64;
+            p.sigma_mm = 0.5 + (i % 5) as f64 * 0.6;
+            p
+        })
+        .collect();
+        let cases = [
+            (bld1_points(), bld1_footprint()),
+            (block, rect(40.0, 16.0, 30.0)),
+        ];
+        for (case, (pts, fp)) in cases.iter().enumerate() {
+            let cfg = MetricsConfig {
+                monte_carlo_draws: 200,
+                residual_outlier_z: None,
+                ..MetricsConfig::default()
+            };
+            let m = structure_metrics(pts, fp, 10.0, &cfg);
+            if case == 1 {
+                let p = m.axis_metrics[0].profile.as_ref().unwrap();
+                assert_eq!((p.degree, p.zones.len()), (3, 2), "{}", p.degree_reason);
+                assert!(p.across_slope_mm_per_m.is_some() && p.geometries.len() == 2);
+            }
+            let fixed = draw_axes(m.axes.as_ref(), &m.axis_metrics, &cfg);
+            assert_eq!(fixed.len(), 2, "case {case}: both axes have a profile");
+            let fast = draws_fast(pts, true, &fixed, &m.axis_metrics, &cfg);
+            let plain = draws_plain(pts, true, &fixed, &m.axis_metrics, &cfg);
+            assert_eq!(fast.len(), plain.len());
+            for ((ft, fa), (pt, pa)) in fast.iter().zip(&plain) {
+                assert!(
+                    close(ft.unwrap(), pt.unwrap()),
+                    "case {case}: tilt {ft:?} {pt:?}"
+                );
+                assert_eq!(fa.len(), pa.len());
+                for (f, p) in fa.iter().zip(pa) {
+                    assert_eq!(f.kind, p.kind);
+                    assert!(close(f.deflection_ratio, p.deflection_ratio), "case {case}");
+                    assert!(
+                        close(f.angular_distortion, p.angular_distortion),
+                        "case {case}"
+                    );
+                    assert_eq!(f.zones.len(), p.zones.len());
+                    for (zf, zp) in f.zones.iter().zip(&p.zones) {
+                        assert_eq!(zf.mode, zp.mode);
+                        assert!(close(zf.length_m, zp.length_m));
+                        assert!(close(zf.deflection_ratio, zp.deflection_ratio));
+                    }
+                }
+            }
+        }
     }
 
     #[test]

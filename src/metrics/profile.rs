@@ -358,15 +358,7 @@ pub fn fit_profile(
     }
     let centre = 0.5 * (s_min_m + s_max_m);
     let half = 0.5 * length_m;
-    let across_sd = {
-        let m = samples.iter().map(|p| p.across_m).sum::<f64>() / n as f64;
-        (samples
-            .iter()
-            .map(|p| (p.across_m - m) * (p.across_m - m))
-            .sum::<f64>()
-            / n as f64)
-            .sqrt()
-    };
+    let across_sd = across_spread_m(samples);
     let use_across = cfg
         .force_across_term
         .unwrap_or(cfg.across_axis_term && across_sd >= cfg.min_across_spread_m)
@@ -469,49 +461,14 @@ pub fn fit_profile(
     let poly = Cubic { p0, p1, p2, p3 };
 
     let (a, b) = (-half, half);
-    let chord_slope = (poly.value(b) - poly.value(a)) / (b - a);
-
-    // Zones.
-    let mut cuts = vec![a];
-    if p3 != 0.0 {
-        let t_star = -p2 / (3.0 * p3);
-        if t_star - a >= cfg.min_zone_length_m && b - t_star >= cfg.min_zone_length_m {
-            cuts.push(t_star);
-        }
-    }
-    cuts.push(b);
-    let zones: Vec<ProfileZone> = cuts
-        .windows(2)
-        .map(|w| zone(&poly, w[0], w[1], centre))
-        .collect();
-    let governing = zones.iter().max_by(|x, y| {
-        x.deflection_ratio
-            .abs()
-            .total_cmp(&y.deflection_ratio.abs())
-    });
-    let (deflection_ratio, relative_deflection_mm) = governing
-        .map(|z| (z.deflection_ratio, z.relative_deflection_mm))
-        .unwrap_or((0.0, 0.0));
-
-    // Angular distortion: candidates in axis order; on a tie in |β| (the quadratic has equal
-    // |β| at both ends) the first (lowest s) is kept so the sign is reproducible.
-    let mut cand = vec![a];
-    if p3 != 0.0 {
-        let tv = -p2 / (3.0 * p3);
-        if tv > a && tv < b {
-            cand.push(tv);
-        }
-    }
-    cand.push(b);
-    let mut beta_t = a;
-    let mut beta_mm_per_m = poly.slope(a) - chord_slope;
-    for &t in &cand[1..] {
-        let v = poly.slope(t) - chord_slope;
-        if v.abs() > beta_mm_per_m.abs() * (1.0 + 1e-9) + 1e-15 {
-            beta_t = t;
-            beta_mm_per_m = v;
-        }
-    }
+    let Shape {
+        chord_slope,
+        zones,
+        deflection_ratio,
+        relative_deflection_mm,
+        beta_t,
+        beta_mm_per_m,
+    } = shape(&poly, half, centre, cfg.min_zone_length_m);
 
     let (dr_se, beta_se) = if degree == 2 {
         chosen
@@ -635,6 +592,70 @@ impl Cubic {
     }
 }
 
+/// Zones, Δ/L and β of a fitted polynomial over the extent [−half, half] (centred
+/// coordinates); shared by [`fit_profile`] and the Monte Carlo's [`FixedProfile`].
+struct Shape {
+    /// Chord slope of the curve over the extent (mm/m).
+    chord_slope: f64,
+    zones: Vec<ProfileZone>,
+    /// Signed Δ/L of the zone with the largest |Δ/L| (0 without zones).
+    deflection_ratio: f64,
+    /// |Δ| of that zone (mm).
+    relative_deflection_mm: f64,
+    /// Centred position of the largest |β|.
+    beta_t: f64,
+    /// That β (mm/m), signed.
+    beta_mm_per_m: f64,
+}
+
+/// See [`Shape`]; the rules are those of the module docs (zone split at the inflection when
+/// both parts are at least `min_zone_length_m` long, β at the ends or the vertex of S').
+fn shape(poly: &Cubic, half: f64, centre: f64, min_zone_length_m: f64) -> Shape {
+    let (a, b) = (-half, half);
+    let (p2, p3) = (poly.p2, poly.p3);
+    let chord_slope = (poly.value(b) - poly.value(a)) / (b - a);
+
+    // Zones.
+    let mut zones = Vec::with_capacity(2);
+    let t_star = (p3 != 0.0).then(|| -p2 / (3.0 * p3));
+    match t_star {
+        Some(t) if t - a >= min_zone_length_m && b - t >= min_zone_length_m => {
+            zones.push(zone(poly, a, t, centre));
+            zones.push(zone(poly, t, b, centre));
+        }
+        _ => zones.push(zone(poly, a, b, centre)),
+    }
+    let governing = zones.iter().max_by(|x, y| {
+        x.deflection_ratio
+            .abs()
+            .total_cmp(&y.deflection_ratio.abs())
+    });
+    let (deflection_ratio, relative_deflection_mm) = governing
+        .map(|z| (z.deflection_ratio, z.relative_deflection_mm))
+        .unwrap_or((0.0, 0.0));
+
+    // Angular distortion: candidates in axis order; on a tie in |β| (the quadratic has equal
+    // |β| at both ends) the first (lowest s) is kept so the sign is reproducible.
+    let vertex = t_star.filter(|&t| t > a && t < b);
+    let mut beta_t = a;
+    let mut beta_mm_per_m = poly.slope(a) - chord_slope;
+    for t in vertex.into_iter().chain([b]) {
+        let v = poly.slope(t) - chord_slope;
+        if v.abs() > beta_mm_per_m.abs() * (1.0 + 1e-9) + 1e-15 {
+            beta_t = t;
+            beta_mm_per_m = v;
+        }
+    }
+    Shape {
+        chord_slope,
+        zones,
+        deflection_ratio,
+        relative_deflection_mm,
+        beta_t,
+        beta_mm_per_m,
+    }
+}
+
 /// Zone quantities on [ta, tb] (centred coordinates).
 fn zone(poly: &Cubic, ta: f64, tb: f64, centre: f64) -> ProfileZone {
     let len = tb - ta;
@@ -700,19 +721,32 @@ struct PolyFitResult {
     across_slope: Option<f64>,
 }
 
-/// OLS fit with per-geometry intercepts; the polynomial variable is scaled by `half` for
-/// conditioning and the coefficients are converted back to mm/m^k.
-fn poly_fit(
+/// Population standard deviation of the samples' across-axis coordinates (m).
+fn across_spread_m(samples: &[ProfileSample]) -> f64 {
+    let n = samples.len() as f64;
+    let m = samples.iter().map(|p| p.across_m).sum::<f64>() / n;
+    (samples
+        .iter()
+        .map(|p| (p.across_m - m) * (p.across_m - m))
+        .sum::<f64>()
+        / n)
+        .sqrt()
+}
+
+/// Design matrix of [`poly_fit`]: one intercept column per geometry, the powers u, u², [u³] of
+/// u = (s − centre)/half, and the across-axis coordinate divided by `across_scale` when given.
+/// Returns the rows and the column count.
+fn design_rows(
     samples: &[ProfileSample],
     geometries: &[usize],
     centre: f64,
     half: f64,
     degree: usize,
     across_scale: Option<f64>,
-) -> Result<PolyFitResult, ProfileError> {
+) -> (Vec<Vec<f64>>, usize) {
     let g = geometries.len();
     let cols = g + degree + usize::from(across_scale.is_some());
-    let rows: Vec<Vec<f64>> = samples
+    let rows = samples
         .iter()
         .map(|p| {
             let u = (p.s_m - centre) / half;
@@ -731,6 +765,124 @@ fn poly_fit(
             r
         })
         .collect();
+    (rows, cols)
+}
+
+/// A profile model fixed on the data (degree, across-axis term, geometries, extent) with its
+/// design factorised once, for settlements that change while the points stay put: the Monte
+/// Carlo draws (insar-methods.md §7.10 \[Rec\]), where `fit_profile` would rebuild and decompose
+/// the same design matrix for every draw.
+///
+/// [`FixedProfile::evaluate`] takes the coefficients p0 (reference geometry), p1, p2, p3 from
+/// the pseudo-inverse rows of the design (`lsq::pseudo_inverse`) and derives zones, Δ/L and β
+/// with the same code as [`fit_profile`], so it equals `fit_profile` with the degree and the
+/// across-axis term forced to the fitted ones, up to round-off (tested).
+///
+/// # Units
+/// As [`fit_profile`]: settlement mm (+ down); Δ/L dimensionless (+ sagging, − hogging); β in
+/// m/m (rad).
+///
+/// # References
+/// insar-methods.md §7.7 \[Rec\] (the estimator), §7.10 \[Rec\] (the Monte Carlo).
+#[derive(Debug, Clone)]
+pub(crate) struct FixedProfile {
+    /// Pseudo-inverse rows of p0 (reference geometry), p1, p2 and p3 (p3 row empty for the
+    /// quadratic), in the scaled variable u.
+    rows: [Vec<f64>; 4],
+    centre: f64,
+    half: f64,
+    min_zone_length_m: f64,
+}
+
+/// One evaluation of a [`FixedProfile`].
+#[derive(Debug, Clone, PartialEq)]
+pub(crate) struct ProfileDraw {
+    /// Zones in axis order.
+    pub zones: Vec<ProfileZone>,
+    /// Signed Δ/L of the zone with the largest |Δ/L|.
+    pub deflection_ratio: f64,
+    /// Signed β of largest magnitude (rad).
+    pub angular_distortion: f64,
+}
+
+impl FixedProfile {
+    /// Fix the model of `fit` (fitted by [`fit_profile`] on `samples` with `cfg`); `None` when
+    /// the design cannot be factorised (then `fit_profile` could not have fitted it either).
+    pub(crate) fn new(
+        samples: &[ProfileSample],
+        fit: &ProfileFit,
+        cfg: &ProfileConfig,
+    ) -> Option<Self> {
+        let centre = fit.centre_s_m;
+        let half = 0.5 * fit.length_m;
+        let across = fit
+            .across_slope_mm_per_m
+            .is_some()
+            .then(|| across_spread_m(samples));
+        let (design, cols) =
+            design_rows(samples, &fit.geometries, centre, half, fit.degree, across);
+        let pinv = lsq::pseudo_inverse(&design, cols).ok()?;
+        let g = fit.geometries.len();
+        let ref_k = fit
+            .geometries
+            .iter()
+            .position(|x| *x == fit.reference_geometry)
+            .unwrap_or(0);
+        let row = |k: usize| pinv.get(k).cloned().unwrap_or_default();
+        let rows = [
+            row(ref_k),
+            row(g),
+            row(g + 1),
+            if fit.degree == 3 {
+                row(g + 2)
+            } else {
+                Vec::new()
+            },
+        ];
+        Some(Self {
+            rows,
+            centre,
+            half,
+            min_zone_length_m: cfg.min_zone_length_m,
+        })
+    }
+
+    /// Zones, Δ/L and β for settlements given in the samples' order (mm).
+    pub(crate) fn evaluate(&self, settlement_mm: &[f64]) -> ProfileDraw {
+        let c = |k: usize| {
+            if self.rows[k].is_empty() {
+                0.0
+            } else {
+                lsq::dot(&self.rows[k], settlement_mm)
+            }
+        };
+        let poly = Cubic {
+            p0: c(0),
+            p1: c(1) / self.half.powi(1),
+            p2: c(2) / self.half.powi(2),
+            p3: c(3) / self.half.powi(3),
+        };
+        let sh = shape(&poly, self.half, self.centre, self.min_zone_length_m);
+        ProfileDraw {
+            zones: sh.zones,
+            deflection_ratio: sh.deflection_ratio,
+            angular_distortion: sh.beta_mm_per_m * 1e-3,
+        }
+    }
+}
+
+/// OLS fit with per-geometry intercepts; the polynomial variable is scaled by `half` for
+/// conditioning and the coefficients are converted back to mm/m^k.
+fn poly_fit(
+    samples: &[ProfileSample],
+    geometries: &[usize],
+    centre: f64,
+    half: f64,
+    degree: usize,
+    across_scale: Option<f64>,
+) -> Result<PolyFitResult, ProfileError> {
+    let g = geometries.len();
+    let (rows, cols) = design_rows(samples, geometries, centre, half, degree, across_scale);
     let y: Vec<f64> = samples.iter().map(|p| p.settlement_mm).collect();
     let fit = lsq::solve(&rows, &y, cols).map_err(|e| ProfileError::Solve(e.to_string()))?;
     let mut coef = [0.0; 3];

@@ -119,37 +119,16 @@ pub fn fit_plane(
     min_points: usize,
     collinearity_min_m2: f64,
 ) -> Result<PlaneFit, TiltError> {
-    let geometries = super::distinct_geometries(points);
+    let PlaneDesign {
+        geometries,
+        rows,
+        needed,
+        effective,
+        eig,
+    } = plane_design(points, min_points, collinearity_min_m2)?;
     let g = geometries.len();
     let n = points.len();
-    let effective = n.saturating_sub(g.saturating_sub(1));
-    let needed = min_points.max(4);
-    if g == 0 || effective < needed {
-        return Err(TiltError::TooFewPoints {
-            needed,
-            got: effective,
-        });
-    }
-    let eig = pooled_min_eigenvalue_m2(points, &geometries);
-    if !(eig >= collinearity_min_m2) {
-        return Err(TiltError::Collinear {
-            eigenvalue_m2: eig,
-            min_m2: collinearity_min_m2,
-        });
-    }
     let cols = g + 2;
-    let rows: Vec<Vec<f64>> = points
-        .iter()
-        .map(|p| {
-            let mut r = vec![0.0; cols];
-            if let Ok(k) = geometries.binary_search(&p.geometry) {
-                r[k] = 1.0;
-            }
-            r[g] = p.x_m;
-            r[g + 1] = p.y_m;
-            r
-        })
-        .collect();
     let y: Vec<f64> = points.iter().map(|p| p.settlement_mm).collect();
     let fit = lsq::solve(&rows, &y, cols).map_err(|e| TiltError::Solve(e.to_string()))?;
     let s2 = fit.residual_variance().ok_or(TiltError::TooFewPoints {
@@ -196,6 +175,111 @@ pub fn fit_plane(
         min_position_eigenvalue_m2: eig,
         residuals_mm: fit.residuals,
     })
+}
+
+/// The checked design of the plane fit: one intercept column per geometry, then x and y.
+struct PlaneDesign {
+    geometries: Vec<usize>,
+    rows: Vec<Vec<f64>>,
+    needed: usize,
+    effective: usize,
+    eig: f64,
+}
+
+/// Refusal checks of [`fit_plane`] and its design matrix; depends on the positions only.
+fn plane_design(
+    points: &[MetricPoint],
+    min_points: usize,
+    collinearity_min_m2: f64,
+) -> Result<PlaneDesign, TiltError> {
+    let geometries = super::distinct_geometries(points);
+    let g = geometries.len();
+    let n = points.len();
+    let effective = n.saturating_sub(g.saturating_sub(1));
+    let needed = min_points.max(4);
+    if g == 0 || effective < needed {
+        return Err(TiltError::TooFewPoints {
+            needed,
+            got: effective,
+        });
+    }
+    let eig = pooled_min_eigenvalue_m2(points, &geometries);
+    if !(eig >= collinearity_min_m2) {
+        return Err(TiltError::Collinear {
+            eigenvalue_m2: eig,
+            min_m2: collinearity_min_m2,
+        });
+    }
+    let rows: Vec<Vec<f64>> = points
+        .iter()
+        .map(|p| {
+            let mut r = vec![0.0; g + 2];
+            if let Ok(k) = geometries.binary_search(&p.geometry) {
+                r[k] = 1.0;
+            }
+            r[g] = p.x_m;
+            r[g + 1] = p.y_m;
+            r
+        })
+        .collect();
+    Ok(PlaneDesign {
+        geometries,
+        rows,
+        needed,
+        effective,
+        eig,
+    })
+}
+
+/// The plane fit of [`fit_plane`] with its design factorised once, for settlements that change
+/// while the points stay put (the Monte Carlo draws of `uncertainty.rs`).
+///
+/// [`FixedPlane::tilt`] gives ω = |(b, c)|·1e-3 with b and c from the pseudo-inverse rows of
+/// the same design (`lsq::pseudo_inverse`), so it equals `fit_plane(..).tilt` on the same
+/// settlements up to round-off (tested).
+///
+/// # Units
+/// As [`fit_plane`]: settlement mm (+ down), ω dimensionless (m/m).
+///
+/// # References
+/// insar-methods.md §7.6 \[Rec\] (the plane fit), §7.10 \[Rec\] (the Monte Carlo it serves).
+#[derive(Debug, Clone)]
+pub(crate) struct FixedPlane {
+    /// Pseudo-inverse row giving ∂S/∂x (mm/m).
+    east: Vec<f64>,
+    /// Pseudo-inverse row giving ∂S/∂y (mm/m).
+    north: Vec<f64>,
+}
+
+impl FixedPlane {
+    /// Factorise the plane design of `points`; the error is the one [`fit_plane`] would give.
+    pub(crate) fn new(
+        points: &[MetricPoint],
+        min_points: usize,
+        collinearity_min_m2: f64,
+    ) -> Result<Self, TiltError> {
+        let d = plane_design(points, min_points, collinearity_min_m2)?;
+        let g = d.geometries.len();
+        if d.rows.len() <= g + 2 {
+            // `fit_plane` needs redundancy for its residual variance.
+            return Err(TiltError::TooFewPoints {
+                needed: d.needed,
+                got: d.effective,
+            });
+        }
+        let mut pinv =
+            lsq::pseudo_inverse(&d.rows, g + 2).map_err(|e| TiltError::Solve(e.to_string()))?;
+        let north = pinv.pop().unwrap_or_default();
+        let east = pinv.pop().unwrap_or_default();
+        Ok(Self { east, north })
+    }
+
+    /// Tilt magnitude ω (m/m) for settlements given in the points' order (mm).
+    pub(crate) fn tilt(&self, settlement_mm: &[f64]) -> f64 {
+        let b = lsq::dot(&self.east, settlement_mm);
+        let c = lsq::dot(&self.north, settlement_mm);
+        b.hypot(c) * 1e-3
+    }
 }
 
 /// Smaller eigenvalue of the pooled within-geometry 2×2 position covariance (m²), divided by n.

@@ -72,7 +72,9 @@ pub fn spread(values: &[f64]) -> Option<Spread> {
     if v.len() < 2 {
         return None;
     }
-    v.sort_by(f64::total_cmp);
+    // Unstable sort: values that compare equal under `total_cmp` are bit-identical, so the
+    // order (and the sum below) is the same as a stable sort's.
+    v.sort_unstable_by(f64::total_cmp);
     let n = v.len() as f64;
     let mean = v.iter().sum::<f64>() / n;
     let var = v.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (n - 1.0);
@@ -106,13 +108,37 @@ pub fn monte_carlo<T>(
     seed: u64,
     mut evaluate: impl FnMut(&[MetricPoint]) -> T,
 ) -> Vec<T> {
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
     let mut work = points.to_vec();
+    monte_carlo_settlements(points, draws, seed, |s| {
+        for (w, v) in work.iter_mut().zip(s) {
+            w.settlement_mm = *v;
+        }
+        evaluate(&work)
+    })
+}
+
+/// [`monte_carlo`] for evaluations that need only the perturbed settlements: `evaluate` gets
+/// S_i + σ_i·z_i in the points' order (one buffer reused across draws). Same seed, same
+/// numbers as [`monte_carlo`].
+///
+/// # Units
+/// Settlement and σ in mm.
+///
+/// # References
+/// insar-methods.md §7.10 \[Rec\].
+pub fn monte_carlo_settlements<T>(
+    points: &[MetricPoint],
+    draws: usize,
+    seed: u64,
+    mut evaluate: impl FnMut(&[f64]) -> T,
+) -> Vec<T> {
+    let mut rng = ChaCha8Rng::seed_from_u64(seed);
+    let mut work: Vec<f64> = points.iter().map(|p| p.settlement_mm).collect();
     let mut out = Vec::with_capacity(draws);
     for _ in 0..draws {
         for (w, p) in work.iter_mut().zip(points) {
             let z: f64 = StandardNormal.sample(&mut rng);
-            w.settlement_mm = p.settlement_mm + p.sigma_mm * z;
+            *w = p.settlement_mm + p.sigma_mm * z;
         }
         out.push(evaluate(&work));
     }

@@ -7,7 +7,7 @@
 
 use serde::Serialize;
 
-use super::stats::{MAD_TO_SIGMA, median, quantile};
+use super::stats::{MAD_TO_SIGMA, median, quantile_in_place, quantile_sorted};
 
 /// Epochs with fewer points than this are marked sparse (insar-methods.md §4.5 route 2 uses
 /// "≥ 3 points per geometry" \[Rec\]; we apply the same floor per epoch).
@@ -42,6 +42,17 @@ pub struct AggregateSeries {
 /// insar-methods.md §4.5 route 1 and §5.1 (fit the structure's per-epoch median) \[P, Rec\].
 /// Quantiles by linear interpolation between order statistics (type 7), our choice.
 pub fn aggregate_epochs(n_epochs: usize, series: &[&[f64]]) -> AggregateSeries {
+    aggregate_with(n_epochs, series, true)
+}
+
+/// [`aggregate_epochs`] without the interquartile band (`band_lower_mm`/`band_upper_mm` are
+/// `None`): the median by selection instead of a sort, for callers that use only the median and
+/// the counts (the surroundings' series). Same medians and counts as [`aggregate_epochs`].
+pub(crate) fn aggregate_medians(n_epochs: usize, series: &[&[f64]]) -> AggregateSeries {
+    aggregate_with(n_epochs, series, false)
+}
+
+fn aggregate_with(n_epochs: usize, series: &[&[f64]], band: bool) -> AggregateSeries {
     let mut out = AggregateSeries {
         median_mm: Vec::with_capacity(n_epochs),
         band_lower_mm: Vec::with_capacity(n_epochs),
@@ -55,9 +66,17 @@ pub fn aggregate_epochs(n_epochs: usize, series: &[&[f64]]) -> AggregateSeries {
     for e in 0..n_epochs {
         values.clear();
         values.extend(usable.iter().map(|s| s[e]).filter(|v| v.is_finite()));
-        out.median_mm.push(median(&values));
-        out.band_lower_mm.push(quantile(&values, 0.25));
-        out.band_upper_mm.push(quantile(&values, 0.75));
+        if band {
+            // One sort serves the three quantiles (same numbers as `quantile` on each).
+            values.sort_unstable_by(f64::total_cmp);
+            out.median_mm.push(quantile_sorted(&values, 0.5));
+            out.band_lower_mm.push(quantile_sorted(&values, 0.25));
+            out.band_upper_mm.push(quantile_sorted(&values, 0.75));
+        } else {
+            out.median_mm.push(quantile_in_place(&mut values, 0.5));
+            out.band_lower_mm.push(None);
+            out.band_upper_mm.push(None);
+        }
         out.n_points.push(values.len());
         out.sparse.push(values.len() < MIN_POINTS_PER_EPOCH);
     }
@@ -155,6 +174,32 @@ pub fn mad_screen(values: &[f64], z_threshold: f64, min_points_to_reject: usize)
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn medians_only_equal_the_full_aggregate() {
+        // Uneven point counts per epoch (NaN gaps), odd and even counts, ties.
+        let rows: Vec<Vec<f64>> = (0..9)
+            .map(|p| {
+                (0..12)
+                    .map(|e| {
+                        if (p + e) % 5 == 0 {
+                            f64::NAN
+                        } else {
+                            ((p * 7 + e * 3) % 11) as f64 * 0.5 - 2.0
+                        }
+                    })
+                    .collect()
+            })
+            .collect();
+        let series: Vec<&[f64]> = rows.iter().map(|r| r.as_slice()).collect();
+        let full = aggregate_epochs(12, &series);
+        let medians = aggregate_medians(12, &series);
+        assert_eq!(full.median_mm, medians.median_mm);
+        assert_eq!(full.n_points, medians.n_points);
+        assert_eq!(full.sparse, medians.sparse);
+        assert!(medians.band_lower_mm.iter().all(Option::is_none));
+        assert!(full.band_lower_mm.iter().all(Option::is_some));
+    }
 
     /// insar-methods.md §7.3 / Appendix A MAD-1 \[C\].
     #[test]

@@ -167,6 +167,13 @@ pub fn detect_jumps(values_mm: &[f64], wavelength_mm: f64) -> JumpScan {
 /// without any step larger than λ/4 between consecutive valid epochs (the first condition of
 /// step 2) is answered without the robust-σ medians, which is nearly every series.
 pub fn has_jump_candidate(values_mm: &[f64], wavelength_mm: f64) -> bool {
+    !jump_flags(values_mm, wavelength_mm).is_empty()
+}
+
+/// The flags of [`detect_jumps`] (the same list), without its robust σ when no step between
+/// consecutive valid epochs exceeds λ/4: no step can then be flagged (first condition of step
+/// 2), so the two medians are skipped — the case of nearly every series.
+pub fn jump_flags(values_mm: &[f64], wavelength_mm: f64) -> Vec<JumpFlag> {
     let quarter = wavelength_mm / 4.0;
     let mut prev: Option<f64> = None;
     let mut big_step = false;
@@ -179,7 +186,11 @@ pub fn has_jump_candidate(values_mm: &[f64], wavelength_mm: f64) -> bool {
         }
         prev = Some(v);
     }
-    big_step && !detect_jumps(values_mm, wavelength_mm).flags.is_empty()
+    if big_step {
+        detect_jumps(values_mm, wavelength_mm).flags
+    } else {
+        Vec::new()
+    }
 }
 
 /// A copy of the series with `k·λ/2` removed from every epoch at or after each flagged jump.

@@ -34,7 +34,7 @@ use std::collections::BTreeMap;
 use chrono::{Datelike, NaiveDate};
 use serde::Serialize;
 
-use aggregate::{AggregateSeries, aggregate_epochs};
+use aggregate::{AggregateSeries, aggregate_epochs, aggregate_medians};
 use breakpoint::{BreakpointConfig, BreakpointTest, Cusum, breakpoint_test, ols_cusum};
 use decompose::{
     AscDescConsistency, LosObservation, asc_desc_consistency, decompose_east_up_within,
@@ -44,9 +44,9 @@ use fit::{
     compare_models, decimal_years, fit_linear, fit_linear_annual, fit_quadratic, huber_line,
     theil_sen,
 };
-use jumps::{C_BAND_FREQUENCY_HZ, JumpFlag, detect_jumps, wavelength_mm};
+use jumps::{C_BAND_FREQUENCY_HZ, JumpFlag, jump_flags, wavelength_mm};
 pub use los::{LookDirection, Pass};
-use period::{PeriodDisplacement, PeriodMethod, period_displacement, window_velocity};
+use period::{PeriodDisplacement, PeriodMethod, period_and_velocity, period_displacement};
 
 /// One measurement point's LOS series as handed over by the association stage.
 #[derive(Debug, Clone, Copy)]
@@ -730,7 +730,7 @@ fn process_geometry(
         .iter()
         .map(|v| {
             v.as_ref()
-                .map(|v| detect_jumps(v, cfg.wavelength_mm).flags)
+                .map(|v| jump_flags(v, cfg.wavelength_mm))
                 .unwrap_or_default()
         })
         .collect();
@@ -782,11 +782,12 @@ fn process_geometry(
         if let Some(v) = &values[idx] {
             result.valid_epochs_in_window = v.iter().filter(|x| x.is_finite()).count();
             if with_points {
-                match period_displacement(&t_all, v, t1, t2, cfg.period_method) {
+                let (period, velocity) = period_and_velocity(&t_all, v, t1, t2, cfg.period_method);
+                match period {
                     Ok(pd) => result.period_los = Some(pd),
                     Err(e) => result.period_los_unavailable_because = Some(e.to_string()),
                 }
-                if let Ok(f) = window_velocity(&t_all, v, t1, t2) {
+                if let Ok(f) = velocity {
                     result.los_velocity_mm_per_yr = Some(f.velocity_mm_per_yr);
                     result.se_los_velocity_mm_per_yr = Some(f.se_velocity_mm_per_yr);
                     result.se_los_velocity_adjusted_mm_per_yr = f.se_velocity_adjusted_mm_per_yr;
@@ -809,7 +810,12 @@ fn process_geometry(
     } else {
         [f64::NAN; 3]
     };
-    let aggregate = aggregate_epochs(dates.len(), &included);
+    // Without the points' details (the surroundings) only the medians and counts are used.
+    let aggregate = if with_points {
+        aggregate_epochs(dates.len(), &included)
+    } else {
+        aggregate_medians(dates.len(), &included)
+    };
     let (t, d): (Vec<f64>, Vec<f64>) = (0..dates.len())
         .filter(|&e| aggregate.n_points[e] >= cfg.min_points_per_epoch.max(1))
         .filter_map(|e| aggregate.median_mm[e].map(|m| (t_all[e], m)))
@@ -922,12 +928,22 @@ fn deseasonalise(
         .iter()
         .map(|&i| decimal_years(input.epochs[i], origin))
         .collect();
+    // The annual term at each window epoch, once for all points (the same numbers `remove`
+    // would form point by point).
+    let seasonal: Vec<f64> = t_all.iter().map(|t| annual_term(&annual, *t)).collect();
+    let mut v = Vec::with_capacity(window.len());
     for pr in gs.points.iter_mut().filter(|p| p.period_los.is_some()) {
         let Some(p) = input.points.get(pr.index) else {
             continue;
         };
-        let v: Vec<f64> = window.iter().map(|&i| p.values_mm.get(i) as f64).collect();
-        match period_displacement(&t_all, &remove(&t_all, &v), t1, t2, cfg.period_method) {
+        v.clear();
+        v.extend(
+            window
+                .iter()
+                .zip(&seasonal)
+                .map(|(&i, s)| p.values_mm.get(i) as f64 - s),
+        );
+        match period_displacement(&t_all, &v, t1, t2, cfg.period_method) {
             Ok(pd) => pr.period_los = Some(pd),
             Err(e) => {
                 pr.period_los = None;

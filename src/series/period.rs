@@ -126,6 +126,20 @@ pub fn period_displacement(
         return Err(PeriodError::BadWindow);
     }
     let (t, d) = window_values(t_yr, d_mm, t1_yr, t2_yr);
+    period_in_window(&t, &d, t1_yr, t2_yr, method, None)
+}
+
+/// [`period_displacement`] on values already cut to the window; `fit` is the straight-line fit
+/// of exactly these values when the caller has it (it is then not fitted again).
+fn period_in_window(
+    t: &[f64],
+    d: &[f64],
+    t1_yr: f64,
+    t2_yr: f64,
+    method: PeriodMethod,
+    fit: Option<&LinearFit>,
+) -> Result<PeriodDisplacement, PeriodError> {
+    let owned;
     let n = t.len();
     match method {
         PeriodMethod::LocalMeans => {
@@ -140,20 +154,32 @@ pub fn period_displacement(
             idx.sort_by(|a, b| t[*a].total_cmp(&t[*b]));
             let mean = |ids: &[usize], v: &[f64]| ids.iter().map(|i| v[*i]).sum::<f64>() / m as f64;
             let (first, last) = (&idx[..m], &idx[n - m..]);
-            let noise = noise_level(&t, &d)?;
+            let noise = match fit {
+                Some(f) => f,
+                None => {
+                    owned = noise_level(t, d)?;
+                    &owned
+                }
+            };
             let rho = noise.lag1_autocorrelation.clamp(0.0, 0.999);
             let var = noise.residual_sd_mm.powi(2) * ar1_mean_variance_factor(m, rho) * 2.0;
             Ok(PeriodDisplacement {
-                displacement_mm: mean(last, &d) - mean(first, &d),
+                displacement_mm: mean(last, d) - mean(first, d),
                 sigma_mm: var.sqrt(),
                 method,
-                effective_start_yr: mean(first, &t),
-                effective_end_yr: mean(last, &t),
+                effective_start_yr: mean(first, t),
+                effective_end_yr: mean(last, t),
                 epochs_in_window: n,
             })
         }
         PeriodMethod::FittedLinear => {
-            let f = fit_linear(&t, &d)?;
+            let f = match fit {
+                Some(f) => f,
+                None => {
+                    owned = fit_linear(t, d)?;
+                    &owned
+                }
+            };
             let dt = t2_yr - t1_yr;
             let se = f
                 .se_velocity_adjusted_mm_per_yr
@@ -168,6 +194,42 @@ pub fn period_displacement(
             })
         }
     }
+}
+
+/// [`period_displacement`] and [`window_velocity`] of one series together: the window is cut
+/// once and the straight line fitted once (both use the same fit of the same values), so the
+/// results are those of the two functions called separately.
+///
+/// # Units
+/// Years, mm, mm/yr (as the two functions).
+///
+/// # References
+/// insar-methods.md §5.2–5.3, §5.11 \[C, Rec\].
+pub fn period_and_velocity(
+    t_yr: &[f64],
+    d_mm: &[f64],
+    t1_yr: f64,
+    t2_yr: f64,
+    method: PeriodMethod,
+) -> (
+    Result<PeriodDisplacement, PeriodError>,
+    Result<LinearFit, PeriodError>,
+) {
+    if !(t1_yr.is_finite() && t2_yr.is_finite() && t2_yr > t1_yr) {
+        return (Err(PeriodError::BadWindow), Err(PeriodError::BadWindow));
+    }
+    let (t, d) = window_values(t_yr, d_mm, t1_yr, t2_yr);
+    let velocity = if t.len() < 3 {
+        Err(PeriodError::TooFewEpochs {
+            needed: 3,
+            got: t.len(),
+        })
+    } else {
+        fit_linear(&t, &d).map_err(PeriodError::from)
+    };
+    // A failed fit is recomputed inside for the period's own error (rare).
+    let period = period_in_window(&t, &d, t1_yr, t2_yr, method, velocity.as_ref().ok());
+    (period, velocity)
 }
 
 /// LOS (or any) velocity over the window by OLS with white-noise and AR(1)-adjusted SE.
@@ -203,6 +265,36 @@ mod tests {
     use super::*;
     use rand::SeedableRng;
     use rand_distr::{Distribution, Normal};
+
+    #[test]
+    fn period_and_velocity_equal_the_separate_functions() {
+        // Gappy noisy series, windows that leave 0, 2, 4 and all epochs, both methods.
+        let t: Vec<f64> = (0..40).map(|i| i as f64 / 30.0).collect();
+        let d: Vec<f64> = (0..40)
+            .map(|i| {
+                if i % 9 == 4 {
+                    f64::NAN
+                } else {
+                    -3.0 * i as f64 / 30.0 + ((i * 37 % 11) as f64 - 5.0) * 0.3
+                }
+            })
+            .collect();
+        let windows = [
+            (5.0, 6.0),
+            (0.0, 0.04),
+            (0.0, 0.11),
+            (0.0, 2.0),
+            (0.2, 0.9),
+            (1.0, 0.5),
+        ];
+        for (t1, t2) in windows {
+            for method in [PeriodMethod::LocalMeans, PeriodMethod::FittedLinear] {
+                let (p, v) = period_and_velocity(&t, &d, t1, t2, method);
+                assert_eq!(p, period_displacement(&t, &d, t1, t2, method), "{t1} {t2}");
+                assert_eq!(v, window_velocity(&t, &d, t1, t2), "{t1} {t2}");
+            }
+        }
+    }
 
     #[test]
     fn ar1_factor() {

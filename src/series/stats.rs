@@ -26,10 +26,41 @@ pub fn quantile(x: &[f64], q: f64) -> Option<f64> {
         return None;
     }
     let mut v: Vec<f64> = x.iter().copied().filter(|v| v.is_finite()).collect();
-    if v.is_empty() {
+    quantile_in_place(&mut v, q)
+}
+
+/// [`quantile`] of values that are all finite, reordering them instead of copying: the order
+/// statistics at ⌊q·(n−1)⌋ and the next one are found by selection (O(n)), not by a full sort.
+/// The same number as [`quantile`] and as [`quantile_sorted`] after a sort (the order statistics
+/// do not depend on how they are found). `None` for no values or `q` outside [0, 1].
+pub fn quantile_in_place(v: &mut [f64], q: f64) -> Option<f64> {
+    if v.is_empty() || !(0.0..=1.0).contains(&q) {
         return None;
     }
-    v.sort_by(f64::total_cmp);
+    let pos = q * (v.len() - 1) as f64;
+    let lo = pos.floor() as usize;
+    let hi = pos.ceil() as usize;
+    let frac = pos - lo as f64;
+    let (_, lo_value, above) = v.select_nth_unstable_by(lo, f64::total_cmp);
+    let lo_value = *lo_value;
+    let hi_value = if hi > lo {
+        above
+            .iter()
+            .copied()
+            .min_by(f64::total_cmp)
+            .unwrap_or(lo_value)
+    } else {
+        lo_value
+    };
+    Some(lo_value + (hi_value - lo_value) * frac)
+}
+
+/// [`quantile`] of values already sorted ascending (all finite): type 7, position q·(n−1).
+/// `None` for no values or `q` outside [0, 1].
+pub fn quantile_sorted(v: &[f64], q: f64) -> Option<f64> {
+    if v.is_empty() || !(0.0..=1.0).contains(&q) {
+        return None;
+    }
     let pos = q * (v.len() - 1) as f64;
     let lo = pos.floor() as usize;
     let hi = pos.ceil() as usize;
@@ -164,6 +195,43 @@ pub fn t_two_sided(t: f64, nu: f64) -> f64 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn selected_quantiles_equal_the_sorted_ones() {
+        // Plain reference: sort a copy, interpolate between order statistics (type 7).
+        let plain = |x: &[f64], q: f64| {
+            let mut v = x.to_vec();
+            v.sort_by(f64::total_cmp);
+            let pos = q * (v.len() - 1) as f64;
+            let (lo, hi) = (pos.floor() as usize, pos.ceil() as usize);
+            v[lo] + (v[hi] - v[lo]) * (pos - lo as f64)
+        };
+        let mut state = 12345u64;
+        for n in [1usize, 2, 3, 7, 50, 151, 11175] {
+            let x: Vec<f64> = (0..n)
+                .map(|i| {
+                    state = state
+                        .wrapping_mul(6364136223846793005)
+                        .wrapping_add(1442695040888963407);
+                    // Duplicates, signed zeros and a wide range.
+                    match i % 7 {
+                        0 => 0.0,
+                        1 => -0.0,
+                        2 => 3.5,
+                        _ => ((state >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 100.0,
+                    }
+                })
+                .collect();
+            for q in [0.0, 0.05, 0.25, 0.5, 0.75, 0.95, 1.0, 1.0 / 3.0] {
+                let mut v = x.clone();
+                let fast = quantile_in_place(&mut v, q).unwrap();
+                assert_eq!(fast.to_bits(), plain(&x, q).to_bits(), "n {n} q {q}");
+                assert_eq!(quantile(&x, q).unwrap().to_bits(), fast.to_bits());
+            }
+        }
+        assert_eq!(quantile_in_place(&mut [], 0.5), None);
+        assert_eq!(quantile_in_place(&mut [1.0], 1.5), None);
+    }
 
     #[test]
     fn quantiles_and_mad() {
