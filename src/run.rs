@@ -394,26 +394,38 @@ pub struct Prepared {
     pub warnings: Warnings,
 }
 
-/// One point linked to a structure (point index, dataset index, role), 8 bytes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct MemberLink {
-    /// Point index in its dataset.
-    pub point: u32,
-    /// Dataset index.
-    pub dataset: u16,
-    /// Role for this structure.
-    pub role: Role,
-}
-
-/// Every structure's linked points and the portfolio counts of the association.
+/// Every structure's linked points (footprint, buffer and surroundings ring) and the portfolio
+/// counts of the association. Held as one array of 4-byte global point indices grouped by
+/// structure (sized exactly, counted in a first pass): a city's ring links are several per point,
+/// and one growing list per structure would hold up to twice their size.
 #[derive(Debug, Clone, Default)]
 pub struct Association {
-    /// Per structure (input order), its linked points in dataset then point order.
-    pub members: Vec<Vec<MemberLink>>,
+    /// `starts[s]..starts[s + 1]` indexes `points` for structure s.
+    starts: Vec<usize>,
+    /// Global point index (dataset offset + index in the dataset) of every link, grouped by
+    /// structure, in dataset then point order within a group.
+    points: Vec<u32>,
+    /// First global point index of each dataset.
+    dataset_offsets: Vec<usize>,
     /// Points excluded as ties between structures.
     pub ties: usize,
     /// Points only in surroundings rings.
     pub surroundings_only: usize,
+}
+
+impl Association {
+    /// `(dataset, point index)` of every point linked to structure `s`, in dataset then point
+    /// order. The role follows from the point's stored association: `Structure` for its owner,
+    /// `Surroundings` for every other structure whose ring holds it.
+    pub fn members(&self, s: usize) -> impl Iterator<Item = (usize, usize)> + '_ {
+        let range =
+            self.starts.get(s).copied().unwrap_or(0)..self.starts.get(s + 1).copied().unwrap_or(0);
+        self.points[range].iter().map(move |&g| {
+            let g = g as usize;
+            let d = self.dataset_offsets.partition_point(|&o| o <= g) - 1;
+            (d, g - self.dataset_offsets[d])
+        })
+    }
 }
 
 /// Read the portfolio and its inputs (every kept point's owner is decided as it is read) and
@@ -512,44 +524,80 @@ fn check_geometries(pf: &Portfolio, warnings: &mut Warnings) -> Result<(), Input
     Ok(())
 }
 
-/// Link every point with the structures whose footprint, buffer or surroundings ring holds it.
-pub fn associate(p: &Prepared) -> Association {
+/// Link every point with the structures whose footprint, buffer or surroundings ring holds it:
+/// a counting pass, then a filling pass into the exactly sized array (the spatial query runs
+/// twice; it costs far less than the memory a growing list per structure would take).
+pub fn associate(p: &Prepared) -> Result<Association> {
     let datasets = &p.inputs.datasets;
     let index = &p.inputs.index;
     let n_structures = p.inputs.structures.len();
-    let mut a = Association {
-        members: vec![Vec::new(); n_structures],
-        ..Default::default()
-    };
-    // In blocks, so that the per-point link lists (one allocation each) never exist for every
-    // point at once: on a 3-million-point city they would hold about 0.5 GB.
+    let mut dataset_offsets = Vec::with_capacity(datasets.len());
+    let mut total = 0usize;
+    for d in datasets {
+        dataset_offsets.push(total);
+        total += d.len();
+    }
+    if total > u32::MAX as usize {
+        anyhow::bail!(
+            "{total} points within reach of the structures: at most {} are supported in one run; split the portfolio with --shard",
+            u32::MAX
+        );
+    }
+    let mut counts = vec![0usize; n_structures + 1];
+    let mut ties = 0usize;
+    let mut surroundings_only = 0usize;
+    for_each_link_block(datasets, index, |_, l| {
+        if l.tie {
+            ties += 1;
+        } else if !l.links.is_empty() && l.links.iter().all(|k| k.role == Role::Surroundings) {
+            surroundings_only += 1;
+        }
+        for k in &l.links {
+            counts[k.structure + 1] += 1;
+        }
+    });
+    for i in 1..counts.len() {
+        counts[i] += counts[i - 1];
+    }
+    let starts = counts;
+    let mut fill = starts.clone();
+    let mut points = vec![0u32; *starts.last().unwrap_or(&0)];
+    for_each_link_block(datasets, index, |g, l| {
+        for k in &l.links {
+            points[fill[k.structure]] = g as u32;
+            fill[k.structure] += 1;
+        }
+    });
+    Ok(Association {
+        starts,
+        points,
+        dataset_offsets,
+        ties,
+        surroundings_only,
+    })
+}
+
+/// Every kept point's links (global point index, links), in dataset then point order, worked out
+/// in parallel in blocks so that the per-point link lists never exist for every point at once.
+fn for_each_link_block(
+    datasets: &[ingest::Dataset],
+    index: &crate::association::SpatialIndex,
+    mut f: impl FnMut(usize, &crate::association::PointLinks),
+) {
     const BLOCK: usize = 1 << 16;
-    for (di, d) in datasets.iter().enumerate() {
-        for (b, block) in d.points.chunks(BLOCK).enumerate() {
+    let mut g = 0usize;
+    for d in datasets {
+        for block in d.points.chunks(BLOCK) {
             let links: Vec<crate::association::PointLinks> = block
                 .par_iter()
                 .map(|p| index.associate(p.x, p.y))
                 .collect();
-            for (j, l) in links.into_iter().enumerate() {
-                let pi = b * BLOCK + j;
-                if l.tie {
-                    a.ties += 1;
-                } else if l.links.iter().all(|k| k.role == Role::Surroundings)
-                    && !l.links.is_empty()
-                {
-                    a.surroundings_only += 1;
-                }
-                for k in &l.links {
-                    a.members[k.structure].push(MemberLink {
-                        dataset: di as u16,
-                        point: pi as u32,
-                        role: k.role,
-                    });
-                }
+            for l in &links {
+                f(g, l);
+                g += 1;
             }
         }
     }
-    a
 }
 
 /// Everything the assessment stage produced, in structure order.
@@ -654,16 +702,23 @@ pub fn assess_all(
     let assessed: Vec<(StructureResult, Vec<OwnedVerdict>)> = inputs
         .structures
         .par_iter()
-        .zip(association.members.par_iter())
         .zip(stems.par_iter())
-        .map(|((s, links), stem)| {
-            let members: Vec<Member> = links
-                .iter()
-                .map(|l| Member {
-                    dataset: l.dataset as usize,
-                    point: datasets[l.dataset as usize].point(l.point as usize),
-                    role: l.role,
-                    point_index: l.point as usize,
+        .map(|(s, stem)| {
+            let members: Vec<Member> = association
+                .members(s.index)
+                .map(|(d, i)| {
+                    let l = datasets[d].association[i];
+                    let owned = l.structure() == Some(s.index) && l.role() == Role::Structure;
+                    Member {
+                        dataset: d,
+                        point: datasets[d].point(i),
+                        role: if owned {
+                            Role::Structure
+                        } else {
+                            Role::Surroundings
+                        },
+                        point_index: i,
+                    }
                 })
                 .collect();
             let a = assess::assess_structure(&ctx, s, &members, Some(stem.clone()));
@@ -957,7 +1012,7 @@ pub fn check(portfolio_path: &Path) -> Result<CheckSummary> {
 /// Read, associate and assess without writing anything (details are not kept).
 pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
     let p = prepare(portfolio_path, opts)?;
-    let association = associate(&p);
+    let association = associate(&p)?;
     let assessed = assess_all(&p, &association, None, opts.progress)?;
     let results = summarise(&p, &association, assessed.records, opts)?;
     Ok(Analysis::new(p, results, assessed.points))
@@ -1131,7 +1186,7 @@ pub fn assess_into(portfolio_path: &Path, opts: &RunOptions, out: &Path) -> Resu
     let staging = output::Staging::new(&target)?;
     let res = (|| -> Result<Analysis> {
         let details = staging.dir.join(assess::DETAILS_DIR);
-        let association = associate(&p);
+        let association = associate(&p)?;
         let assessed = assess_all(&p, &association, Some(&details), opts.progress)?;
         let results = summarise(&p, &association, assessed.records, opts)?;
         drop(association);
