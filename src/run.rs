@@ -2,7 +2,12 @@
 //!
 //! Owns the order of the stages, the assessment window, the coverage summary, the comparison with
 //! a previous run, and writing the output folder atomically (via `output::Staging`). The command
-//! line (`cli`) resolves its arguments into [`RunOptions`] and calls [`analyse`] and [`write()`].
+//! line (`cli`) resolves its arguments into [`RunOptions`] and calls [`assess_into`] (or
+//! [`check`]). Stages, each handing the next a named struct: [`prepare`] ([`Prepared`]: inputs
+//! read, window) → [`associate`] ([`Association`]) → [`assess_all`] ([`Assessed`]: compact
+//! records, packed point verdicts; each structure's detail file written as it is assessed) →
+//! [`summarise`] (`Results`: triggers, `--previous`, coverage) → the portfolio outputs and the
+//! reports.
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
