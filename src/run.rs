@@ -11,6 +11,7 @@
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicU8, AtomicU64, Ordering};
 
 use anyhow::{Context, Result};
 use rayon::prelude::*;
@@ -615,13 +616,16 @@ pub struct Assessed {
 
 /// Each point's screening verdict by its owning structure — or, for a point only in surroundings
 /// rings, by the nearest structure whose ring holds it — packed per dataset (9 bytes a point).
-#[derive(Debug, Clone, Default)]
+/// Filled by the assessment workers as they go: each point has exactly one such structure, so
+/// every slot is written once, by one worker (relaxed atomics only make the sharing safe).
+#[derive(Debug, Default)]
 pub struct PointVerdicts {
     /// Per dataset, per point: 0 = kept, 1 + index in [`REASONS`] = rejected, [`NO_VERDICT`] =
     /// no structure assessed the point.
-    pub code: Vec<Vec<u8>>,
-    /// Per dataset, per point: vertical velocity, mm/yr (+ up); NaN when not computed.
-    pub velocity: Vec<Vec<f64>>,
+    code: Vec<Vec<AtomicU8>>,
+    /// Per dataset, per point: vertical velocity, mm/yr (+ up), as `f64` bits; NaN when not
+    /// computed.
+    velocity: Vec<Vec<AtomicU64>>,
 }
 
 /// Rejection reasons in the order of their codes in [`PointVerdicts`].
@@ -638,27 +642,36 @@ pub const REASONS: [&str; 6] = [
 pub const NO_VERDICT: u8 = u8::MAX;
 
 impl PointVerdicts {
-    fn new(datasets: &[ingest::Dataset]) -> Self {
+    /// No verdict for any point of datasets of these sizes.
+    fn with_sizes(sizes: impl Iterator<Item = usize> + Clone) -> Self {
         Self {
-            code: datasets.iter().map(|d| vec![NO_VERDICT; d.len()]).collect(),
-            velocity: datasets.iter().map(|d| vec![f64::NAN; d.len()]).collect(),
+            code: sizes
+                .clone()
+                .map(|n| (0..n).map(|_| AtomicU8::new(NO_VERDICT)).collect())
+                .collect(),
+            velocity: sizes
+                .map(|n| (0..n).map(|_| AtomicU64::new(f64::NAN.to_bits())).collect())
+                .collect(),
         }
+    }
+
+    /// Record a point's verdict.
+    fn set(&self, dataset: usize, point: usize, rejected: Option<&'static str>, v: Option<f64>) {
+        self.code[dataset][point].store(reason_code(rejected), Ordering::Relaxed);
+        self.velocity[dataset][point].store(v.unwrap_or(f64::NAN).to_bits(), Ordering::Relaxed);
     }
 
     /// `(rejection reason, vertical velocity)` of a point; None when no structure assessed it.
     pub fn get(&self, dataset: usize, point: usize) -> Option<(Option<&'static str>, Option<f64>)> {
-        let code = self.code[dataset][point];
+        let code = self.code[dataset][point].load(Ordering::Relaxed);
         if code == NO_VERDICT {
             return None;
         }
         let reason = code.checked_sub(1).map(|c| REASONS[usize::from(c)]);
-        let v = self.velocity[dataset][point];
+        let v = f64::from_bits(self.velocity[dataset][point].load(Ordering::Relaxed));
         Some((reason, v.is_finite().then_some(v)))
     }
 }
-
-/// One owned point's verdict as a structure's worker returns it.
-type OwnedVerdict = (u32, u32, u8, f64);
 
 fn reason_code(r: Option<&'static str>) -> u8 {
     match r {
@@ -704,7 +717,8 @@ pub fn assess_all(
         std::fs::create_dir_all(d).with_context(|| format!("cannot create {}", d.display()))?;
     }
     let bar = progress_bar(progress, inputs.structures.len());
-    let assessed: Vec<(StructureResult, Vec<OwnedVerdict>)> = inputs
+    let points = PointVerdicts::with_sizes(datasets.iter().map(ingest::Dataset::len));
+    let records: Vec<StructureResult> = inputs
         .structures
         .par_iter()
         .zip(stems.par_iter())
@@ -730,35 +744,21 @@ pub fn assess_all(
             if let Some(d) = details_dir {
                 write_detail(d, stem, &a.detail)?;
             }
-            let owned = a
-                .verdicts
-                .iter()
-                .filter(|v| {
-                    datasets[v.dataset].association[v.point_index].structure() == Some(s.index)
-                })
-                .map(|v| {
-                    (
-                        v.dataset as u32,
-                        v.point_index as u32,
-                        reason_code(v.rejected),
-                        v.vertical_velocity_mm_per_yr.unwrap_or(f64::NAN),
-                    )
-                })
-                .collect();
+            for v in &a.verdicts {
+                if datasets[v.dataset].association[v.point_index].structure() == Some(s.index) {
+                    points.set(
+                        v.dataset,
+                        v.point_index,
+                        v.rejected,
+                        v.vertical_velocity_mm_per_yr,
+                    );
+                }
+            }
             bar.inc(1);
-            Ok((a.record, owned))
+            Ok(a.record)
         })
         .collect::<Result<_>>()?;
     bar.finish_and_clear();
-    let mut points = PointVerdicts::new(datasets);
-    let mut records = Vec::with_capacity(assessed.len());
-    for (r, owned) in assessed {
-        for (d, i, code, v) in owned {
-            points.code[d as usize][i as usize] = code;
-            points.velocity[d as usize][i as usize] = v;
-        }
-        records.push(r);
-    }
     Ok(Assessed { records, points })
 }
 
@@ -1254,16 +1254,12 @@ mod tests {
 
     #[test]
     fn point_verdict_codes_round_trip_every_reason() {
-        let mut v = PointVerdicts {
-            code: vec![vec![NO_VERDICT; REASONS.len() + 2]],
-            velocity: vec![vec![f64::NAN; REASONS.len() + 2]],
-        };
+        let v = PointVerdicts::with_sizes([REASONS.len() + 2].into_iter());
         assert_eq!(v.get(0, 0), None, "no structure assessed the point");
-        v.code[0][0] = reason_code(None);
-        v.velocity[0][0] = -1.25;
+        v.set(0, 0, None, Some(-1.25));
         assert_eq!(v.get(0, 0), Some((None, Some(-1.25))));
         for (i, r) in REASONS.iter().enumerate() {
-            v.code[0][i + 1] = reason_code(Some(r));
+            v.set(0, i + 1, Some(r), None);
             assert_eq!(v.get(0, i + 1), Some((Some(*r), None)), "{r}");
         }
         assert_eq!(reason_code(Some("not a reason")), NO_VERDICT);
