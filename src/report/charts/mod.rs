@@ -10,6 +10,7 @@
 //! - [`portfolio_map`]: all structures coloured by damage category.
 //! - [`works`]: planned works plan view and predicted against observed.
 //! - [`palette`]: the colour scales and their documentation.
+//! - [`labels`]: the text of a drawn chart lifted out of the SVG for typst to set.
 //!
 //! Does not own: any computation of the plotted quantities (only geometry for drawing, such as
 //! the category boundary curves, which are inverted published relations), or file output.
@@ -20,6 +21,7 @@
 //! the file), so tints are blended by hand; every axis is labelled with its unit.
 
 pub mod interaction;
+pub mod labels;
 pub mod map;
 pub mod palette;
 pub mod portfolio_map;
