@@ -316,14 +316,16 @@ impl<'a> ReportWorld<'a> {
 }
 
 /// Serves a chart three ways: the full SVG at its virtual path (for templates that place it
-/// as an image), and its drawing without text plus the labels as JSON (for `chart-image` in
+/// as an image), and its drawing without text (alike shapes merged, see
+/// [`super::charts::compact`]) plus the labels as JSON (for `chart-image` in
 /// `plinth-style.typ`, which sets the text with typst; much faster, see
 /// [`super::charts::labels`]). An SVG that cannot be split is served as its own drawing with
 /// no labels, so `chart-image` still shows it whole.
 fn insert_chart(files: &mut HashMap<FileId, Bytes>, file: ChartFile, svg: String) {
-    let (art, labels) = match super::charts::labels::split(&svg)
-        .and_then(|(art, labels)| Some((art, serde_json::to_string(&labels).ok()?)))
-    {
+    let (art, labels) = match super::charts::labels::split(&svg).and_then(|(art, labels)| {
+        let labels = serde_json::to_string(&labels).ok()?;
+        Some((super::charts::compact::merge_runs(&art), labels))
+    }) {
         Some(split) => split,
         None => (svg.clone(), UNSPLIT_LABELS.to_string()),
     };

@@ -11,6 +11,7 @@
 //! - [`works`]: planned works plan view and predicted against observed.
 //! - [`palette`]: the colour scales and their documentation.
 //! - [`labels`]: the text of a drawn chart lifted out of the SVG for typst to set.
+//! - [`compact`]: runs of alike shapes of a drawn chart merged into one path each.
 //!
 //! Does not own: any computation of the plotted quantities (only geometry for drawing, such as
 //! the category boundary curves, which are inverted published relations), or file output.
@@ -20,6 +21,7 @@
 //! every colour is OPAQUE (translucent elements each become a PDF transparency group and bloat
 //! the file), so tints are blended by hand; every axis is labelled with its unit.
 
+pub mod compact;
 pub mod interaction;
 pub mod labels;
 pub mod map;
