@@ -12,8 +12,11 @@
 //! - PDF identity: `ident` = the asset id (stable document ID), creator "Plinth `<version>`",
 //!   timestamp = the report date from the data (never the clock), so two renders of the same
 //!   model are byte-identical.
-//! - `comemo::evict(0)` after every document: the fastest and leanest setting for reports that
-//!   all differ; without it memory grows by megabytes per report.
+//! - `comemo::evict(CACHE_AGE)` after every document: typst's cache keeps what the last few
+//!   documents used and drops the rest, so the layout of what repeats from report to report
+//!   (static text, table headers, cautions, references; the templates keep per-report data out
+//!   of set rules for this) is reused while memory stays bounded. Without any eviction memory
+//!   grows by megabytes per report (docs/performance.md, "Report rendering").
 //! - Threads, not rayon: typst already uses the global rayon pool inside one compile; running
 //!   reports inside rayon tasks nests them and multiplies memory.
 
@@ -72,9 +75,15 @@ pub fn render_pdf(shared: &ReportShared, job: &RenderJob) -> Result<RenderedPdf,
     )?;
     let result = compile_and_export(&world, job);
     // Evict even on failure, so a failing batch does not accumulate cache either.
-    typst::comemo::evict(0);
+    typst::comemo::evict(CACHE_AGE);
     result
 }
+
+/// Cache entries not used during the last `CACHE_AGE` documents are evicted after each one.
+/// The eviction clock is process-wide, so with N worker threads an entry survives about
+/// `CACHE_AGE / N` documents per thread. 4 measured best of 0, 1, 4 and 10 on the small
+/// benchmark city with little memory cost (docs/performance.md, "Report rendering").
+const CACHE_AGE: usize = 4;
 
 fn compile_and_export(
     world: &ReportWorld<'_>,

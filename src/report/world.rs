@@ -88,6 +88,34 @@ impl ChartFile {
             Self::WorksComparison => "/chart-works-comparison.svg",
         }
     }
+
+    /// The chart's drawing without its text (see [`super::charts::labels`]).
+    pub fn art_path(self) -> &'static str {
+        match self {
+            Self::Map => "/chart-map-art.svg",
+            Self::TimeSeries => "/chart-ts-art.svg",
+            Self::ProfileA => "/chart-profile-a-art.svg",
+            Self::ProfileB => "/chart-profile-b-art.svg",
+            Self::Interaction => "/chart-interaction-art.svg",
+            Self::PortfolioMap => "/chart-portfolio-map-art.svg",
+            Self::WorksPlan => "/chart-works-plan-art.svg",
+            Self::WorksComparison => "/chart-works-comparison-art.svg",
+        }
+    }
+
+    /// The chart's text labels as JSON (see [`super::charts::labels`]).
+    pub fn labels_path(self) -> &'static str {
+        match self {
+            Self::Map => "/chart-map-labels.json",
+            Self::TimeSeries => "/chart-ts-labels.json",
+            Self::ProfileA => "/chart-profile-a-labels.json",
+            Self::ProfileB => "/chart-profile-b-labels.json",
+            Self::Interaction => "/chart-interaction-labels.json",
+            Self::PortfolioMap => "/chart-portfolio-map-labels.json",
+            Self::WorksPlan => "/chart-works-plan-labels.json",
+            Self::WorksComparison => "/chart-works-comparison-labels.json",
+        }
+    }
 }
 
 /// Process-wide state shared by every report: library, fonts, templates, parsed sources.
@@ -267,7 +295,7 @@ impl<'a> ReportWorld<'a> {
         let mut files = HashMap::new();
         files.insert(virtual_id(DATA_PATH), Bytes::from_string(data_json));
         for (file, svg) in charts {
-            files.insert(virtual_id(file.virtual_path()), Bytes::from_string(svg));
+            insert_chart(&mut files, file, svg);
         }
         let month = u8::try_from(date.month).ok();
         let day = u8::try_from(date.day).ok();
@@ -286,6 +314,29 @@ impl<'a> ReportWorld<'a> {
         })
     }
 }
+
+/// Serves a chart three ways: the full SVG at its virtual path (for templates that place it
+/// as an image), and its drawing without text (alike shapes merged, see
+/// [`super::charts::compact`]) plus the labels as JSON (for `chart-image` in
+/// `plinth-style.typ`, which sets the text with typst; much faster, see
+/// [`super::charts::labels`]). An SVG that cannot be split is served as its own drawing with
+/// no labels, so `chart-image` still shows it whole.
+fn insert_chart(files: &mut HashMap<FileId, Bytes>, file: ChartFile, svg: String) {
+    let (art, labels) = match super::charts::labels::split(&svg).and_then(|(art, labels)| {
+        let labels = serde_json::to_string(&labels).ok()?;
+        Some((super::charts::compact::merge_runs(&art), labels))
+    }) {
+        Some(split) => split,
+        None => (svg.clone(), UNSPLIT_LABELS.to_string()),
+    };
+    files.insert(virtual_id(file.art_path()), Bytes::from_string(art));
+    files.insert(virtual_id(file.labels_path()), Bytes::from_string(labels));
+    files.insert(virtual_id(file.virtual_path()), Bytes::from_string(svg));
+}
+
+/// Labels of an SVG that was not split: no text to set; width 0 tells `chart-image` to size
+/// the drawing from the image itself.
+const UNSPLIT_LABELS: &str = r#"{"width":0,"height":0,"labels":[]}"#;
 
 /// The interned id of a fixed virtual path. Only called with the constant names above.
 fn virtual_id(path: &str) -> FileId {
@@ -393,6 +444,40 @@ mod tests {
             Err(FileError::NotFound(p)) => assert_eq!(p, PathBuf::from("/etc/passwd")),
             other => panic!("expected not found, got {other:?}"),
         }
+    }
+
+    #[test]
+    fn charts_are_served_whole_and_split() {
+        let shared = ReportShared::builtin();
+        let svg = concat!(
+            "<svg width=\"20\" height=\"10\">\n",
+            "<text x=\"1\" y=\"2\" dy=\"0.76em\" text-anchor=\"start\" font-family=\"DejaVu Sans\" ",
+            "font-size=\"9\" opacity=\"1\" fill=\"#212121\">\nmm\n</text>\n</svg>\n"
+        );
+        let odd = "<svg viewBox=\"0 0 1 1\"><text>x</text></svg>";
+        let w = ReportWorld::new(
+            &shared,
+            "asset.typ",
+            "{}".to_string(),
+            vec![
+                (ChartFile::Map, svg.to_string()),
+                (ChartFile::TimeSeries, odd.to_string()),
+            ],
+            ReportDate::new(2024, 6, 30).unwrap(),
+        )
+        .unwrap();
+        let text = |path: &str| String::from_utf8(w.file(id(path)).unwrap().to_vec()).unwrap();
+        assert_eq!(text("/chart-map.svg"), svg);
+        assert_eq!(
+            text("/chart-map-art.svg"),
+            "<svg width=\"20\" height=\"10\">\n</svg>\n"
+        );
+        let labels: serde_json::Value =
+            serde_json::from_str(&text("/chart-map-labels.json")).unwrap();
+        assert_eq!(labels["labels"][0]["text"], "mm");
+        // Not splittable: the drawing is the whole SVG and there are no labels to set.
+        assert_eq!(text("/chart-ts-art.svg"), odd);
+        assert_eq!(text("/chart-ts-labels.json"), UNSPLIT_LABELS);
     }
 
     #[test]

@@ -12,6 +12,8 @@
 //! Both axes are shown in percent, as on Burland's chart (Δ/L in %, ε_h in %, + tension);
 //! values are stored absolute and scaled only here.
 
+use std::sync::atomic::AtomicU32;
+
 use plotters::prelude::*;
 
 use super::palette::category_color;
@@ -35,7 +37,9 @@ const LEGEND_H: u32 = 96;
 /// error; a non-finite structure value is drawn without the structure marker and the legend
 /// says so.
 pub fn draw(data: &InteractionChart) -> Result<String, ReportError> {
-    super::with_fitted_legend(SIZE.0, |h| draw_with(data, h))
+    // Legend height this chart needed last time (see `with_fitted_legend`).
+    static LAST_LEGEND_H: AtomicU32 = AtomicU32::new(60);
+    super::with_fitted_legend(SIZE.0, &LAST_LEGEND_H, |h| draw_with(data, h))
 }
 
 /// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries

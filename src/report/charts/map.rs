@@ -15,6 +15,8 @@
 //! 1 m within 50 m of the origin). Correct analysis-CRS corner coordinates need the frame's
 //! north bearing and scale in [`MapChart`] and `LocalFrame::to_analysis`; not done yet.
 
+use std::sync::atomic::AtomicU32;
+
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -240,7 +242,9 @@ fn velocity_limit(data: &MapChart) -> f64 {
 /// Degenerate input: a footprint with fewer than three finite vertices is an error; no kept
 /// points is allowed (the legend says "no kept points").
 pub fn draw(data: &MapChart) -> Result<String, ReportError> {
-    super::with_fitted_legend(SIZE.0, |h| draw_with(data, h))
+    // Legend height this chart needed last time (see `with_fitted_legend`).
+    static LAST_LEGEND_H: AtomicU32 = AtomicU32::new(60);
+    super::with_fitted_legend(SIZE.0, &LAST_LEGEND_H, |h| draw_with(data, h))
 }
 
 /// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries

@@ -10,6 +10,8 @@
 //! - [`portfolio_map`]: all structures coloured by damage category.
 //! - [`works`]: planned works plan view and predicted against observed.
 //! - [`palette`]: the colour scales and their documentation.
+//! - [`labels`]: the text of a drawn chart lifted out of the SVG for typst to set.
+//! - [`compact`]: runs of alike shapes of a drawn chart merged into one path each.
 //!
 //! Does not own: any computation of the plotted quantities (only geometry for drawing, such as
 //! the category boundary curves, which are inverted published relations), or file output.
@@ -19,13 +21,17 @@
 //! every colour is OPAQUE (translucent elements each become a PDF transparency group and bloat
 //! the file), so tints are blended by hand; every axis is labelled with its unit.
 
+pub mod compact;
 pub mod interaction;
+pub mod labels;
 pub mod map;
 pub mod palette;
 pub mod portfolio_map;
 pub mod profile;
 pub mod timeseries;
 pub mod works;
+
+use std::sync::atomic::{AtomicU32, Ordering};
 
 use plotters::style::RGBColor;
 
@@ -252,23 +258,28 @@ fn legend_layout(entries: &[(Swatch, String)], width: u32) -> Vec<(i32, i32)> {
 /// Height of one legend row, px.
 const LEGEND_ROW_H: i32 = 22;
 
-/// Pixel height a legend of `entries` needs at `width` (rows × row height + padding).
-/// Draw a chart whose legend strip must fit its entries: draw once with a first guess of the
-/// strip height, and again with the height the entries need when the guess was wrong.
+/// Draw a chart whose legend strip must fit its entries: draw once with a guess of the strip
+/// height, and again with the height the entries need when the guess was wrong. The guess is
+/// the height the same chart needed last time (`last`, one per chart kind), so in a batch of
+/// reports whose legends have the same number of rows each chart is drawn once. The result
+/// does not depend on the guess: the kept drawing always has the needed height.
 pub(crate) fn with_fitted_legend(
     width: u32,
+    last: &AtomicU32,
     draw: impl Fn(u32) -> Result<(String, Vec<(Swatch, String)>), ReportError>,
 ) -> Result<String, ReportError> {
-    let first_guess = 60;
-    let (svg, legend) = draw(first_guess)?;
+    let guess = last.load(Ordering::Relaxed);
+    let (svg, legend) = draw(guess)?;
     let needed = legend_height(&legend, width);
-    if needed == first_guess {
+    last.store(needed, Ordering::Relaxed);
+    if needed == guess {
         Ok(svg)
     } else {
         draw(needed).map(|(svg, _)| svg)
     }
 }
 
+/// Pixel height a legend of `entries` needs at `width` (rows × row height + padding).
 pub(crate) fn legend_height(entries: &[(Swatch, String)], width: u32) -> u32 {
     let last_y = legend_layout(entries, width)
         .last()

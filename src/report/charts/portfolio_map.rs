@@ -4,6 +4,8 @@
 //!
 //! Owns: drawing. Does not own: the categories (they arrive in [`PortfolioMapChart`]).
 
+use std::sync::atomic::AtomicU32;
+
 use plotters::prelude::*;
 
 use super::SMALL_SIZE;
@@ -27,7 +29,9 @@ type Item<'a> = (Vec<(f64, f64)>, Option<u8>, &'a str);
 ///
 /// Degenerate input: no structure with a drawable footprint is an error.
 pub fn draw(data: &PortfolioMapChart) -> Result<String, ReportError> {
-    super::with_fitted_legend(SIZE.0, |h| draw_with(data, h))
+    // Legend height this chart needed last time (see `with_fitted_legend`).
+    static LAST_LEGEND_H: AtomicU32 = AtomicU32::new(60);
+    super::with_fitted_legend(SIZE.0, &LAST_LEGEND_H, |h| draw_with(data, h))
 }
 
 /// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries

@@ -9,6 +9,8 @@
 //! title says so. Internally the chart plots −settlement and labels the ticks with the
 //! settlement value.
 
+use std::sync::atomic::AtomicU32;
+
 use plotters::prelude::*;
 
 use super::{
@@ -37,7 +39,9 @@ fn zone_fill(mode: BendingMode) -> RGBColor {
 /// Degenerate input: no finite point settlement is an error; an empty or reversed extent is
 /// replaced by the points' own chainage range.
 pub fn draw(data: &ProfileChart) -> Result<String, ReportError> {
-    super::with_fitted_legend(SIZE.0, |h| draw_with(data, h))
+    // Legend height this chart needed last time (see `with_fitted_legend`).
+    static LAST_LEGEND_H: AtomicU32 = AtomicU32::new(60);
+    super::with_fitted_legend(SIZE.0, &LAST_LEGEND_H, |h| draw_with(data, h))
 }
 
 /// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries

@@ -5,6 +5,8 @@
 //! Owns: drawing only. Does not own: fitting (the curves arrive sampled in
 //! [`TimeSeriesChart`]). x is the calendar date (labels `YYYY-MM`), y is mm, positive up.
 
+use std::sync::atomic::AtomicU32;
+
 use plotters::prelude::*;
 
 use super::{
@@ -25,7 +27,9 @@ const LEGEND_H: u32 = 52;
 /// Degenerate input: an empty aggregate series is an error (the caller shows "not computed");
 /// a single epoch is drawn as one point with a ±1 mm axis.
 pub fn draw(data: &TimeSeriesChart) -> Result<String, ReportError> {
-    super::with_fitted_legend(SIZE.0, |h| draw_with(data, h))
+    // Legend height this chart needed last time (see `with_fitted_legend`).
+    static LAST_LEGEND_H: AtomicU32 = AtomicU32::new(60);
+    super::with_fitted_legend(SIZE.0, &LAST_LEGEND_H, |h| draw_with(data, h))
 }
 
 /// Draws with a legend strip of `legend_h` pixels; returns the SVG and the legend entries
