@@ -156,11 +156,13 @@ fn parse_text(element: &str) -> Option<ChartLabel> {
     let valid_fill = fill.len() == 7
         && fill.starts_with('#')
         && fill[1..].chars().all(|c| c.is_ascii_hexdigit());
-    if text.is_empty()
-        || !valid_fill
-        || !matches!(anchor, "start" | "middle" | "end")
-        || !(size.is_finite() && x.is_finite() && y.is_finite())
-    {
+    let usable = !text.is_empty()
+        && valid_fill
+        && matches!(anchor, "start" | "middle" | "end")
+        && size.is_finite()
+        && x.is_finite()
+        && y.is_finite();
+    if !usable {
         return None;
     }
     Some(ChartLabel {
