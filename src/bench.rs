@@ -258,7 +258,6 @@ pub fn floor_file(path: &Path) -> Result<FloorCount> {
 /// uses. Returns the kept and rejected
 /// structure-point counts and the wall time of each stage.
 fn read_associate_screen(portfolio: &Path) -> Result<(usize, usize, IngestStages)> {
-    use crate::association::Role;
     let t = Instant::now();
     let pf = crate::portfolio::Portfolio::load(portfolio)?;
     let mut w = crate::error::Warnings::default();
@@ -272,24 +271,11 @@ fn read_associate_screen(portfolio: &Path) -> Result<(usize, usize, IngestStages
     // Screening asks for each owned point's statistics once: worked out on request.
     let ctx = crate::run::run_context(&pf, &ds, window, &crs, crate::assess::StatsCache::OnDemand)?;
     let statistics_s = t.elapsed().as_secs_f64();
-    let counts = structures
-        .par_iter()
-        .enumerate()
-        .map(|(si, s)| {
-            let members: Vec<crate::assess::Member> = assoc
-                .owned(si)
-                .map(|(d, i)| crate::assess::Member {
-                    dataset: d,
-                    point: ds[d].point(i),
-                    role: Role::Structure,
-                    point_index: i,
-                })
-                .collect();
-            let (verdicts, _) = crate::assess::screen_members(&ctx, s, &members);
-            let rejected = verdicts.iter().filter(|v| v.rejected.is_some()).count();
-            (verdicts.len() - rejected, rejected)
-        })
-        .reduce(|| (0, 0), |a, b| (a.0 + b.0, a.1 + b.1));
+    let counts = crate::run::screen_owned(&ctx, &structures, &assoc)
+        .iter()
+        .fold((0, 0), |a, o| {
+            (a.0 + o.kept, a.1 + o.rejected.values().sum::<usize>())
+        });
     let stages = IngestStages {
         structures_s,
         points_s: points_s - structures_s,

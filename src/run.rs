@@ -903,6 +903,57 @@ fn tally(
     (coverage, by_category, by_grade)
 }
 
+/// One structure's own points after the point screens.
+pub struct OwnScreen {
+    /// Points passing the screens.
+    pub kept: usize,
+    /// Rejected points by reason.
+    pub rejected: BTreeMap<&'static str, usize>,
+    /// Datasets of the kept points, ascending.
+    pub datasets: Vec<usize>,
+}
+
+/// Screen every structure's own points (coherence, epochs, velocity outliers —
+/// `assess::screen_members`), in parallel; `plinth check` and the benchmark's ingest phase.
+pub fn screen_owned(
+    ctx: &RunContext,
+    structures: &[ingest::Structure],
+    owners: &crate::association::Owners,
+) -> Vec<OwnScreen> {
+    let datasets = ctx.datasets;
+    structures
+        .par_iter()
+        .enumerate()
+        .map(|(si, s)| {
+            let members: Vec<Member> = owners
+                .owned(si)
+                .map(|(d, i)| Member {
+                    dataset: d,
+                    point: datasets[d].point(i),
+                    role: Role::Structure,
+                    point_index: i,
+                })
+                .collect();
+            let (verdicts, _) = assess::screen_members(ctx, s, &members);
+            let mut rejected: BTreeMap<&'static str, usize> = BTreeMap::new();
+            let mut used: Vec<usize> = Vec::new();
+            for v in &verdicts {
+                match v.rejected {
+                    Some(r) => *rejected.entry(r).or_default() += 1,
+                    None => used.push(v.dataset),
+                }
+            }
+            let kept = used.len();
+            used.dedup();
+            OwnScreen {
+                kept,
+                rejected,
+                datasets: used,
+            }
+        })
+        .collect()
+}
+
 /// What `plinth check` found after reading, association and point screening.
 pub struct CheckSummary {
     /// The inputs read.
@@ -932,44 +983,24 @@ pub fn check(portfolio_path: &Path) -> Result<CheckSummary> {
     )?;
     let owners = crate::association::Owners::from_datasets(datasets, structures.len());
     let a = &p.portfolio.assessment;
-    let screened: Vec<(usize, BTreeMap<&'static str, usize>, Option<&'static str>)> = structures
-        .par_iter()
-        .enumerate()
-        .map(|(si, s)| {
-            let members: Vec<Member> = owners
-                .owned(si)
-                .map(|(d, i)| Member {
-                    dataset: d,
-                    point: datasets[d].point(i),
-                    role: Role::Structure,
-                    point_index: i,
-                })
-                .collect();
-            let (verdicts, _) = assess::screen_members(&ctx, s, &members);
-            let mut rejected: BTreeMap<&'static str, usize> = BTreeMap::new();
-            let mut used: Vec<usize> = Vec::new();
-            for v in &verdicts {
-                match v.rejected {
-                    Some(r) => *rejected.entry(r).or_default() += 1,
-                    None => used.push(v.dataset),
-                }
-            }
-            let kept = used.len();
-            used.dedup();
-            // The same minimums, in the same order, as `assess::assess_structure`.
-            let (epochs, _) = assess::series_extent(&ctx, &used);
-            let below = if kept < a.min_points.max(1) {
-                Some("min_points")
-            } else if epochs < a.min_epochs {
-                Some("min_epochs")
-            } else if p.window.span_years() < a.min_span_years {
-                Some("min_span_years")
-            } else {
-                None
-            };
-            (kept, rejected, below)
-        })
-        .collect();
+    let screened: Vec<(usize, BTreeMap<&'static str, usize>, Option<&'static str>)> =
+        screen_owned(&ctx, structures, &owners)
+            .into_iter()
+            .map(|o| {
+                // The same minimums, in the same order, as `assess::assess_structure`.
+                let (epochs, _) = assess::series_extent(&ctx, &o.datasets);
+                let below = if o.kept < a.min_points.max(1) {
+                    Some("min_points")
+                } else if epochs < a.min_epochs {
+                    Some("min_epochs")
+                } else if p.window.span_years() < a.min_span_years {
+                    Some("min_span_years")
+                } else {
+                    None
+                };
+                (o.kept, o.rejected, below)
+            })
+            .collect();
     let mut coverage = Coverage {
         structures: structures.len(),
         ..Default::default()
