@@ -684,12 +684,12 @@ fn reason_code(r: Option<&'static str>) -> u8 {
 }
 
 /// Assess every structure in parallel. Each structure's detail is written to
-/// `details_dir/<stem>.json` (when given) as soon as it is assessed and then dropped, so memory
+/// `details_dir/<stem>.json` as soon as it is assessed and then dropped, so memory
 /// holds only the compact records whatever the number of structures.
 pub fn assess_all(
     p: &Prepared,
     association: &Association,
-    details_dir: Option<&Path>,
+    details_dir: &Path,
     progress: bool,
 ) -> Result<Assessed> {
     let Prepared {
@@ -713,9 +713,8 @@ pub fn assess_all(
         .map(|s| s.raw.id.as_str())
         .collect();
     let stems = output::safe_names::assign(&ids);
-    if let Some(d) = details_dir {
-        std::fs::create_dir_all(d).with_context(|| format!("cannot create {}", d.display()))?;
-    }
+    std::fs::create_dir_all(details_dir)
+        .with_context(|| format!("cannot create {}", details_dir.display()))?;
     let bar = progress_bar(progress, inputs.structures.len());
     let points = PointVerdicts::with_sizes(datasets.iter().map(ingest::Dataset::len));
     let records: Vec<StructureResult> = inputs
@@ -741,9 +740,7 @@ pub fn assess_all(
                 })
                 .collect();
             let a = assess::assess_structure(&ctx, s, &members, Some(stem.clone()));
-            if let Some(d) = details_dir {
-                write_detail(d, stem, &a.detail)?;
-            }
+            write_detail(details_dir, stem, &a.detail)?;
             for v in &a.verdicts {
                 if datasets[v.dataset].association[v.point_index].structure() == Some(s.index) {
                     points.set(
@@ -1045,15 +1042,6 @@ pub fn check(portfolio_path: &Path) -> Result<CheckSummary> {
     })
 }
 
-/// Read, associate and assess without writing anything (details are not kept).
-pub fn analyse(portfolio_path: &Path, opts: &RunOptions) -> Result<Analysis> {
-    let p = prepare(portfolio_path, opts)?;
-    let association = associate(&p)?;
-    let assessed = assess_all(&p, &association, None, opts.progress)?;
-    let results = summarise(&p, &association, assessed.records, opts)?;
-    Ok(Analysis::new(p, results, assessed.points))
-}
-
 /// Compare with a previous run's results.json; returns the ids gone since then.
 pub fn compare_previous(prev_dir: &Path, current: &mut [StructureResult]) -> Result<Vec<String>> {
     let path = prev_dir.join("results.json");
@@ -1223,7 +1211,7 @@ pub fn assess_into(portfolio_path: &Path, opts: &RunOptions, out: &Path) -> Resu
     let res = (|| -> Result<Analysis> {
         let details = staging.dir.join(assess::DETAILS_DIR);
         let association = associate(&p)?;
-        let assessed = assess_all(&p, &association, Some(&details), opts.progress)?;
+        let assessed = assess_all(&p, &association, &details, opts.progress)?;
         let results = summarise(&p, &association, assessed.records, opts)?;
         drop(association);
         let a = Analysis::new(p, results, assessed.points);
