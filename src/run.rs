@@ -426,11 +426,9 @@ impl Association {
     pub fn members(&self, s: usize) -> impl Iterator<Item = (usize, usize)> + '_ {
         let range =
             self.starts.get(s).copied().unwrap_or(0)..self.starts.get(s + 1).copied().unwrap_or(0);
-        self.points[range].iter().map(move |&g| {
-            let g = g as usize;
-            let d = self.dataset_offsets.partition_point(|&o| o <= g) - 1;
-            (d, g - self.dataset_offsets[d])
-        })
+        self.points[range]
+            .iter()
+            .map(move |&g| crate::association::split_global(&self.dataset_offsets, g))
     }
 }
 

@@ -210,12 +210,18 @@ impl Owners {
     pub fn owned(&self, s: usize) -> impl Iterator<Item = (usize, usize)> + '_ {
         let range = self.owner_start.get(s).copied().unwrap_or(0)
             ..self.owner_start.get(s + 1).copied().unwrap_or(0);
-        self.owned_points[range].iter().map(move |&g| {
-            let g = g as usize;
-            let d = self.dataset_offsets.partition_point(|&o| o <= g) - 1;
-            (d, g - self.dataset_offsets[d])
-        })
+        self.owned_points[range]
+            .iter()
+            .map(move |&g| split_global(&self.dataset_offsets, g))
     }
+}
+
+/// `(dataset, index in the dataset)` of a global point index (dataset offset + index), given
+/// each dataset's first global index (ascending, the first 0).
+pub fn split_global(dataset_offsets: &[usize], g: u32) -> (usize, usize) {
+    let g = g as usize;
+    let d = dataset_offsets.partition_point(|&o| o <= g) - 1;
+    (d, g - dataset_offsets[d])
 }
 
 /// The spatial index over structures.

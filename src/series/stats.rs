@@ -34,13 +34,7 @@ pub fn quantile(x: &[f64], q: f64) -> Option<f64> {
 /// The same number as [`quantile`] and as [`quantile_sorted`] after a sort (the order statistics
 /// do not depend on how they are found). `None` for no values or `q` outside [0, 1].
 pub fn quantile_in_place(v: &mut [f64], q: f64) -> Option<f64> {
-    if v.is_empty() || !(0.0..=1.0).contains(&q) {
-        return None;
-    }
-    let pos = q * (v.len() - 1) as f64;
-    let lo = pos.floor() as usize;
-    let hi = pos.ceil() as usize;
-    let frac = pos - lo as f64;
+    let (lo, hi, frac) = type7_position(v.len(), q)?;
     let (_, lo_value, above) = v.select_nth_unstable_by(lo, f64::total_cmp);
     let lo_value = *lo_value;
     let hi_value = if hi > lo {
@@ -58,14 +52,19 @@ pub fn quantile_in_place(v: &mut [f64], q: f64) -> Option<f64> {
 /// [`quantile`] of values already sorted ascending (all finite): type 7, position q·(n−1).
 /// `None` for no values or `q` outside [0, 1].
 pub fn quantile_sorted(v: &[f64], q: f64) -> Option<f64> {
-    if v.is_empty() || !(0.0..=1.0).contains(&q) {
+    let (lo, hi, frac) = type7_position(v.len(), q)?;
+    Some(v[lo] + (v[hi] - v[lo]) * frac)
+}
+
+/// The type-7 quantile position q·(n−1) of `n` sorted values: the order statistics below and
+/// above it (0-based) and the fraction between them. `None` for n = 0 or `q` outside [0, 1].
+fn type7_position(n: usize, q: f64) -> Option<(usize, usize, f64)> {
+    if n == 0 || !(0.0..=1.0).contains(&q) {
         return None;
     }
-    let pos = q * (v.len() - 1) as f64;
+    let pos = q * (n - 1) as f64;
     let lo = pos.floor() as usize;
-    let hi = pos.ceil() as usize;
-    let frac = pos - lo as f64;
-    Some(v[lo] + (v[hi] - v[lo]) * frac)
+    Some((lo, pos.ceil() as usize, pos - lo as f64))
 }
 
 /// Median absolute deviation `median(|x − median(x)|)` of the finite values (unscaled).
