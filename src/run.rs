@@ -89,50 +89,59 @@ impl Analysis {
         &'a self,
         to_wgs: &'a crate::coords::Transformer,
     ) -> impl Iterator<Item = PointRow<'a>> + 'a {
-        let structures = &self.inputs.structures;
         self.inputs
             .datasets
             .iter()
             .enumerate()
-            .flat_map(move |(di, d)| {
-                (0..d.len()).flat_map(move |pi| {
-                    let l = d.association[pi];
-                    let p = d.point(pi);
-                    let (lon, lat) = to_wgs.apply(p.x(), p.y()).unwrap_or((f64::NAN, f64::NAN));
-                    let base = PointRow {
-                        dataset: d.name.as_str(),
-                        point_id: p.id(),
-                        line: p.line(),
-                        lon,
-                        lat,
-                        structure_id: "",
-                        role: "tie",
-                        inside: false,
-                        distance_m: 0.0,
-                        status: "rejected",
-                        reason: assess::reason::TIE,
-                        vertical_velocity_mm_per_yr: None,
-                        surroundings_of: usize::from(l.rings),
-                    };
-                    let owned = l.structure().map(|k| {
-                        let (rej, vv) = self.points.get(di, pi).unwrap_or((None, None));
-                        PointRow {
-                            structure_id: structures[k].raw.id.as_str(),
-                            role: match l.role() {
-                                Role::Structure => "structure",
-                                Role::Surroundings => "surroundings",
-                            },
-                            inside: l.inside(),
-                            distance_m: (f64::from(l.distance_m) * 1000.0).round() / 1000.0,
-                            status: if rej.is_some() { "rejected" } else { "kept" },
-                            reason: rej.unwrap_or(""),
-                            vertical_velocity_mm_per_yr: vv.map(|v| (v * 1000.0).round() / 1000.0),
-                            ..base.clone()
-                        }
-                    });
-                    l.tie().then_some(base).into_iter().chain(owned)
-                })
-            })
+            .flat_map(move |(di, d)| self.point_rows_of(di, 0..d.len(), to_wgs))
+    }
+
+    /// The rows of points.csv for the points `range` of dataset `di` (see [`Self::point_rows`]).
+    pub fn point_rows_of<'a>(
+        &'a self,
+        di: usize,
+        range: std::ops::Range<usize>,
+        to_wgs: &'a crate::coords::Transformer,
+    ) -> impl Iterator<Item = PointRow<'a>> + 'a {
+        let structures = &self.inputs.structures;
+        let d = &self.inputs.datasets[di];
+        range.flat_map(move |pi| {
+            let l = d.association[pi];
+            let p = d.point(pi);
+            let (lon, lat) = to_wgs.apply(p.x(), p.y()).unwrap_or((f64::NAN, f64::NAN));
+            let base = PointRow {
+                dataset: d.name.as_str(),
+                point_id: p.id(),
+                line: p.line(),
+                lon,
+                lat,
+                structure_id: "",
+                role: "tie",
+                inside: false,
+                distance_m: 0.0,
+                status: "rejected",
+                reason: assess::reason::TIE,
+                vertical_velocity_mm_per_yr: None,
+                surroundings_of: usize::from(l.rings),
+            };
+            let owned = l.structure().map(|k| {
+                let (rej, vv) = self.points.get(di, pi).unwrap_or((None, None));
+                PointRow {
+                    structure_id: structures[k].raw.id.as_str(),
+                    role: match l.role() {
+                        Role::Structure => "structure",
+                        Role::Surroundings => "surroundings",
+                    },
+                    inside: l.inside(),
+                    distance_m: (f64::from(l.distance_m) * 1000.0).round() / 1000.0,
+                    status: if rej.is_some() { "rejected" } else { "kept" },
+                    reason: rej.unwrap_or(""),
+                    vertical_velocity_mm_per_yr: vv.map(|v| (v * 1000.0).round() / 1000.0),
+                    ..base.clone()
+                }
+            });
+            l.tie().then_some(base).into_iter().chain(owned)
+        })
     }
 }
 
@@ -1150,27 +1159,66 @@ pub fn check_out(
     guard::check(out, guard::Policy::ReplaceOutput, &inputs)
 }
 
-/// The manifest document.
-pub fn manifest(a: &Analysis, opts: &RunOptions) -> Result<serde_json::Value> {
-    let pf = &a.portfolio;
-    let mut inputs = vec![serde_json::json!({
-        "role": "portfolio",
-        "path": pf.file.display().to_string(),
-        "sha256": output::sha256_file(&pf.file)?,
-    })];
-    inputs.push(serde_json::json!({
-        "role": "structures",
-        "path": pf.structures.path.display().to_string(),
-        "sha256": output::sha256_file(&pf.structures.path)?,
-    }));
+/// One input file named by the portfolio with its SHA-256, for the manifest.
+#[derive(Debug, Clone)]
+pub struct InputDigest {
+    /// `portfolio`, `structures` or `dataset`.
+    pub role: &'static str,
+    /// The dataset's name (datasets only).
+    pub name: Option<String>,
+    /// The file.
+    pub path: PathBuf,
+    /// SHA-256, hex.
+    pub sha256: String,
+}
+
+/// Hash every input the portfolio names on a thread of its own (the manifest needs the digests
+/// only at the end, so the hashing overlaps the assessment instead of lengthening the run).
+pub fn hash_inputs_in_background(
+    pf: &Portfolio,
+) -> std::thread::JoinHandle<Result<Vec<InputDigest>>> {
+    let mut files = vec![
+        ("portfolio", None, pf.file.clone()),
+        ("structures", None, pf.structures.path.clone()),
+    ];
     for d in &pf.datasets {
-        inputs.push(serde_json::json!({
-            "role": "dataset",
-            "name": d.name,
-            "path": d.path.display().to_string(),
-            "sha256": output::sha256_file(&d.path)?,
-        }));
+        files.push(("dataset", Some(d.name.clone()), d.path.clone()));
     }
+    std::thread::spawn(move || {
+        files
+            .into_iter()
+            .map(|(role, name, path)| {
+                let sha256 = output::sha256_file(&path)?;
+                Ok(InputDigest {
+                    role,
+                    name,
+                    path,
+                    sha256,
+                })
+            })
+            .collect()
+    })
+}
+
+/// The manifest document.
+pub fn manifest(
+    a: &Analysis,
+    opts: &RunOptions,
+    digests: &[InputDigest],
+) -> Result<serde_json::Value> {
+    let pf = &a.portfolio;
+    let inputs: Vec<serde_json::Value> = digests
+        .iter()
+        .map(|d| {
+            let mut v = serde_json::json!({"role": d.role});
+            if let Some(name) = &d.name {
+                v["name"] = serde_json::json!(name);
+            }
+            v["path"] = serde_json::json!(d.path.display().to_string());
+            v["sha256"] = serde_json::json!(d.sha256);
+            v
+        })
+        .collect();
     Ok(serde_json::json!({
         "tool": "plinth",
         (guard::FORMAT_KEY): guard::FORMAT_MARKER,
@@ -1206,6 +1254,7 @@ pub fn assess_into(portfolio_path: &Path, opts: &RunOptions, out: &Path) -> Resu
     let p = prepare(portfolio_path, opts)?;
     let target = check_out(out, portfolio_path, Some(&p.portfolio), opts)?;
     let staging = output::Staging::new(&target)?;
+    let digests = hash_inputs_in_background(&p.portfolio);
     let res = (|| -> Result<Analysis> {
         let details = staging.dir.join(assess::DETAILS_DIR);
         let association = associate(&p)?;
@@ -1213,7 +1262,7 @@ pub fn assess_into(portfolio_path: &Path, opts: &RunOptions, out: &Path) -> Resu
         let results = summarise(&p, &association, assessed.records, opts)?;
         drop(association);
         let a = Analysis::new(p, results, assessed.points);
-        write_outputs(&a, opts, &staging.dir)?;
+        write_outputs(&a, opts, &staging.dir, digests)?;
         Ok(a)
     })();
     match res {
@@ -1229,8 +1278,35 @@ pub fn assess_into(portfolio_path: &Path, opts: &RunOptions, out: &Path) -> Resu
 }
 
 /// Write the portfolio outputs and the reports into the staging folder `d` (the detail files
-/// are already there).
-fn write_outputs(a: &Analysis, opts: &RunOptions, d: &Path) -> Result<()> {
+/// are already there): the points files and the results files at the same time, then the
+/// manifest once the inputs' digests are ready.
+fn write_outputs(
+    a: &Analysis,
+    opts: &RunOptions,
+    d: &Path,
+    digests: std::thread::JoinHandle<Result<Vec<InputDigest>>>,
+) -> Result<()> {
+    let (points, results) = rayon::join(|| write_points(a, d), || write_results(a, d));
+    points?;
+    results?;
+    let digests = digests
+        .join()
+        .map_err(|_| anyhow::anyhow!("hashing the inputs failed (the thread stopped)"))??;
+    let m = manifest(a, opts, &digests)?;
+    output::write_file(
+        d,
+        "manifest.json",
+        (serde_json::to_string_pretty(&m)? + "\n").as_bytes(),
+    )?;
+    // PDF reports (report::pipeline) read the detail files back from `d`.
+    if !opts.no_reports {
+        crate::report::pipeline::render_reports(&a.report_input(), d, opts.jobs, opts.progress)?;
+    }
+    Ok(())
+}
+
+/// results.json, results.csv and results.geojson.
+fn write_results(a: &Analysis, d: &Path) -> Result<()> {
     output::write_with(d, "results.json", |w| {
         output::results_json_to(&a.results, w)
     })?;
@@ -1243,26 +1319,66 @@ fn write_outputs(a: &Analysis, opts: &RunOptions, d: &Path) -> Result<()> {
         .collect();
     output::write_with(d, "results.geojson", |w| {
         output::results_geojson_to(&a.results, &fps, w)
-    })?;
+    })
+}
+
+/// points.csv and points.geojson, written together: pieces of a few thousand points are
+/// formatted in parallel, a few per worker at a time (bounded memory), and written in order.
+fn write_points(a: &Analysis, d: &Path) -> Result<()> {
+    const PIECE: usize = 1 << 14;
     let to_wgs =
         crate::coords::Transformer::new(&a.inputs.analysis_crs, &crate::coords::Crs::wgs84());
-    output::write_with(d, "points.csv", |w| {
-        output::points_csv_to(a.point_rows(&to_wgs), w)
-    })?;
-    output::write_with(d, "points.geojson", |w| {
-        output::points_geojson_to(a.point_rows(&to_wgs), w)
-    })?;
-    let m = manifest(a, opts)?;
-    output::write_file(
-        d,
-        "manifest.json",
-        (serde_json::to_string_pretty(&m)? + "\n").as_bytes(),
-    )?;
-    // PDF reports (report::pipeline) read the detail files back from `d`.
-    if !opts.no_reports {
-        crate::report::pipeline::render_reports(&a.report_input(), d, opts.jobs, opts.progress)?;
-    }
-    Ok(())
+    let pieces: Vec<(usize, std::ops::Range<usize>)> = a
+        .inputs
+        .datasets
+        .iter()
+        .enumerate()
+        .flat_map(|(di, ds)| {
+            (0..ds.len())
+                .step_by(PIECE)
+                .map(move |s| (di, s..(s + PIECE).min(ds.len())))
+        })
+        .collect();
+    output::write_with(d, "points.csv", |csv| {
+        output::write_with(d, "points.geojson", |geojson| {
+            let mut head = Vec::new();
+            output::points_csv_header(&mut head)?;
+            csv.write_all(&head)?;
+            geojson.write_all(output::POINTS_GEOJSON_HEAD)?;
+            let mut first = true;
+            for wave in pieces.chunks(4 * rayon::current_num_threads()) {
+                let texts: Vec<Result<(Vec<u8>, Vec<u8>)>> = wave
+                    .par_iter()
+                    .map(|(di, range)| {
+                        let (mut c, mut g) = (Vec::new(), Vec::new());
+                        output::points_csv_rows(
+                            a.point_rows_of(*di, range.clone(), &to_wgs),
+                            &mut c,
+                        )?;
+                        output::points_geojson_features(
+                            a.point_rows_of(*di, range.clone(), &to_wgs),
+                            &mut g,
+                        )?;
+                        Ok((c, g))
+                    })
+                    .collect();
+                for t in texts {
+                    let (c, g) = t?;
+                    csv.write_all(&c)?;
+                    // Each feature comes with a leading comma; the file's first one goes without.
+                    let g = if first && !g.is_empty() {
+                        first = false;
+                        &g[1..]
+                    } else {
+                        &g[..]
+                    };
+                    geojson.write_all(g)?;
+                }
+            }
+            geojson.write_all(output::POINTS_GEOJSON_TAIL)?;
+            Ok(())
+        })
+    })
 }
 
 #[cfg(test)]

@@ -404,10 +404,32 @@ pub fn points_csv_to<'a>(
     rows: impl IntoIterator<Item = PointRow<'a>>,
     out: &mut dyn Write,
 ) -> Result<()> {
+    let mut buf = Vec::new();
+    points_csv_header(&mut buf)?;
+    points_csv_rows(rows, &mut buf)?;
+    out.write_all(&buf)?;
+    Ok(())
+}
+
+/// The header line of points.csv.
+pub fn points_csv_header(buf: &mut Vec<u8>) -> Result<()> {
     let mut w = csv::WriterBuilder::new()
         .has_headers(false)
-        .from_writer(out);
+        .from_writer(buf);
     w.write_record(POINT_COLUMNS)?;
+    w.flush()?;
+    Ok(())
+}
+
+/// Append rows of points.csv (no header) to `buf`: one piece of the file, formatted on its own
+/// so that pieces can be formatted in parallel and written in order.
+pub fn points_csv_rows<'a>(
+    rows: impl IntoIterator<Item = PointRow<'a>>,
+    buf: &mut Vec<u8>,
+) -> Result<()> {
+    let mut w = csv::WriterBuilder::new()
+        .has_headers(false)
+        .from_writer(buf);
     for r in rows {
         w.serialize(r)?;
     }
@@ -430,13 +452,31 @@ struct PointFeature<'r, 'a> {
     geometry: PointGeometry,
 }
 
+/// The text before the first feature of points.geojson.
+pub const POINTS_GEOJSON_HEAD: &[u8] = b"{\"type\":\"FeatureCollection\",\"features\":[";
+/// The text after the last feature of points.geojson.
+pub const POINTS_GEOJSON_TAIL: &[u8] = b"]}\n";
+
 /// Stream points.geojson, one feature at a time.
 pub fn points_geojson_to<'a>(
     rows: impl IntoIterator<Item = PointRow<'a>>,
     w: &mut dyn Write,
 ) -> Result<()> {
-    w.write_all(b"{\"type\":\"FeatureCollection\",\"features\":[")?;
-    for (i, r) in rows.into_iter().enumerate() {
+    let mut buf = Vec::new();
+    points_geojson_features(rows, &mut buf)?;
+    w.write_all(POINTS_GEOJSON_HEAD)?;
+    w.write_all(buf.get(1..).unwrap_or_default())?;
+    w.write_all(POINTS_GEOJSON_TAIL)?;
+    Ok(())
+}
+
+/// Append features of points.geojson to `buf`, each preceded by a comma (the writer drops the
+/// comma before the file's first feature): one piece of the file, formatted on its own.
+pub fn points_geojson_features<'a>(
+    rows: impl IntoIterator<Item = PointRow<'a>>,
+    buf: &mut Vec<u8>,
+) -> Result<()> {
+    for r in rows {
         let f = PointFeature {
             r#type: "Feature",
             properties: &r,
@@ -445,12 +485,9 @@ pub fn points_geojson_to<'a>(
                 coordinates: [round9(r.lon), round9(r.lat)],
             },
         };
-        if i > 0 {
-            w.write_all(b",")?;
-        }
-        serde_json::to_writer(&mut *w, &f)?;
+        buf.push(b',');
+        serde_json::to_writer(&mut *buf, &f)?;
     }
-    w.write_all(b"]}\n")?;
     Ok(())
 }
 
