@@ -76,7 +76,30 @@ pub struct PointStats {
     jump_candidate: bool,
 }
 
+/// True when the point's coherence is below `min_coherence` (a file without a coherence column,
+/// or an empty cell, is never below): the first screening rule, and the rule by which the
+/// reader drops a point's series ([`crate::ingest::Dataset::drop_series`]).
+pub fn below_min_coherence(p: PointRef, has_coherence: bool, min_coherence: f64) -> bool {
+    has_coherence && p.coherence().is_some_and(|c| f64::from(c) < min_coherence)
+}
+
 impl PointStats {
+    /// The statistics of a point whose series was dropped: no valid epoch, nothing computable.
+    pub const NO_SERIES: PointStats = PointStats {
+        valid_epochs: 0,
+        los_velocity_mm_per_yr: f32::NAN,
+        los_velocity_se_mm_per_yr: f32::NAN,
+        period_mm: f32::NAN,
+        period_sigma_mm: f32::NAN,
+        jump_candidate: false,
+    };
+
+    /// [`PointStats::of`] the point's series, or [`PointStats::NO_SERIES`].
+    pub fn of_point(p: PointRef, idx: &[usize], times: &WindowTimes, wavelength_mm: f64) -> Self {
+        p.series()
+            .map_or(Self::NO_SERIES, |s| Self::of(s, idx, times, wavelength_mm))
+    }
+
     /// Statistics of one point over the window.
     ///
     /// `idx` are the window's epoch indices and `times` the time of epoch `idx[k]` from the window
@@ -392,8 +415,8 @@ impl RunContext<'_> {
     pub fn point_stats(&self, dataset: usize, point: usize) -> PointStats {
         match &self.point_stats {
             Some(all) => all[dataset][point],
-            None => PointStats::of(
-                self.datasets[dataset].point(point).series(),
+            None => PointStats::of_point(
+                self.datasets[dataset].point(point),
                 &self.window_idx[dataset],
                 &self.window_times[dataset],
                 self.portfolio.datasets[dataset].wavelength_mm,
@@ -562,10 +585,8 @@ pub fn screen_members(
         let ds = &ctx.datasets[m.dataset];
         let idx = &ctx.window_idx[m.dataset];
         let mut rejected = None;
-        if let (Some(c), true) = (m.point.coherence(), ds.has_coherence) {
-            if (c as f64) < a.min_coherence {
-                rejected = Some(reason::LOW_COHERENCE);
-            }
+        if below_min_coherence(m.point, ds.has_coherence, a.min_coherence) {
+            rejected = Some(reason::LOW_COHERENCE);
         }
         let st = ctx.point_stats(m.dataset, m.point_index);
         let _ = (ds, idx);
@@ -828,11 +849,15 @@ fn series_stage(
                 name: &ctx.datasets[*di].name,
                 pass: series_pass(ctx.portfolio.datasets[*di].pass),
                 epochs: &ctx.datasets[*di].epochs,
+                // Every point that passed screening has its series (only points below the
+                // minimum coherence have theirs dropped, `below_min_coherence`).
                 points: idxs
                     .iter()
-                    .map(|i| crate::series::PointSeries {
-                        values_mm: members[*i].point.series(),
-                        unit_enu: point_unit(ctx, &members[*i]),
+                    .filter_map(|i| {
+                        Some(crate::series::PointSeries {
+                            values_mm: members[*i].point.series()?,
+                            unit_enu: point_unit(ctx, &members[*i]),
+                        })
                     })
                     .collect(),
             })

@@ -321,12 +321,7 @@ pub fn run_context<'a>(
                     (0..d.len())
                         .into_par_iter()
                         .map(|i| {
-                            assess::PointStats::of(
-                                d.point(i).series(),
-                                idx,
-                                times,
-                                spec.wavelength_mm,
-                            )
+                            assess::PointStats::of_point(d.point(i), idx, times, spec.wavelength_mm)
                         })
                         .collect()
                 })

@@ -689,7 +689,11 @@ mod mintpy_checks {
         let tol = 5e-5 + max_abs / 65_534.0 + 1e-6;
         for ds in &inputs.datasets {
             assert_eq!(ds.len(), 1);
-            let series = ds.point(0).series().to_vec();
+            let series = ds
+                .point(0)
+                .series()
+                .expect("a coherent point keeps its series")
+                .to_vec();
             assert_eq!(series.len(), proj.len());
             for (v, p) in series.iter().zip(proj) {
                 let want = f(&p["los_towards_satellite_mm"]);

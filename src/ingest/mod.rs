@@ -207,6 +207,11 @@ pub fn read_datasets(
                 &spec.path,
             )?);
         }
+        // Points below the minimum coherence are rejected before any series is read: keep
+        // their records (they are listed as rejected) but not their series.
+        let has_coherence = ds.has_coherence;
+        let min = pf.assessment.min_coherence;
+        ds.drop_series(|p| !crate::assess::below_min_coherence(p, has_coherence, min));
         out.push(ds);
     }
     if area.is_none() && pf.datasets.len() >= 2 {

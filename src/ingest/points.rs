@@ -1442,6 +1442,7 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
         points: store.points,
         ids: store.ids,
         codes: store.codes,
+        series_at: vec![],
         association: store.association,
         incidence_deg: per_point(inc_col.is_some(), store.incidence_deg, spec.incidence_deg),
         heading_deg: per_point(head_col.is_some(), store.heading_deg, spec.heading_deg),
@@ -1546,8 +1547,8 @@ mod tests {
         let d = read(text, &spec()).unwrap();
         assert_eq!(d.points.len(), 2);
         assert_eq!(d.epochs.len(), 2);
-        assert_eq!(d.point(0).series().get(1), -1.5);
-        assert!(d.point(1).series().get(1).is_nan());
+        assert_eq!(d.point(0).series().unwrap().get(1), -1.5);
+        assert!(d.point(1).series().unwrap().get(1).is_nan());
         assert_eq!(d.point(1).line(), 3);
     }
 
@@ -1557,7 +1558,7 @@ mod tests {
         s.positive = LosSign::Away;
         s.unit = Unit::M;
         let d = read("point_id,lon,lat,2023-01-01\np,9,45,0.002\n", &s).unwrap();
-        assert_eq!(d.point(0).series().get(0), -2.0);
+        assert_eq!(d.point(0).series().unwrap().get(0), -2.0);
     }
 
     #[test]
@@ -1735,8 +1736,8 @@ mod tests {
         for (i, p) in d.iter_points().enumerate() {
             assert_eq!(p.id(), format!("p{i}"));
             assert_eq!(p.line(), i as u64 + 2);
-            assert_eq!(p.series().get(0), (i % 7) as f32);
-            assert_eq!(p.series().get(1), -((i % 5) as f32));
+            assert_eq!(p.series().unwrap().get(0), (i % 7) as f32);
+            assert_eq!(p.series().unwrap().get(1), -((i % 5) as f32));
         }
     }
 
@@ -1790,7 +1791,7 @@ mod tests {
             assert_eq!(d.association, base.association);
             for (a, b) in d.iter_points().zip(base.iter_points()) {
                 assert_eq!((a.id(), a.line()), (b.id(), b.line()));
-                assert_eq!(a.series().to_vec(), b.series().to_vec());
+                assert_eq!(a.series().unwrap().to_vec(), b.series().unwrap().to_vec());
             }
         }
         // x = 0..3 and 10..13, ...: within 3 m of a square; x = 4..6 etc. are out of reach.
@@ -1872,7 +1873,7 @@ mod tests {
         let ids: Vec<&str> = d.iter_points().map(|p| p.id()).collect();
         assert_eq!(ids, ["p1", "p,2", "p3"]);
         assert_eq!(d.point(2).line(), 4);
-        assert_eq!(d.point(2).series().get(0), 3.0);
+        assert_eq!(d.point(2).series().unwrap().get(0), 3.0);
         // A slow-path error keeps its physical line number.
         let text = "point_id,lon,lat,2023-01-01\n\"p1\",9,45,1\n\np3,9,45,z\n";
         let e = read(text, &spec()).unwrap_err();
@@ -1931,7 +1932,7 @@ mod tests {
                 assert_eq!(a.points.len(), rows.len());
                 for (i, pa) in a.iter_points().enumerate() {
                     let pb = b.point(i + 1);
-                    match (pa.series(), pb.series()) {
+                    match (pa.series().unwrap(), pb.series().unwrap()) {
                         (
                             SeriesRef::Codes {
                                 codes: ca,
@@ -1955,6 +1956,6 @@ mod tests {
     #[test]
     fn no_trailing_newline_and_crlf() {
         let d = read("point_id,lon,lat,2023-01-01\r\np,9,45,4.5", &spec()).unwrap();
-        assert_eq!(d.point(0).series().get(0), 4.5);
+        assert_eq!(d.point(0).series().unwrap().get(0), 4.5);
     }
 }

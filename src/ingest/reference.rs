@@ -151,7 +151,11 @@ pub fn rereference(
 /// Per-epoch median of the chosen points; `Err(date)` for an epoch with no value.
 fn median_series(ds: &Dataset, points: &[usize]) -> Result<Vec<f64>, NaiveDate> {
     let mut column = Vec::with_capacity(points.len());
-    let series: Vec<_> = points.iter().map(|&i| ds.point(i).series()).collect();
+    // The reference points are coherent ones, so every one has its series.
+    let series: Vec<_> = points
+        .iter()
+        .filter_map(|&i| ds.point(i).series())
+        .collect();
     (0..ds.epochs.len())
         .map(|e| {
             column.clear();

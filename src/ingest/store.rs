@@ -23,6 +23,8 @@ use chrono::NaiveDate;
 
 /// Code of a missing epoch.
 pub const MISSING: i16 = i16::MIN;
+/// [`Dataset::series_at`] of a point whose series was dropped.
+pub const NO_SERIES: u32 = u32::MAX;
 /// Largest code magnitude.
 const MAX_CODE: f64 = 32_767.0;
 /// Largest decimal scale tried (10⁴ codes per mm = 0.1 µm).
@@ -199,8 +201,12 @@ pub struct Dataset {
     pub points: Vec<Point>,
     /// Every retained point's id, concatenated.
     pub(crate) ids: String,
-    /// Every retained point's series codes, `epochs.len()` per point, in point order.
+    /// Every retained point's series codes, `epochs.len()` per series, in point order.
     pub(crate) codes: Vec<i16>,
+    /// Where each point's series starts in `codes`, counted in series ([`NO_SERIES`] when the
+    /// series was dropped, see [`Dataset::drop_series`]); empty while every point keeps its
+    /// series (point `i`'s series is then the `i`-th).
+    pub(crate) series_at: Vec<u32>,
     /// Every retained point's association with the structures (owner or nearest ring, tie),
     /// worked out by the reader with [`crate::association::SpatialIndex::summarise`].
     pub association: Vec<PointAssociation>,
@@ -247,7 +253,12 @@ impl Dataset {
         }
         let mut values = Vec::with_capacity(n);
         let mut out = Vec::with_capacity(n);
-        for (p, chunk) in self.points.iter_mut().zip(self.codes.chunks_mut(n)) {
+        for i in 0..self.points.len() {
+            let Some(at) = self.series_index(i) else {
+                continue;
+            };
+            let p = &mut self.points[i];
+            let chunk = &mut self.codes[at * n..(at + 1) * n];
             values.clear();
             values.extend(
                 chunk
@@ -265,6 +276,49 @@ impl Dataset {
             p.per_mm = q.per_mm;
             self.max_rounding_mm = self.max_rounding_mm.max(q.rounding_mm);
         }
+    }
+
+    /// Index of point `i`'s series in `codes` (in series), None when it was dropped.
+    #[inline]
+    fn series_index(&self, i: usize) -> Option<usize> {
+        match self.series_at.get(i) {
+            None => Some(i),
+            Some(&NO_SERIES) => None,
+            Some(&at) => Some(at as usize),
+        }
+    }
+
+    /// Drop the series of every point for which `keep` is false (their records, ids and
+    /// associations stay: they are still listed, as rejected, in the points outputs), moving the
+    /// kept series together and giving the freed memory back. Used for points whose coherence
+    /// is below the assessment's minimum: screening rejects them before any series is read, so
+    /// holding their series would only cost memory (2 bytes an epoch a point).
+    pub fn drop_series(&mut self, keep: impl Fn(PointRef) -> bool) {
+        let n = self.epochs.len();
+        let mut series_at = Vec::with_capacity(self.points.len());
+        let mut next = 0usize;
+        for i in 0..self.points.len() {
+            let Some(at) = self.series_index(i) else {
+                series_at.push(NO_SERIES);
+                continue;
+            };
+            if !keep(self.point(i)) {
+                series_at.push(NO_SERIES);
+                continue;
+            }
+            if at != next {
+                self.codes.copy_within(at * n..(at + 1) * n, next * n);
+            }
+            // At most `points.len()` < 2³² series (the store's 32-bit offsets), so this fits.
+            series_at.push(next as u32);
+            next += 1;
+        }
+        if next == self.points.len() {
+            return;
+        }
+        self.codes.truncate(next * n);
+        self.codes.shrink_to_fit();
+        self.series_at = series_at;
     }
 
     /// Number of retained points.
@@ -335,13 +389,15 @@ impl<'a> PointRef<'a> {
             .copied()
             .filter(|h| !h.is_nan())
     }
-    /// The LOS series, mm, positive towards the satellite.
-    pub fn series(&self) -> SeriesRef<'a> {
+    /// The LOS series, mm, positive towards the satellite; None when it was dropped
+    /// ([`Dataset::drop_series`]).
+    pub fn series(&self) -> Option<SeriesRef<'a>> {
         let n = self.ds.epochs.len();
-        SeriesRef::Codes {
-            codes: &self.ds.codes[self.index * n..(self.index + 1) * n],
+        let at = self.ds.series_index(self.index)?;
+        Some(SeriesRef::Codes {
+            codes: &self.ds.codes[at * n..(at + 1) * n],
             per_mm: self.rec().per_mm,
-        }
+        })
     }
 }
 
@@ -581,6 +637,7 @@ mod tests {
             points: a.points,
             ids: a.ids,
             codes: a.codes,
+            series_at: vec![],
             association: a.association,
             incidence_deg: PerPoint::Constant(38.0),
             heading_deg: PerPoint::Constant(-12.0),
@@ -595,7 +652,7 @@ mod tests {
         assert_eq!(ds.point(0).id(), "P1");
         assert_eq!(ds.point(1).id(), "Q22");
         assert_eq!(ds.point(1).line(), 3);
-        assert_eq!(ds.point(1).series().to_vec(), vec![0.0, -2.5]);
+        assert_eq!(ds.point(1).series().unwrap().to_vec(), vec![0.0, -2.5]);
         assert_eq!(ds.point(0).coherence(), Some(0.9));
         assert_eq!(ds.point(0).incidence_deg(), 38.0);
         assert_eq!(ds.point(0).height_m(), None);
@@ -624,6 +681,7 @@ mod tests {
             points,
             ids: "P".into(),
             codes: out,
+            series_at: vec![],
             association: vec![Default::default()],
             incidence_deg: PerPoint::Constant(38.0),
             heading_deg: PerPoint::Constant(-12.0),
@@ -636,7 +694,7 @@ mod tests {
             reference: None,
         };
         ds.subtract_per_epoch(&[0.0, 1.0, 1.0, 0.333]);
-        let v = ds.point(0).series().to_vec();
+        let v = ds.point(0).series().unwrap().to_vec();
         let want = [0.0, -3.5, f32::NAN, 3.917];
         let bound = ds.max_rounding_mm as f32 + 1e-6;
         assert!(ds.max_rounding_mm > 0.0 && ds.max_rounding_mm <= 3.917 / 65_534.0 + 1e-12);
@@ -646,5 +704,64 @@ mod tests {
                 "{v:?}"
             );
         }
+    }
+
+    /// Three points with distinct series; dropping the middle one keeps the others' values and
+    /// gives `None` for it, and a second drop (of the first) still finds the last one's series.
+    #[test]
+    fn dropped_series_are_gone_and_the_others_unchanged() {
+        let meta = |id, coherence| RowMeta {
+            id,
+            line: 2,
+            xy: (0.0, 0.0),
+            association: PointAssociation::default(),
+            coherence: Some(coherence),
+            incidence_deg: None,
+            heading_deg: None,
+            height_m: None,
+        };
+        let mut b = StoreBuilder::default();
+        b.push(meta("A", 0.9), &[1.0, 2.0, 3.0], Some(0), 3.0)
+            .unwrap();
+        b.push(meta("B", 0.2), &[4.0, 5.0, 6.0], Some(0), 6.0)
+            .unwrap();
+        b.push(meta("C", 0.8), &[7.0, f64::NAN, 9.5], Some(1), 9.5)
+            .unwrap();
+        let mut ds = Dataset {
+            name: "d".into(),
+            epochs: (0..3)
+                .map(|i| {
+                    NaiveDate::from_ymd_opt(2024, 1, 1).unwrap() + chrono::Duration::days(12 * i)
+                })
+                .collect(),
+            points: b.points,
+            ids: b.ids,
+            codes: b.codes,
+            series_at: vec![],
+            association: b.association,
+            incidence_deg: PerPoint::Constant(38.0),
+            heading_deg: PerPoint::Constant(-12.0),
+            height_m: vec![],
+            rows_read: 3,
+            rows_out_of_reach: 0,
+            has_coherence: true,
+            ignored_columns: vec![],
+            max_rounding_mm: 0.0,
+            reference: None,
+        };
+        ds.drop_series(|p| p.coherence().is_some_and(|c| c >= 0.5));
+        assert_eq!(ds.codes.len(), 6, "two series of three epochs remain");
+        assert_eq!(ds.point(0).series().unwrap().to_vec(), vec![1.0, 2.0, 3.0]);
+        assert!(ds.point(1).series().is_none());
+        assert_eq!(ds.point(1).id(), "B", "the record stays");
+        let c = ds.point(2).series().unwrap().to_vec();
+        assert_eq!((c[0], c[2]), (7.0, 9.5));
+        assert!(c[1].is_nan());
+        ds.drop_series(|p| p.id() != "A");
+        assert!(ds.point(0).series().is_none() && ds.point(1).series().is_none());
+        assert_eq!(ds.point(2).series().unwrap().get(2), 9.5);
+        assert_eq!(ds.codes.len(), 3);
+        ds.subtract_per_epoch(&[1.0, 1.0, 1.0]);
+        assert!((ds.point(2).series().unwrap().get(2) - 8.5).abs() < 1e-3);
     }
 }
