@@ -538,6 +538,8 @@ pub struct RunContext<'a> {
     pub point_stats: Option<Vec<Vec<PointStats>>>,
     /// The portfolio's `[works]` converted to the analysis CRS once per run (None without works).
     pub works: Option<crate::works::WorksGeometry>,
+    /// The run's distinct record sentences (assumptions), each held once.
+    pub sentences: crate::text::Interner,
 }
 
 /// Period displacement of one point over the window: mean of the 3 valid epochs nearest the window
@@ -777,7 +779,15 @@ pub fn assess_structure<'a>(
     }
     detail.series = series.series;
     let works = works_stage(ctx, s, &criteria_name, &out, &detail, &mut suff);
-    let record = record(s, report_file, screened.n_rejected, suff, out, &works);
+    let record = record(
+        s,
+        report_file,
+        screened.n_rejected,
+        suff,
+        out,
+        &works,
+        &ctx.sentences,
+    );
     detail.works = works.detail;
     Assessment {
         record,
@@ -1300,6 +1310,7 @@ fn record(
     suff: Sufficiency,
     out: Filled,
     works: &WorksOut,
+    sentences: &crate::text::Interner,
 ) -> StructureResult {
     let probability = out
         .damage_category
@@ -1352,7 +1363,11 @@ fn record(
             .map(|stem| format!("{DETAILS_DIR}/{stem}.json")),
         report_file,
         fallbacks: s.raw.fallbacks.clone(),
-        assumptions: suff.assumptions,
+        assumptions: suff
+            .assumptions
+            .into_iter()
+            .map(|a| sentences.intern(a))
+            .collect(),
         change: None,
         predicted_settlement_mm: works.predicted_settlement_mm,
         predicted_category: works.predicted_category,

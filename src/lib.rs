@@ -25,6 +25,7 @@ pub mod results;
 pub mod run;
 pub mod series;
 pub mod synth;
+pub mod text;
 pub mod triggers;
 pub mod verdict;
 pub mod works;

@@ -169,7 +169,7 @@ pub struct StructureResult {
     /// Properties that fell back to defaults.
     pub fallbacks: Vec<String>,
     /// Assumptions made for this structure.
-    pub assumptions: Vec<String>,
+    pub assumptions: Vec<crate::text::Shared>,
     /// Change since the previous period.
     pub change: Option<Change>,
     /// Largest predicted greenfield settlement on the footprint from the `[works]`, all works

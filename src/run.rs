@@ -338,6 +338,7 @@ pub fn run_context<'a>(
         works,
         window_times,
         point_stats,
+        sentences: crate::text::Interner::default(),
     })
 }
 
@@ -719,7 +720,9 @@ pub fn assess_all(
         .with_context(|| format!("cannot create {}", details_dir.display()))?;
     let bar = progress_bar(progress, inputs.structures.len());
     let points = PointVerdicts::with_sizes(datasets.iter().map(ingest::Dataset::len));
-    let records: Vec<StructureResult> = inputs
+    // Collected by index into an exactly sized vector (a fallible collect would gather pieces
+    // and copy them together, holding the records twice at the end).
+    let records: Vec<Result<StructureResult>> = inputs
         .structures
         .par_iter()
         .zip(stems.par_iter())
@@ -756,8 +759,9 @@ pub fn assess_all(
             bar.inc(1);
             Ok(a.record)
         })
-        .collect::<Result<_>>()?;
+        .collect();
     bar.finish_and_clear();
+    let records = records.into_iter().collect::<Result<_>>()?;
     Ok(Assessed { records, points })
 }
 
@@ -803,7 +807,8 @@ pub fn summarise(
             Some(status)
         };
         r.triggers = hits;
-        r.assumptions.extend(unevaluated);
+        r.assumptions
+            .extend(unevaluated.into_iter().map(crate::text::Shared::from));
     }
     let gone = match &opts.previous {
         Some(prev) => compare_previous(prev, &mut records)?,

@@ -300,7 +300,7 @@ pub fn asset_report(
         })
         .collect();
     rejected.sort_by(|a, b| b.count.cmp(&a.count).then_with(|| a.reason.cmp(&b.reason)));
-    let mut assumptions = r.assumptions.clone();
+    let mut assumptions: Vec<String> = r.assumptions.iter().map(|a| a.to_string()).collect();
     assumptions.extend(r.fallbacks.iter().map(|f| format!("default used: {f}")));
     let mut model = AssetReport {
         model_version: MODEL_VERSION,
