@@ -308,6 +308,64 @@ pub struct LinearFit {
 ///
 /// Errors: fewer than 3 epochs (no residual degree of freedom), non-finite input, all times equal.
 pub fn fit_linear(t_yr: &[f64], d_mm: &[f64]) -> Result<LinearFit, FitError> {
+    let l = fit_line_summary(t_yr, d_mm)?;
+    let residuals_mm: Vec<f64> = t_yr
+        .iter()
+        .zip(d_mm.iter())
+        .map(|(t, d)| d - l.intercept_mm - l.velocity_mm_per_yr * t)
+        .collect();
+    let v = l.velocity_mm_per_yr;
+    let se_adj = l.se_velocity_adjusted_mm_per_yr;
+    let t_adj = se_adj.and_then(|se| if se > 0.0 { Some(v / se) } else { None });
+    let p_adj = t_adj.map(|t| super::stats::t_two_sided(t, l.effective_n - 2.0));
+    Ok(LinearFit {
+        n: l.n,
+        intercept_mm: l.intercept_mm,
+        se_intercept_mm: l.se_intercept_mm,
+        velocity_mm_per_yr: v,
+        se_velocity_mm_per_yr: l.se_velocity_mm_per_yr,
+        residual_sd_mm: l.residual_sd_mm,
+        rss_mm2: l.rss_mm2,
+        lag1_autocorrelation: l.lag1_autocorrelation,
+        effective_n: l.effective_n,
+        se_velocity_adjusted_mm_per_yr: se_adj,
+        t_statistic_adjusted: t_adj,
+        p_value_adjusted: p_adj,
+        distinguishable_from_zero: se_adj.is_some_and(|se| v.abs() > 2.0 * se),
+        residuals_mm,
+    })
+}
+
+/// The numbers of [`fit_linear`] without the residual series and the significance test: what a
+/// per-point velocity and period need, computed without allocating (the residuals are formed on
+/// the fly by the same expression, so every number equals [`fit_linear`]'s bit for bit).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LineSummary {
+    /// Number of epochs.
+    pub n: usize,
+    /// Intercept at t = 0 (mm).
+    pub intercept_mm: f64,
+    /// Standard error of the intercept (mm).
+    pub se_intercept_mm: f64,
+    /// Velocity (mm/yr).
+    pub velocity_mm_per_yr: f64,
+    /// White-noise standard error of the velocity (mm/yr).
+    pub se_velocity_mm_per_yr: f64,
+    /// Residual standard deviation `s` (mm).
+    pub residual_sd_mm: f64,
+    /// Residual sum of squares (mm²).
+    pub rss_mm2: f64,
+    /// Lag-1 autocorrelation of the residuals.
+    pub lag1_autocorrelation: f64,
+    /// AR(1) effective sample size.
+    pub effective_n: f64,
+    /// AR(1)-adjusted SE of the velocity (mm/yr); `None` when n_eff ≤ 2 (not estimable).
+    pub se_velocity_adjusted_mm_per_yr: Option<f64>,
+}
+
+/// OLS straight line `d = a + v·t` with SE, AR(1) r1, n_eff and adjusted SE (as [`fit_linear`],
+/// same sources and units), without the residual vector and the p-value.
+pub fn fit_line_summary(t_yr: &[f64], d_mm: &[f64]) -> Result<LineSummary, FitError> {
     check_inputs(t_yr, d_mm, "linear fit", 3)?;
     let n = t_yr.len();
     let nf = n as f64;
@@ -327,21 +385,22 @@ pub fn fit_linear(t_yr: &[f64], d_mm: &[f64]) -> Result<LinearFit, FitError> {
         .sum();
     let v = sxy / sxx;
     let a = dm - v * tm;
-    let residuals_mm: Vec<f64> = t_yr
-        .iter()
-        .zip(d_mm.iter())
-        .map(|(t, d)| d - a - v * t)
-        .collect();
-    let rss: f64 = residuals_mm.iter().map(|r| r * r).sum();
+    let residual = |i: usize| d_mm[i] - a - v * t_yr[i];
+    let rss: f64 = (0..n).map(|i| residual(i) * residual(i)).sum();
     let s = (rss / (nf - 2.0)).sqrt();
     let se_v = s / sxx.sqrt();
     let se_a = s * (1.0 / nf + tm * tm / sxx).sqrt();
-    let r1 = lag1_autocorrelation(&residuals_mm);
+    // lag1_autocorrelation of the residuals (its denominator is the RSS).
+    let r1 = if n < 2 || !(rss > 0.0) {
+        0.0
+    } else {
+        (0..n - 1)
+            .map(|i| residual(i) * residual(i + 1))
+            .sum::<f64>()
+            / rss
+    };
     let n_eff = effective_sample_size(n, r1);
-    let se_adj = adjusted_se(se_v, n, n_eff);
-    let t_adj = se_adj.and_then(|se| if se > 0.0 { Some(v / se) } else { None });
-    let p_adj = t_adj.map(|t| super::stats::t_two_sided(t, n_eff - 2.0));
-    Ok(LinearFit {
+    Ok(LineSummary {
         n,
         intercept_mm: a,
         se_intercept_mm: se_a,
@@ -351,11 +410,7 @@ pub fn fit_linear(t_yr: &[f64], d_mm: &[f64]) -> Result<LinearFit, FitError> {
         rss_mm2: rss,
         lag1_autocorrelation: r1,
         effective_n: n_eff,
-        se_velocity_adjusted_mm_per_yr: se_adj,
-        t_statistic_adjusted: t_adj,
-        p_value_adjusted: p_adj,
-        distinguishable_from_zero: se_adj.is_some_and(|se| v.abs() > 2.0 * se),
-        residuals_mm,
+        se_velocity_adjusted_mm_per_yr: adjusted_se(se_v, n, n_eff),
     })
 }
 
@@ -925,6 +980,46 @@ pub(crate) mod test_series {
 mod tests {
     use super::test_series::*;
     use super::*;
+
+    /// The allocation-free summary gives fit_linear's numbers bit for bit (same expressions in
+    /// the same order), on a trend with noise, a flat series and a short one.
+    #[test]
+    fn line_summary_equals_the_full_fit() {
+        let t: Vec<f64> = (0..150).map(|i| i as f64 * 12.0 / 365.25).collect();
+        let noisy: Vec<f64> = t
+            .iter()
+            .enumerate()
+            .map(|(i, t)| -4.2 * t + ((i * 37 % 11) as f64 - 5.0) * 0.7)
+            .collect();
+        let flat = vec![1.5; 150];
+        for (t, d) in [
+            (&t[..], &noisy[..]),
+            (&t[..], &flat[..]),
+            (&t[..3], &noisy[..3]),
+        ] {
+            let f = fit_linear(t, d).unwrap();
+            let s = fit_line_summary(t, d).unwrap();
+            assert_eq!(
+                s,
+                LineSummary {
+                    n: f.n,
+                    intercept_mm: f.intercept_mm,
+                    se_intercept_mm: f.se_intercept_mm,
+                    velocity_mm_per_yr: f.velocity_mm_per_yr,
+                    se_velocity_mm_per_yr: f.se_velocity_mm_per_yr,
+                    residual_sd_mm: f.residual_sd_mm,
+                    rss_mm2: f.rss_mm2,
+                    lag1_autocorrelation: f.lag1_autocorrelation,
+                    effective_n: f.effective_n,
+                    se_velocity_adjusted_mm_per_yr: f.se_velocity_adjusted_mm_per_yr,
+                }
+            );
+            assert_eq!(
+                f.lag1_autocorrelation,
+                lag1_autocorrelation(&f.residuals_mm)
+            );
+        }
+    }
     use rand::SeedableRng;
     use rand_distr::{Distribution, Normal};
 

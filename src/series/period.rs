@@ -7,7 +7,7 @@
 
 use serde::Serialize;
 
-use super::fit::{FitError, LinearFit, fit_linear};
+use super::fit::{FitError, LineSummary, LinearFit, fit_line_summary, fit_linear};
 
 /// Number of epochs averaged at each end of the window by [`PeriodMethod::LocalMeans`]
 /// (insar-methods.md §5.11 \[Rec\]).
@@ -79,17 +79,21 @@ fn ar1_mean_variance_factor(m: usize, rho: f64) -> f64 {
 }
 
 fn window_values(t_yr: &[f64], d_mm: &[f64], t1: f64, t2: f64) -> (Vec<f64>, Vec<f64>) {
-    t_yr.iter()
-        .zip(d_mm.iter())
-        .filter(|(t, d)| t.is_finite() && d.is_finite() && **t >= t1 && **t <= t2)
-        .map(|(t, d)| (*t, *d))
-        .unzip()
+    let cap = t_yr.len().min(d_mm.len());
+    let (mut t, mut d) = (Vec::with_capacity(cap), Vec::with_capacity(cap));
+    for (&ti, &di) in t_yr.iter().zip(d_mm) {
+        if ti.is_finite() && di.is_finite() && ti >= t1 && ti <= t2 {
+            t.push(ti);
+            d.push(di);
+        }
+    }
+    (t, d)
 }
 
 /// Per-epoch noise level used for σ: residual SD and lag-1 autocorrelation of a straight-line
 /// fit over the window (with non-linear motion this overstates the noise, i.e. is conservative).
-fn noise_level(t: &[f64], d: &[f64]) -> Result<LinearFit, FitError> {
-    fit_linear(t, d)
+fn noise_level(t: &[f64], d: &[f64]) -> Result<LineSummary, FitError> {
+    fit_line_summary(t, d)
 }
 
 /// Displacement over the window [t1, t2] with its σ.
@@ -137,7 +141,7 @@ fn period_in_window(
     t1_yr: f64,
     t2_yr: f64,
     method: PeriodMethod,
-    fit: Option<&LinearFit>,
+    fit: Option<&LineSummary>,
 ) -> Result<PeriodDisplacement, PeriodError> {
     let owned;
     let n = t.len();
@@ -151,7 +155,10 @@ fn period_in_window(
                 });
             }
             let mut idx: Vec<usize> = (0..n).collect();
-            idx.sort_by(|a, b| t[*a].total_cmp(&t[*b]));
+            // Window values come in time order; a stable sort of a sorted series changes nothing.
+            if !t.is_sorted_by(|a, b| a.total_cmp(b).is_le()) {
+                idx.sort_by(|a, b| t[*a].total_cmp(&t[*b]));
+            }
             let mean = |ids: &[usize], v: &[f64]| ids.iter().map(|i| v[*i]).sum::<f64>() / m as f64;
             let (first, last) = (&idx[..m], &idx[n - m..]);
             let noise = match fit {
@@ -176,7 +183,7 @@ fn period_in_window(
             let f = match fit {
                 Some(f) => f,
                 None => {
-                    owned = fit_linear(t, d)?;
+                    owned = fit_line_summary(t, d)?;
                     &owned
                 }
             };
@@ -213,7 +220,7 @@ pub fn period_and_velocity(
     method: PeriodMethod,
 ) -> (
     Result<PeriodDisplacement, PeriodError>,
-    Result<LinearFit, PeriodError>,
+    Result<LineSummary, PeriodError>,
 ) {
     if !(t1_yr.is_finite() && t2_yr.is_finite() && t2_yr > t1_yr) {
         return (Err(PeriodError::BadWindow), Err(PeriodError::BadWindow));
@@ -225,7 +232,7 @@ pub fn period_and_velocity(
             got: t.len(),
         })
     } else {
-        fit_linear(&t, &d).map_err(PeriodError::from)
+        fit_line_summary(&t, &d).map_err(PeriodError::from)
     };
     // A failed fit is recomputed inside for the period's own error (rare).
     let period = period_in_window(&t, &d, t1_yr, t2_yr, method, velocity.as_ref().ok());
@@ -291,7 +298,24 @@ mod tests {
             for method in [PeriodMethod::LocalMeans, PeriodMethod::FittedLinear] {
                 let (p, v) = period_and_velocity(&t, &d, t1, t2, method);
                 assert_eq!(p, period_displacement(&t, &d, t1, t2, method), "{t1} {t2}");
-                assert_eq!(v, window_velocity(&t, &d, t1, t2), "{t1} {t2}");
+                let full = window_velocity(&t, &d, t1, t2);
+                assert_eq!(
+                    v.map(|s| (
+                        s.velocity_mm_per_yr,
+                        s.se_velocity_mm_per_yr,
+                        s.se_velocity_adjusted_mm_per_yr,
+                        s.residual_sd_mm,
+                        s.lag1_autocorrelation
+                    )),
+                    full.map(|f| (
+                        f.velocity_mm_per_yr,
+                        f.se_velocity_mm_per_yr,
+                        f.se_velocity_adjusted_mm_per_yr,
+                        f.residual_sd_mm,
+                        f.lag1_autocorrelation
+                    )),
+                    "{t1} {t2}"
+                );
             }
         }
     }
