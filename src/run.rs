@@ -534,8 +534,9 @@ fn check_geometries(pf: &Portfolio, warnings: &mut Warnings) -> Result<(), Input
 }
 
 /// Link every point with the structures whose footprint, buffer or surroundings ring holds it:
-/// a counting pass, then a filling pass into the exactly sized array (the spatial query runs
-/// twice; it costs far less than the memory a growing list per structure would take).
+/// one spatial pass gathers the (structure, point) links in point order (8 bytes a link: about
+/// 2 million links, 16 MB, on the medium bench city), then a counting sort by structure fills the
+/// exactly sized array, each structure's points staying in point order.
 pub fn associate(p: &Prepared) -> Result<Association> {
     let datasets = &p.inputs.datasets;
     let index = &p.inputs.index;
@@ -552,31 +553,37 @@ pub fn associate(p: &Prepared) -> Result<Association> {
             u32::MAX
         );
     }
-    let mut counts = vec![0usize; n_structures + 1];
+    if n_structures >= u32::MAX as usize {
+        anyhow::bail!(
+            "{n_structures} structures: at most {} are supported in one run; split the portfolio with --shard",
+            u32::MAX - 1
+        );
+    }
+    let mut links: Vec<(u32, u32)> = Vec::new();
     let mut ties = 0usize;
     let mut surroundings_only = 0usize;
-    for_each_link_block(datasets, index, |_, l| {
+    for_each_link_block(datasets, index, |g, l| {
         if l.tie {
             ties += 1;
         } else if !l.links.is_empty() && l.links.iter().all(|k| k.role == Role::Surroundings) {
             surroundings_only += 1;
         }
-        for k in &l.links {
-            counts[k.structure + 1] += 1;
-        }
+        // Both fit in 32 bits (checked above).
+        links.extend(l.links.iter().map(|k| (k.structure as u32, g as u32)));
     });
-    for i in 1..counts.len() {
-        counts[i] += counts[i - 1];
+    let mut starts = vec![0usize; n_structures + 1];
+    for &(s, _) in &links {
+        starts[s as usize + 1] += 1;
     }
-    let starts = counts;
+    for i in 1..starts.len() {
+        starts[i] += starts[i - 1];
+    }
     let mut fill = starts.clone();
-    let mut points = vec![0u32; *starts.last().unwrap_or(&0)];
-    for_each_link_block(datasets, index, |g, l| {
-        for k in &l.links {
-            points[fill[k.structure]] = g as u32;
-            fill[k.structure] += 1;
-        }
-    });
+    let mut points = vec![0u32; links.len()];
+    for (s, g) in links {
+        points[fill[s as usize]] = g;
+        fill[s as usize] += 1;
+    }
     Ok(Association {
         starts,
         points,
