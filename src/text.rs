@@ -102,6 +102,49 @@ impl Interner {
     }
 }
 
+/// Serialise dates as ISO 8601 `YYYY-MM-DD` strings, the text chrono writes, formatted by hand:
+/// chrono formats through `Display` (about a microsecond a date) and a structure's detail file
+/// holds hundreds of dates. Years outside 0–9999 go through chrono (signed, wider years).
+pub fn iso_dates<S: serde::Serializer>(
+    dates: &[chrono::NaiveDate],
+    s: S,
+) -> Result<S::Ok, S::Error> {
+    use serde::ser::SerializeSeq;
+    let mut seq = s.serialize_seq(Some(dates.len()))?;
+    for d in dates {
+        seq.serialize_element(&IsoDate(*d))?;
+    }
+    seq.end()
+}
+
+/// One date serialised as by [`iso_dates`].
+struct IsoDate(chrono::NaiveDate);
+
+impl serde::Serialize for IsoDate {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        use chrono::Datelike;
+        let d = self.0;
+        let y = d.year();
+        if !(0..=9999).contains(&y) {
+            return s.collect_str(&d);
+        }
+        let digits = |v: u32, out: &mut [u8]| {
+            let mut v = v;
+            for b in out.iter_mut().rev() {
+                *b = b'0' + (v % 10) as u8;
+                v /= 10;
+            }
+        };
+        let mut b = *b"0000-00-00";
+        digits(y as u32, &mut b[0..4]);
+        digits(d.month(), &mut b[5..7]);
+        digits(d.day(), &mut b[8..10]);
+        // Only ASCII digits and hyphens were written.
+        let text = std::str::from_utf8(&b).map_err(serde::ser::Error::custom)?;
+        s.serialize_str(text)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -123,5 +166,28 @@ mod tests {
         );
         let back: Vec<Shared> = serde_json::from_str(&json).unwrap();
         assert_eq!(back[0], a);
+    }
+
+    /// The hand-formatted dates are chrono's own text, across padding cases and wide years.
+    #[test]
+    fn iso_dates_are_chronos_text() {
+        #[derive(serde::Serialize)]
+        struct Fast(#[serde(serialize_with = "iso_dates")] Vec<chrono::NaiveDate>);
+        let dates: Vec<chrono::NaiveDate> = [
+            (2023, 1, 5),
+            (1999, 12, 31),
+            (7, 3, 9),
+            (0, 1, 1),
+            (9999, 12, 31),
+            (10000, 1, 1),
+            (-44, 3, 15),
+        ]
+        .iter()
+        .map(|&(y, m, d)| chrono::NaiveDate::from_ymd_opt(y, m, d).unwrap())
+        .collect();
+        assert_eq!(
+            serde_json::to_string(&Fast(dates.clone())).unwrap(),
+            serde_json::to_string(&dates).unwrap()
+        );
     }
 }

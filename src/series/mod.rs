@@ -211,6 +211,7 @@ pub struct GeometrySeries {
     /// Points in the aggregate.
     pub points_aggregated: usize,
     /// Window epochs.
+    #[serde(serialize_with = "crate::text::iso_dates")]
     pub dates: Vec<NaiveDate>,
     /// Per-epoch robust aggregate of LOS (mm, + towards the satellite).
     pub aggregate: AggregateSeries,
@@ -283,6 +284,7 @@ pub struct VerticalSeries {
     /// Label for outputs.
     pub label: String,
     /// Epochs.
+    #[serde(serialize_with = "crate::text::iso_dates")]
     pub dates: Vec<NaiveDate>,
     /// Reference epoch (values are zero there).
     pub reference_date: NaiveDate,

@@ -47,6 +47,7 @@ pub enum ResampleError {
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct CommonSeries {
     /// Common epochs (first geometry's dates inside the overlap).
+    #[serde(serialize_with = "crate::text::iso_dates")]
     pub dates: Vec<NaiveDate>,
     /// Common reference epoch t0: the first common epoch where both values exist.
     pub reference_date: NaiveDate,
