@@ -29,9 +29,11 @@ pub fn to_pdf(art: &str, width: f64, height: f64) -> Option<Vec<u8>> {
     }
     let mut lines = art.lines().map(str::trim).filter(|l| !l.is_empty());
     check_root(lines.next()?, width, height)?;
-    let mut content = String::with_capacity(art.len());
-    let _ = write!(content, "1 0 0 -1 0 {} cm 4 M\n", num(height));
-    let mut state = PaintState::default();
+    let mut w = Writer::default();
+    w.out.reserve(art.len());
+    w.out.push_str("1 0 0 -1 0 ");
+    push_num(&mut w.out, height);
+    w.out.push_str(" cm 4 M\n");
     let mut closed = false;
     for line in lines {
         if closed {
@@ -41,9 +43,10 @@ pub fn to_pdf(art: &str, width: f64, height: f64) -> Option<Vec<u8>> {
             closed = true;
             continue;
         }
-        write_element(&mut content, &mut state, line)?;
+        w.element(parse_element(line)?)?;
     }
-    closed.then(|| document(&content, width, height))
+    w.flush_disc();
+    closed.then(|| document(&w.out, width, height))
 }
 
 /// The root element: `<svg width="W" height="H" [viewBox="0 0 W H"] [xmlns="…"]>`.
@@ -71,21 +74,33 @@ fn check_root(line: &str, width: f64, height: f64) -> Option<()> {
     Some(())
 }
 
-/// The colours and line width last set in the content stream (set again only on change).
-#[derive(Default)]
-struct PaintState {
-    fill: Option<[u8; 3]>,
-    stroke: Option<[u8; 3]>,
-    width: Option<String>,
+/// The geometry of one element, numbers as written in the SVG where they are copied.
+enum Geometry<'a> {
+    /// `<line>`: x1, y1, x2, y2.
+    Line([&'a str; 4]),
+    /// `<polyline>` (open) or `<polygon>` (closed): `x,y` pairs.
+    Points(&'a str, bool),
+    /// `<rect>`: x, y, width, height.
+    Rect([&'a str; 4]),
+    /// `<circle>`: cx, cy, r.
+    Circle([f64; 3]),
 }
 
-/// Appends one shape element: paint changes, path construction, painting operator.
-fn write_element(out: &mut String, state: &mut PaintState, line: &str) -> Option<()> {
+/// One shape element: geometry and paint.
+struct Element<'a> {
+    geometry: Geometry<'a>,
+    fill: Option<[u8; 3]>,
+    stroke: Option<[u8; 3]>,
+    width: &'a str,
+}
+
+/// One self-closing shape element as plotters writes it; `None` for anything else.
+fn parse_element(line: &str) -> Option<Element<'_>> {
     let body = line.strip_prefix('<')?.strip_suffix("/>")?;
     let (tag, attrs) = body.split_once(' ')?;
     let attrs = super::compact::attributes(attrs)?;
     let get = |key: &str| attrs.iter().find(|(k, _)| *k == key).map(|(_, v)| *v);
-    let geometry: &[&str] = match tag {
+    let keys: &[&str] = match tag {
         "line" => &["x1", "y1", "x2", "y2"],
         "polyline" | "polygon" => &["points"],
         "rect" => &["x", "y", "width", "height"],
@@ -95,7 +110,7 @@ fn write_element(out: &mut String, state: &mut PaintState, line: &str) -> Option
     let paint_keys = ["fill", "stroke", "stroke-width", "opacity"];
     if attrs
         .iter()
-        .any(|(k, _)| !geometry.contains(k) && !paint_keys.contains(k))
+        .any(|(k, _)| !keys.contains(k) && !paint_keys.contains(k))
         || get("opacity").is_some_and(|o| o != "1")
     {
         return None;
@@ -108,69 +123,185 @@ fn write_element(out: &mut String, state: &mut PaintState, line: &str) -> Option
     };
     let stroke = paint(get("stroke").unwrap_or("none"))?;
     let width = get("stroke-width").unwrap_or("1");
-    if !is_number(width) {
+    if !is_number(width) || width.starts_with('-') {
         return None;
     }
     let number = |key: &str| get(key).filter(|v| is_number(v));
-    let start = out.len();
-    match tag {
-        "line" => {
-            let _ = write!(
-                out,
-                "{} {} m {} {} l ",
-                number("x1")?,
-                number("y1")?,
-                number("x2")?,
-                number("y2")?
-            );
-        }
+    let four = |k: &[&str]| -> Option<[&str; 4]> {
+        Some([number(k[0])?, number(k[1])?, number(k[2])?, number(k[3])?])
+    };
+    let geometry = match tag {
+        "line" => Geometry::Line(four(keys)?),
         "rect" => {
-            let (w, h) = (number("width")?, number("height")?);
-            if w.starts_with('-') || h.starts_with('-') {
+            let r = four(keys)?;
+            if r[2].starts_with('-') || r[3].starts_with('-') {
                 return None;
             }
-            let _ = write!(out, "{} {} {w} {h} re ", number("x")?, number("y")?);
+            Geometry::Rect(r)
         }
         "circle" => {
             let value = |key: &str| number(key)?.parse::<f64>().ok();
-            let (cx, cy, r) = (value("cx")?, value("cy")?, value("r")?);
-            if r <= 0.0 {
+            let c = [value("cx")?, value("cy")?, value("r")?];
+            if c[2] <= 0.0 {
                 return None;
             }
-            write_circle(out, cx, cy, r);
+            Geometry::Circle(c)
         }
-        _ => write_points(out, get("points")?, tag == "polygon")?,
-    }
-    let op = match (fill.is_some(), stroke.is_some()) {
-        (true, true) => "B",
-        (true, false) => "f",
-        (false, true) => "S",
-        // Nothing painted: drop the path again.
-        (false, false) => {
-            out.truncate(start);
-            return Some(());
-        }
+        _ => Geometry::Points(get("points")?, tag == "polygon"),
     };
-    // Paint operators go before the path: PDF forbids them between construction and painting.
-    let mut set = String::new();
-    if let Some(c) = fill.filter(|c| state.fill != Some(*c)) {
-        let _ = write!(set, "{} rg ", colour(c));
-        state.fill = Some(c);
-    }
-    if let Some(c) = stroke {
-        if state.stroke != Some(c) {
-            let _ = write!(set, "{} RG ", colour(c));
-            state.stroke = Some(c);
+    Some(Element {
+        geometry,
+        fill,
+        stroke,
+        width,
+    })
+}
+
+/// The content stream and the graphics state last set in it (set again only on change).
+#[derive(Default)]
+struct Writer {
+    out: String,
+    fill: Option<[u8; 3]>,
+    stroke: Option<[u8; 3]>,
+    width: String,
+    round_caps: bool,
+    /// A filled circle not yet written: its outline may follow as the next element.
+    disc: Option<([f64; 3], [u8; 3])>,
+}
+
+impl Writer {
+    /// Appends one element. Circles are written as dots: a zero-length line with round caps
+    /// is a disc of the line width's diameter (PDF 1.7 §8.5.3.2), far shorter than four
+    /// curves. A filled circle followed by its own outline (how plotters draws a marker with
+    /// a border) becomes a disc in the outline colour, `r + w/2`, under a disc in the fill
+    /// colour, `r − w/2`: the same picture, since both are opaque.
+    fn element(&mut self, e: Element<'_>) -> Option<()> {
+        let (circle, fill, stroke) = match e.geometry {
+            Geometry::Circle(c) => (c, e.fill, e.stroke),
+            _ => {
+                self.flush_disc();
+                return self.shape(&e);
+            }
+        };
+        let w: f64 = e.width.parse().ok()?;
+        match (fill, stroke) {
+            (Some(f), None) => {
+                self.flush_disc();
+                self.disc = Some((circle, f));
+            }
+            (fill, Some(s)) if w < 2.0 * circle[2] => {
+                let inner = match (fill, self.disc.take()) {
+                    (Some(f), _) => Some(f),
+                    (None, Some((c, f))) if c == circle => Some(f),
+                    (None, other) => {
+                        self.disc = other;
+                        self.flush_disc();
+                        None
+                    }
+                };
+                match inner {
+                    Some(f) => {
+                        let [cx, cy, r] = circle;
+                        self.dot(cx, cy, 2.0 * r + w, s);
+                        self.dot(cx, cy, 2.0 * r - w, f);
+                    }
+                    None => {
+                        self.shape(&e)?;
+                    }
+                }
+            }
+            _ => {
+                self.flush_disc();
+                self.shape(&e)?;
+            }
         }
-        if state.width.as_deref() != Some(width) {
-            let _ = write!(set, "{width} w ");
-            state.width = Some(width.to_string());
+        Some(())
+    }
+
+    /// Writes the pending filled circle, if any.
+    fn flush_disc(&mut self) {
+        if let Some(([cx, cy, r], f)) = self.disc.take() {
+            self.dot(cx, cy, 2.0 * r, f);
         }
     }
-    out.insert_str(start, &set);
-    out.push_str(op);
-    out.push('\n');
-    Some(())
+
+    /// A disc of `diameter` centred on (`cx`, `cy`).
+    fn dot(&mut self, cx: f64, cy: f64, diameter: f64, colour: [u8; 3]) {
+        self.set_stroke(colour);
+        let mut width = String::new();
+        push_num(&mut width, diameter);
+        self.set_width(&width);
+        if !self.round_caps {
+            self.out.push_str("1 J ");
+            self.round_caps = true;
+        }
+        for op in ["m ", "l S\n"] {
+            push_num(&mut self.out, cx);
+            self.out.push(' ');
+            push_num(&mut self.out, cy);
+            self.out.push(' ');
+            self.out.push_str(op);
+        }
+    }
+
+    /// Any element as a path: paint state, path construction, painting operator.
+    fn shape(&mut self, e: &Element<'_>) -> Option<()> {
+        let op = match (e.fill.is_some(), e.stroke.is_some()) {
+            (true, true) => "B",
+            (true, false) => "f",
+            (false, true) => "S",
+            // Nothing painted.
+            (false, false) => return Some(()),
+        };
+        // Paint operators go before the path: PDF forbids them between construction and
+        // painting.
+        if let Some(c) = e.fill.filter(|c| self.fill != Some(*c)) {
+            self.out.push_str(&colour(c));
+            self.out.push_str(" rg ");
+            self.fill = Some(c);
+        }
+        if let Some(c) = e.stroke {
+            self.set_stroke(c);
+            self.set_width(e.width);
+            if self.round_caps {
+                self.out.push_str("0 J ");
+                self.round_caps = false;
+            }
+        }
+        match e.geometry {
+            Geometry::Line([x1, y1, x2, y2]) => {
+                for part in [x1, " ", y1, " m ", x2, " ", y2, " l "] {
+                    self.out.push_str(part);
+                }
+            }
+            Geometry::Rect([x, y, w, h]) => {
+                for part in [x, " ", y, " ", w, " ", h, " re "] {
+                    self.out.push_str(part);
+                }
+            }
+            Geometry::Circle([cx, cy, r]) => write_circle(&mut self.out, cx, cy, r),
+            Geometry::Points(points, close) => write_points(&mut self.out, points, close)?,
+        }
+        self.out.push_str(op);
+        self.out.push('\n');
+        Some(())
+    }
+
+    fn set_stroke(&mut self, c: [u8; 3]) {
+        if self.stroke != Some(c) {
+            self.out.push_str(&colour(c));
+            self.out.push_str(" RG ");
+            self.stroke = Some(c);
+        }
+    }
+
+    fn set_width(&mut self, width: &str) {
+        if self.width != width {
+            self.out.push_str(width);
+            self.out.push_str(" w ");
+            self.width = width.to_string();
+        }
+    }
 }
 
 /// `x,y` pairs separated by spaces as one open (polyline) or closed (polygon) subpath.
@@ -366,14 +497,37 @@ mod tests {
     }
 
     #[test]
-    fn circle_is_four_curves_and_fill_with_stroke_is_one_operator() {
-        let svg = art(
-            "<circle cx=\"5\" cy=\"5\" r=\"2\" opacity=\"1\" fill=\"#1F5696\" stroke=\"#212121\" stroke-width=\"1\"/>\n",
-        );
+    fn markers_become_dots_and_a_lone_outline_four_curves() {
+        let svg = art(concat!(
+            // A marker with a border, as plotters draws it: fill, then outline.
+            "<circle cx=\"5\" cy=\"5\" r=\"2\" opacity=\"1\" fill=\"#1F5696\" stroke=\"none\" stroke-width=\"1\"/>\n",
+            "<circle cx=\"5\" cy=\"5\" r=\"2\" opacity=\"1\" fill=\"none\" stroke=\"#212121\" stroke-width=\"1\"/>\n",
+            // A plain dot.
+            "<circle cx=\"9\" cy=\"5\" r=\"2\" opacity=\"1\" fill=\"#1F5696\" stroke=\"none\" stroke-width=\"1\"/>\n",
+            // An outline alone (its inside stays see-through).
+            "<circle cx=\"15\" cy=\"5\" r=\"2\" opacity=\"1\" fill=\"none\" stroke=\"#212121\" stroke-width=\"1\"/>\n",
+            "<line opacity=\"1\" stroke=\"#212121\" stroke-width=\"1\" x1=\"0\" y1=\"0\" x2=\"1\" y2=\"0\"/>\n",
+        ));
         let c = content(&to_pdf(&svg, 20.0, 10.0).unwrap());
-        assert!(c.contains("7 5 m 7 6.1046 6.1046 7 5 7 c"), "{c}");
-        assert_eq!(c.matches(" c").count(), 4, "{c}");
-        assert!(c.ends_with("h B"), "{c}");
+        let lines: Vec<&str> = c.lines().collect();
+        assert_eq!(
+            lines[1..4],
+            [
+                // Border colour, r + w/2 = 2.5; fill colour, r - w/2 = 1.5.
+                "0.1294 0.1294 0.1294 RG 5 w 1 J 5 5 m 5 5 l S",
+                "0.1216 0.3373 0.5882 RG 3 w 5 5 m 5 5 l S",
+                "4 w 9 5 m 9 5 l S",
+            ]
+        );
+        assert!(
+            lines[4]
+                .starts_with("0.1294 0.1294 0.1294 RG 1 w 0 J 17 5 m 17 6.1046 16.1046 7 15 7 c"),
+            "{c}"
+        );
+        assert_eq!(lines[4].matches(" c ").count(), 4, "{c}");
+        assert!(lines[4].ends_with("h S"), "{c}");
+        // Caps back to butt for other strokes; unchanged state is not set again.
+        assert_eq!(lines[5], "0 0 m 1 0 l S");
     }
 
     #[test]
