@@ -312,8 +312,10 @@ fn write_points(out: &mut String, points: &str, close: bool) -> Option<()> {
         if !is_number(x) || !is_number(y) {
             return None;
         }
-        let op = if n == 0 { 'm' } else { 'l' };
-        let _ = write!(out, "{x} {y} {op} ");
+        let op = if n == 0 { " m " } else { " l " };
+        for part in [x, " ", y, op] {
+            out.push_str(part);
+        }
         n += 1;
     }
     if n == 0 {
