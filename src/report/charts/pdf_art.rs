@@ -445,16 +445,16 @@ fn document(content: &str, width: f64, height: f64) -> Vec<u8> {
     let mut offsets = Vec::with_capacity(objects.len());
     for (i, object) in objects.iter().enumerate() {
         offsets.push(pdf.len());
-        let _ = write!(pdf, "{} 0 obj\n{object}\nendobj\n", i + 1);
+        let _ = writeln!(pdf, "{} 0 obj\n{object}\nendobj", i + 1);
     }
     let xref = pdf.len();
-    let _ = write!(pdf, "xref\n0 {}\n0000000000 65535 f \n", objects.len() + 1);
+    let _ = writeln!(pdf, "xref\n0 {}\n0000000000 65535 f ", objects.len() + 1);
     for offset in offsets {
-        let _ = write!(pdf, "{offset:010} 00000 n \n");
+        let _ = writeln!(pdf, "{offset:010} 00000 n ");
     }
-    let _ = write!(
+    let _ = writeln!(
         pdf,
-        "trailer\n<</Size {}/Root 1 0 R>>\nstartxref\n{xref}\n%%EOF\n",
+        "trailer\n<</Size {}/Root 1 0 R>>\nstartxref\n{xref}\n%%EOF",
         objects.len() + 1
     );
     pdf.into_bytes()
