@@ -103,6 +103,21 @@ impl ChartFile {
         }
     }
 
+    /// The chart's drawing without its text as a one-page PDF (see
+    /// [`super::charts::pdf_art`]).
+    pub fn art_pdf_path(self) -> &'static str {
+        match self {
+            Self::Map => "/chart-map-art.pdf",
+            Self::TimeSeries => "/chart-ts-art.pdf",
+            Self::ProfileA => "/chart-profile-a-art.pdf",
+            Self::ProfileB => "/chart-profile-b-art.pdf",
+            Self::Interaction => "/chart-interaction-art.pdf",
+            Self::PortfolioMap => "/chart-portfolio-map-art.pdf",
+            Self::WorksPlan => "/chart-works-plan-art.pdf",
+            Self::WorksComparison => "/chart-works-comparison-art.pdf",
+        }
+    }
+
     /// The chart's text labels as JSON (see [`super::charts::labels`]).
     pub fn labels_path(self) -> &'static str {
         match self {
@@ -315,18 +330,35 @@ impl<'a> ReportWorld<'a> {
     }
 }
 
-/// Serves a chart three ways: the full SVG at its virtual path (for templates that place it
-/// as an image), and its drawing without text (alike shapes merged, see
-/// [`super::charts::compact`]) plus the labels as JSON (for `chart-image` in
-/// `plinth-style.typ`, which sets the text with typst; much faster, see
+/// Serves a chart up to four ways: the full SVG at its virtual path (for templates that place
+/// it as an image), its drawing without text as a one-page PDF when the drawing has the plain
+/// form plotters writes (see [`super::charts::pdf_art`]; the labels JSON then names it under
+/// `art`), the drawing as SVG (`…-art.svg`; alike shapes merged, see
+/// [`super::charts::compact`], unless the PDF is served), and the labels as JSON (for
+/// `chart-image` in `plinth-style.typ`, which sets the text with typst; much faster, see
 /// [`super::charts::labels`]). An SVG that cannot be split is served as its own drawing with
 /// no labels, so `chart-image` still shows it whole.
 fn insert_chart(files: &mut HashMap<FileId, Bytes>, file: ChartFile, svg: String) {
-    let (art, labels) = match super::charts::labels::split(&svg).and_then(|(art, labels)| {
+    let split = super::charts::labels::split(&svg).and_then(|(art, mut labels)| {
+        let pdf = super::charts::pdf_art::to_pdf(&art, labels.width, labels.height);
+        if pdf.is_some() {
+            labels.art = Some(file.art_pdf_path().to_string());
+        }
         let labels = serde_json::to_string(&labels).ok()?;
-        Some((super::charts::compact::merge_runs(&art), labels))
-    }) {
-        Some(split) => split,
+        let art = match pdf {
+            // Only templates of their own still read the SVG drawing: served as split.
+            Some(_) => art,
+            None => super::charts::compact::merge_runs(&art),
+        };
+        Some((art, labels, pdf))
+    });
+    let (art, labels) = match split {
+        Some((art, labels, pdf)) => {
+            if let Some(pdf) = pdf {
+                files.insert(virtual_id(file.art_pdf_path()), Bytes::new(pdf));
+            }
+            (art, labels)
+        }
         None => (svg.clone(), UNSPLIT_LABELS.to_string()),
     };
     files.insert(virtual_id(file.art_path()), Bytes::from_string(art));

@@ -218,7 +218,7 @@ fn is_number(s: &str) -> bool {
 }
 
 /// `key="value"` pairs (values without entities, as plotters writes numbers and colours).
-fn attributes(s: &str) -> Option<Vec<(&str, &str)>> {
+pub(super) fn attributes(s: &str) -> Option<Vec<(&str, &str)>> {
     let mut out = Vec::with_capacity(8);
     let mut rest = s.trim();
     while !rest.is_empty() {

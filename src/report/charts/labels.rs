@@ -59,6 +59,11 @@ pub struct ChartLabels {
     pub height: f64,
     /// The labels in drawing order.
     pub labels: Vec<ChartLabel>,
+    /// Virtual path of the drawing to place under the labels when it is not the `…-art.svg`
+    /// beside them (the world sets it when it serves the drawing as a PDF, see
+    /// [`super::pdf_art`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub art: Option<String>,
 }
 
 /// Splits `svg` into the drawing without the recognised `<text>` elements and their labels.
@@ -98,6 +103,7 @@ pub fn split(svg: &str) -> Option<(String, ChartLabels)> {
             width,
             height,
             labels,
+            art: None,
         },
     ))
 }

@@ -394,10 +394,12 @@ fn draw_colour_bar<DB: DrawingBackend>(
         .map_err(&err)?;
     let steps = 64;
     let dv = 2.0 * limit / f64::from(steps);
+    // Each step reaches half a step into the next one, which is drawn over it: abutting
+    // edges would let the page background show through as hairlines in some viewers.
     bar.draw_series((0..steps).map(|i| {
         let v0 = -limit + dv * f64::from(i);
         Rectangle::new(
-            [(0.0, v0), (1.0, v0 + dv)],
+            [(0.0, v0), (1.0, (v0 + 1.5 * dv).min(limit))],
             velocity_color(v0 + dv / 2.0, limit).filled(),
         )
     }))

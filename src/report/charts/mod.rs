@@ -12,6 +12,7 @@
 //! - [`palette`]: the colour scales and their documentation.
 //! - [`labels`]: the text of a drawn chart lifted out of the SVG for typst to set.
 //! - [`compact`]: runs of alike shapes of a drawn chart merged into one path each.
+//! - [`pdf_art`]: the drawing of a chart (without its text) as a one-page PDF.
 //!
 //! Does not own: any computation of the plotted quantities (only geometry for drawing, such as
 //! the category boundary curves, which are inverted published relations), or file output.
@@ -26,6 +27,7 @@ pub mod interaction;
 pub mod labels;
 pub mod map;
 pub mod palette;
+pub mod pdf_art;
 pub mod portfolio_map;
 pub mod profile;
 pub mod timeseries;
