@@ -1252,6 +1252,13 @@ fn write_outputs(a: &Analysis, opts: &RunOptions, d: &Path) -> Result<()> {
     output::write_with(d, "points.geojson", |w| {
         output::points_geojson_to(a.point_rows(&to_wgs), w)
     })?;
+    output::gpkg::write_results(
+        d,
+        &a.results.structures,
+        &fps,
+        a.point_rows(&to_wgs),
+        a.results.portfolio.analysis_date.as_deref(),
+    )?;
     let m = manifest(a, opts)?;
     output::write_file(
         d,

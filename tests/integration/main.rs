@@ -3,6 +3,7 @@
 mod demo;
 mod fixture;
 mod foundation;
+mod geopackage;
 mod limits;
 mod metrics;
 mod output_safety;
