@@ -64,6 +64,7 @@ struct RawStructures {
     path: String,
     id_property: Option<String>,
     crs: Option<String>,
+    layer: Option<String>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -224,8 +225,15 @@ pub struct StructuresSpec {
     pub path: PathBuf,
     /// Feature property holding the structure id.
     pub id_property: String,
-    /// CRS of the footprint coordinates.
+    /// CRS of the footprint coordinates (for a GeoPackage or Shapefile that declares its CRS,
+    /// the file's CRS is used and must agree with this when it was given).
     pub crs: String,
+    /// True when `crs` was written in the portfolio file (not the default).
+    #[serde(skip)]
+    pub crs_given: bool,
+    /// Layer of a GeoPackage footprints file (None: its only feature layer).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub layer: Option<String>,
 }
 
 /// Largest accepted `min_points`: a plausibility bound against typing errors (a minimum above it
@@ -572,6 +580,8 @@ impl Portfolio {
                 "id".into()
             }),
             crs: structures_crs,
+            crs_given: raw.structures.crs.is_some(),
+            layer: raw.structures.layer.clone(),
         };
         if !structures.path.is_file() {
             return Err(InputError::new(

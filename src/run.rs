@@ -1163,6 +1163,13 @@ pub fn manifest(a: &Analysis, opts: &RunOptions) -> Result<serde_json::Value> {
         "path": pf.structures.path.display().to_string(),
         "sha256": output::sha256_file(&pf.structures.path)?,
     }));
+    for side in crate::ingest::gis::sidecars(&pf.structures.path) {
+        inputs.push(serde_json::json!({
+            "role": "structures",
+            "path": side.display().to_string(),
+            "sha256": output::sha256_file(&side)?,
+        }));
+    }
     for d in &pf.datasets {
         inputs.push(serde_json::json!({
             "role": "dataset",

@@ -3,11 +3,12 @@
 //! Owns the order of reading (footprints first, so the points reader can keep only points within
 //! reach of a structure), the choice of the analysis CRS (the portfolio's, or the UTM zone of the
 //! structures' centroid), reprojection of footprints, and the per-structure local frame.
-//! Submodules: [`footprints`] (GeoJSON), [`points`] (CSV reader), [`store`] (the compact
+//! Submodules: [`footprints`] (GeoJSON), [`gis`] (GeoPackage and Shapefile footprints), [`points`] (CSV reader), [`store`] (the compact
 //! in-memory point store), [`decimal`] (fast exact number parsing).
 
 pub mod decimal;
 pub mod footprints;
+pub mod gis;
 pub mod points;
 pub mod reference;
 pub mod store;
@@ -89,13 +90,19 @@ pub fn load_structures(
         height_m: pf.assessment.default_height_m,
         structure_type: pf.assessment.default_structure.clone(),
     };
-    let raws = footprints::read_footprints(
-        sfile,
-        &pf.structures.id_property,
-        scrs.is_geographic(),
-        &defaults,
-        warnings,
-    )?;
+    let (raws, scrs) = match gis::format_of(sfile) {
+        gis::Format::GeoJson => (
+            footprints::read_footprints(
+                sfile,
+                &pf.structures.id_property,
+                scrs.is_geographic(),
+                &defaults,
+                warnings,
+            )?,
+            scrs,
+        ),
+        other => gis::read_footprints(&pf.structures, other, &defaults, warnings)?,
+    };
     let wgs = Crs::wgs84();
     let s_to_wgs = Transformer::new(&scrs, &wgs);
     let mut wgs_fps = Vec::with_capacity(raws.len());

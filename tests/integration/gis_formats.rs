@@ -1,5 +1,6 @@
-//! results.gpkg checked by an outside reader: GDAL's `ogrinfo` (Debian's gdal-bin, installed by
-//! .ci/run). Skipped with a printed notice where `ogrinfo` is not installed.
+//! GIS formats against GDAL (Debian's gdal-bin, installed by .ci/run): results.gpkg checked by an
+//! outside reader (`ogrinfo`), and footprints made by an outside writer (`ogr2ogr`) giving the
+//! GeoJSON run's results. Skipped with a printed notice where GDAL is not installed.
 
 use std::path::Path;
 use std::process::Command;
@@ -195,4 +196,83 @@ fn results_gpkg_opens_in_gdal_with_both_layers_crs_counts_and_values() {
         (xy[0] - lon).abs() < 1e-9 && (xy[1] - lat).abs() < 1e-9,
         "{pt}"
     );
+}
+
+/// `ogr2ogr ARGS` in `dir`; false (with a notice) when `ogr2ogr` is not installed.
+fn ogr2ogr(dir: &Path, args: &[&str]) -> bool {
+    match Command::new("ogr2ogr").current_dir(dir).args(args).output() {
+        Ok(o) => {
+            assert!(
+                o.status.success(),
+                "ogr2ogr {args:?} failed: {}",
+                String::from_utf8_lossy(&o.stderr)
+            );
+            true
+        }
+        Err(_) => {
+            eprintln!(
+                "notice: `ogr2ogr` is not installed (apt-get install gdal-bin); check skipped"
+            );
+            false
+        }
+    }
+}
+
+#[test]
+fn footprints_from_geopackage_and_shapefile_give_the_geojson_results() {
+    let fx = Fx::new();
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-portfolio");
+    let job = fx.path("job");
+    std::fs::create_dir_all(&job).unwrap();
+    for e in std::fs::read_dir(&demo).unwrap() {
+        let e = e.unwrap();
+        std::fs::copy(e.path(), job.join(e.file_name())).unwrap();
+    }
+    if !ogr2ogr(
+        &job,
+        &[
+            "-f",
+            "GPKG",
+            "fp.gpkg",
+            "structures.geojson",
+            "-nln",
+            "buildings",
+        ],
+    ) {
+        return;
+    }
+    ogr2ogr(
+        &job,
+        &["-f", "ESRI Shapefile", "fp.shp", "structures.geojson"],
+    );
+    let toml = std::fs::read_to_string(job.join("portfolio.toml")).unwrap();
+    let reference = fx.path("out-geojson");
+    assess(&job.join("portfolio.toml"), &reference, &["--no-reports"]);
+    for file in ["fp.gpkg", "fp.shp"] {
+        let p = job.join(format!("portfolio-{file}.toml"));
+        let t = toml.replace(
+            "path = \"structures.geojson\"",
+            &format!("path = \"{file}\""),
+        );
+        assert_ne!(t, toml, "the demo portfolio names structures.geojson");
+        std::fs::write(&p, t).unwrap();
+        let out = fx.path(&format!("out-{file}"));
+        let r = assess(&p, &out, &["--no-reports"]);
+        assert_eq!(r["structures"].as_array().unwrap().len(), 39, "{file}");
+        for f in ["results.json", "results.csv", "points.csv"] {
+            let (a, b) = (
+                std::fs::read_to_string(reference.join(f)).unwrap(),
+                std::fs::read_to_string(out.join(f)).unwrap(),
+            );
+            let first = a
+                .lines()
+                .zip(b.lines())
+                .position(|(x, y)| x != y)
+                .map(|i| format!("line {}", i + 1));
+            assert!(
+                a == b,
+                "{f} from {file} differs from the GeoJSON run at {first:?}"
+            );
+        }
+    }
 }
