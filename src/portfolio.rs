@@ -82,6 +82,7 @@ struct RawDataset {
     wavelength_mm: Option<f64>,
     delimiter: Option<String>,
     columns: Option<RawColumns>,
+    layer: Option<String>,
 }
 
 #[derive(Debug, Deserialize, Default)]
@@ -216,6 +217,13 @@ pub struct DatasetSpec {
     pub delimiter: Option<u8>,
     /// Column map.
     pub columns: Columns,
+    /// True when `crs` was written in the portfolio file (a GeoPackage or Shapefile that declares
+    /// another CRS is then refused).
+    #[serde(skip)]
+    pub crs_given: bool,
+    /// Layer of a GeoPackage points file (None: its only feature layer).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub layer: Option<String>,
 }
 
 /// The `[structures]` section.
@@ -727,6 +735,8 @@ impl Portfolio {
                 wavelength_mm,
                 delimiter,
                 columns,
+                crs_given: d.crs.is_some(),
+                layer: d.layer.clone(),
             };
             if !spec.path.is_file() {
                 return Err(InputError::new(

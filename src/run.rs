@@ -1177,6 +1177,14 @@ pub fn manifest(a: &Analysis, opts: &RunOptions) -> Result<serde_json::Value> {
             "path": d.path.display().to_string(),
             "sha256": output::sha256_file(&d.path)?,
         }));
+        for side in crate::ingest::gis::sidecars(&d.path) {
+            inputs.push(serde_json::json!({
+                "role": "dataset",
+                "name": d.name,
+                "path": side.display().to_string(),
+                "sha256": output::sha256_file(&side)?,
+            }));
+        }
     }
     Ok(serde_json::json!({
         "tool": "plinth",

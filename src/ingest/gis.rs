@@ -69,27 +69,50 @@ pub fn read_footprints(
 
 /// The CRS to use: the file's declared EPSG code (refused when the portfolio gave another), or
 /// the portfolio's.
-fn settle_crs(
-    spec: &StructuresSpec,
+/// The CRS the portfolio states for a file: its `crs` key, whether it was written, and the key's
+/// name for messages (`[structures] crs`, `datasets[0].crs`).
+pub struct Stated<'a> {
+    /// The CRS (the default when not written).
+    pub crs: &'a str,
+    /// True when written in the portfolio file.
+    pub given: bool,
+    /// The key, for messages.
+    pub key: &'a str,
+}
+
+impl<'a> Stated<'a> {
+    /// The `[structures]` CRS.
+    pub fn structures(spec: &'a StructuresSpec) -> Stated<'a> {
+        Stated {
+            crs: &spec.crs,
+            given: spec.crs_given,
+            key: "[structures] crs",
+        }
+    }
+}
+
+pub(crate) fn settle_crs(
+    spec: &Stated<'_>,
     file: &Path,
     loc: &str,
     declared: Option<u32>,
     warnings: &mut Warnings,
 ) -> Result<Crs, InputError> {
-    let portfolio = Crs::parse(&spec.crs).map_err(|e| {
+    let key = spec.key;
+    let portfolio = Crs::parse(spec.crs).map_err(|e| {
         InputError::new(
             file,
             loc,
             e.to_string(),
-            "set [structures] crs to an EPSG code",
+            format!("set {key} to an EPSG code"),
         )
     })?;
     let Some(code) = declared else {
-        if !spec.crs_given {
+        if !spec.given {
             warnings.push(
                 "default_applied",
                 format!(
-                    "{}: {loc}: the file does not declare its CRS; assuming {} ([structures] crs)",
+                    "{}: {loc}: the file does not declare its CRS; assuming {} ({key})",
                     file.display(),
                     spec.crs
                 ),
@@ -97,16 +120,16 @@ fn settle_crs(
         }
         return Ok(portfolio);
     };
-    if spec.crs_given && portfolio.code() != code {
+    if spec.given && portfolio.code() != code {
         return Err(InputError::new(
             file,
             loc,
             format!(
-                "the file declares EPSG:{code} but the portfolio's [structures] crs is {}",
+                "the file declares EPSG:{code} but the portfolio's {key} is {}",
                 spec.crs
             ),
             format!(
-                "remove [structures] crs (the file's EPSG:{code} is used), or set it to \"EPSG:{code}\", \
+                "remove {key} (the file's EPSG:{code} is used), or set it to \"EPSG:{code}\", \
                  or reproject the file"
             ),
         ));
@@ -320,7 +343,13 @@ impl Wkb<'_> {
                 }
                 json!({"type": "MultiPolygon", "coordinates": polys})
             }
-            1 => json!({"type": "Point", "coordinates": []}),
+            1 => {
+                let (x, y) = (self.f64(le)?, self.f64(le)?);
+                for _ in 2..dims {
+                    self.f64(le)?;
+                }
+                json!({"type": "Point", "coordinates": [x, y]})
+            }
             2 => json!({"type": "LineString", "coordinates": []}),
             4 => json!({"type": "MultiPoint", "coordinates": []}),
             5 => json!({"type": "MultiLineString", "coordinates": []}),
@@ -331,24 +360,29 @@ impl Wkb<'_> {
     }
 }
 
-mod gpkg {
+pub(crate) mod gpkg {
     use rusqlite::types::ValueRef;
     use rusqlite::{Connection, OpenFlags};
 
     use super::*;
 
-    fn err(file: &Path, loc: &str, what: impl Into<String>, fix: impl Into<String>) -> InputError {
+    fn err(
+        file: &Path,
+        loc: impl Into<String>,
+        what: impl Into<String>,
+        fix: impl Into<String>,
+    ) -> InputError {
         InputError::new(file, loc, what, fix)
     }
 
     /// One feature layer: table, geometry column, srs_id.
-    struct Layer {
-        table: String,
-        column: String,
-        srs_id: i64,
+    pub(crate) struct Layer {
+        pub(crate) table: String,
+        pub(crate) column: String,
+        pub(crate) srs_id: i64,
     }
 
-    fn sql_err(file: &Path, e: rusqlite::Error) -> InputError {
+    pub(crate) fn sql_err(file: &Path, e: rusqlite::Error) -> InputError {
         let not_db = matches!(
             &e,
             rusqlite::Error::SqliteFailure(f, _) if f.code == rusqlite::ErrorCode::NotADatabase
@@ -370,7 +404,7 @@ mod gpkg {
         }
     }
 
-    fn layers(conn: &Connection, file: &Path) -> Result<Vec<Layer>, InputError> {
+    pub(crate) fn layers(conn: &Connection, file: &Path) -> Result<Vec<Layer>, InputError> {
         let mut stmt = conn
             .prepare(
                 "SELECT c.table_name, g.column_name, g.srs_id FROM gpkg_contents c \
@@ -401,7 +435,14 @@ mod gpkg {
         rows.collect::<Result<_, _>>().map_err(|e| sql_err(file, e))
     }
 
-    fn choose(layers: Vec<Layer>, wanted: Option<&str>, file: &Path) -> Result<Layer, InputError> {
+    /// The layer named by the portfolio key `key` (`structures.layer`, `datasets[0].layer`), or
+    /// the only one.
+    pub(crate) fn choose(
+        layers: Vec<Layer>,
+        wanted: Option<&str>,
+        key: &str,
+        file: &Path,
+    ) -> Result<Layer, InputError> {
         let names = layers
             .iter()
             .map(|l| format!("`{}`", l.table))
@@ -413,7 +454,7 @@ mod gpkg {
                 layers.into_iter().find(|l| l.table == w).ok_or_else(|| {
                     err(
                         file,
-                        "key structures.layer",
+                        format!("key {key}"),
                         format!(
                             "no feature layer `{w}`; the file has {}",
                             if n == 0 {
@@ -422,7 +463,7 @@ mod gpkg {
                                 names.clone()
                             }
                         ),
-                        "set [structures] layer to one of the names listed",
+                        format!("set {key} to one of the names listed"),
                     )
                 })
             }
@@ -440,13 +481,13 @@ mod gpkg {
                     "the GeoPackage has {} feature layers: {names}",
                     layers.len()
                 ),
-                "choose one with [structures] layer = \"NAME\"",
+                format!("choose one with {key} = \"NAME\""),
             )),
         }
     }
 
     /// The EPSG code of a GeoPackage srs_id (None for the undefined systems 0 and -1).
-    fn declared_epsg(conn: &Connection, srs_id: i64) -> Option<u32> {
+    pub(crate) fn declared_epsg(conn: &Connection, srs_id: i64) -> Option<u32> {
         let (org, code, def): (String, i64, String) = conn
             .query_row(
                 "SELECT organization, organization_coordsys_id, definition \
@@ -465,7 +506,7 @@ mod gpkg {
     }
 
     /// The GeoJSON geometry of a GeoPackage geometry blob (None when NULL or empty).
-    fn blob_geometry(b: &[u8]) -> Result<Option<(Value, bool)>, String> {
+    pub(crate) fn blob_geometry(b: &[u8]) -> Result<Option<(Value, bool)>, String> {
         if b.len() < 8 || &b[0..2] != b"GP" {
             return Err("the geometry is not a GeoPackage geometry blob".into());
         }
@@ -505,10 +546,15 @@ mod gpkg {
         let file = spec.path.as_path();
         let conn = Connection::open_with_flags(file, OpenFlags::SQLITE_OPEN_READ_ONLY)
             .map_err(|e| sql_err(file, e))?;
-        let layer = choose(layers(&conn, file)?, spec.layer.as_deref(), file)?;
+        let layer = choose(
+            layers(&conn, file)?,
+            spec.layer.as_deref(),
+            "structures.layer",
+            file,
+        )?;
         let lloc = format!("layer `{}`", layer.table);
         let crs = settle_crs(
-            spec,
+            &Stated::structures(spec),
             file,
             &lloc,
             declared_epsg(&conn, layer.srs_id),
@@ -561,7 +607,7 @@ mod gpkg {
                             Err(e) => {
                                 return Err(err(
                                     file,
-                                    &format!("{lloc}, feature {fid}"),
+                                    format!("{lloc}, feature {fid}"),
                                     e,
                                     "repair the geometry in a GIS or export the layer again",
                                 ));
@@ -592,13 +638,18 @@ mod gpkg {
     }
 }
 
-mod shp {
+pub(crate) mod shp {
     use shapefile::dbase::FieldValue;
     use shapefile::{PolygonRing, Shape};
 
     use super::*;
 
-    fn err(file: &Path, loc: &str, what: impl Into<String>, fix: impl Into<String>) -> InputError {
+    fn err(
+        file: &Path,
+        loc: impl Into<String>,
+        what: impl Into<String>,
+        fix: impl Into<String>,
+    ) -> InputError {
         InputError::new(file, loc, what, fix)
     }
 
@@ -660,20 +711,21 @@ mod shp {
 
     /// The EPSG code the `.prj` beside the `.shp` names; an error when it is missing (unless the
     /// portfolio states the CRS) or names no CRS Plinth can identify.
-    fn prj_epsg(
-        spec: &StructuresSpec,
+    pub(crate) fn prj_epsg(
+        spec: &Stated<'_>,
         file: &Path,
         warnings: &mut Warnings,
     ) -> Result<Option<u32>, InputError> {
         let prj = file.with_extension("prj");
         let text = match std::fs::read_to_string(&prj) {
             Ok(t) => t,
-            Err(_) if spec.crs_given => {
+            Err(_) if spec.given => {
                 warnings.push(
                     "default_applied",
                     format!(
-                        "{}: no .prj beside the Shapefile; using [structures] crs = {}",
+                        "{}: no .prj beside the Shapefile; using {} = {}",
                         file.display(),
+                        spec.key,
                         spec.crs
                     ),
                 );
@@ -686,19 +738,23 @@ mod shp {
                     format!(
                         "cannot read the Shapefile's .prj ({e}): the CRS of the footprints is unknown"
                     ),
-                    "copy the .prj that came with the .shp beside it, or state the CRS with [structures] crs = \"EPSG:<code>\"",
+                    format!(
+                        "copy the .prj that came with the .shp beside it, or state the CRS with {} = \"EPSG:<code>\"",
+                        spec.key
+                    ),
                 ));
             }
         };
         match wkt_epsg(&text) {
             Some(c) => Ok(Some(c)),
-            None if spec.crs_given => {
+            None if spec.given => {
                 warnings.push(
                     "default_applied",
                     format!(
-                        "{}: the CRS `{}` is not one Plinth can identify; using [structures] crs = {}",
+                        "{}: the CRS `{}` is not one Plinth can identify; using {} = {}",
                         prj.display(),
                         first_quoted(&text).unwrap_or("?"),
+                        spec.key,
                         spec.crs
                     ),
                 );
@@ -711,14 +767,17 @@ mod shp {
                     "the CRS `{}` is not one Plinth can identify (no EPSG code or known name)",
                     first_quoted(&text).unwrap_or(text.trim())
                 ),
-                "state it with [structures] crs = \"EPSG:<code>\" (it is then used as given)",
+                format!(
+                    "state it with {} = \"EPSG:<code>\" (it is then used as given)",
+                    spec.key
+                ),
             )),
         }
     }
 
     /// Check the `.shp` header's length against the file: a cut file is named before any
     /// record is read.
-    fn check_length(file: &Path, header_words: i32) -> Result<(), InputError> {
+    pub(crate) fn check_length(file: &Path, header_words: i32) -> Result<(), InputError> {
         let actual = std::fs::metadata(file).map(|m| m.len()).unwrap_or(0);
         let declared = u64::try_from(header_words).unwrap_or(0) * 2;
         if actual < declared {
@@ -756,8 +815,9 @@ mod shp {
         };
         let mut reader = shapefile::Reader::from_path(file).map_err(open_err)?;
         check_length(file, reader.header().file_length)?;
-        let declared = prj_epsg(spec, file, warnings)?;
-        let crs = settle_crs(spec, file, "", declared, warnings)?;
+        let stated = Stated::structures(spec);
+        let declared = prj_epsg(&stated, file, warnings)?;
+        let crs = settle_crs(&stated, file, "", declared, warnings)?;
         let mut check = FeatureCheck::new(
             file,
             &spec.id_property,

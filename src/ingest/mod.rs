@@ -9,6 +9,7 @@
 pub mod decimal;
 pub mod footprints;
 pub mod gis;
+pub mod gis_points;
 pub mod points;
 pub mod reference;
 pub mod store;
@@ -195,7 +196,13 @@ pub fn read_datasets(
         .map(|r| reference::ReferenceArea::project(r, analysis, &pf.file))
         .transpose()?;
     for (i, spec) in pf.datasets.iter().enumerate() {
-        let dcrs = crs_or_input_error(&spec.crs, &pf.file, &format!("datasets[{i}].crs"))?;
+        let layer = gis_points::is_gis(&spec.path)
+            .then(|| gis_points::open(spec, i, warnings))
+            .transpose()?;
+        let dcrs = match &layer {
+            Some(l) => l.crs.clone(),
+            None => crs_or_input_error(&spec.crs, &pf.file, &format!("datasets[{i}].crs"))?,
+        };
         let to_a = Transformer::new(&dcrs, analysis);
         // The reference area's points are kept as well (no link to any structure), however
         // far they lie from the structures.
@@ -205,7 +212,10 @@ pub fn read_datasets(
                     .map(|_| crate::association::PointAssociation::default())
             })
         };
-        let mut ds = points::read_points(spec, &to_a, dcrs.is_geographic(), &reach, warnings)?;
+        let mut ds = match layer {
+            Some(l) => gis_points::read(l, spec, &to_a, &reach, warnings)?,
+            None => points::read_points(spec, &to_a, dcrs.is_geographic(), &reach, warnings)?,
+        };
         if let Some(a) = &area {
             ds.reference = Some(reference::rereference(
                 &mut ds,

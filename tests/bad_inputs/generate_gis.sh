@@ -55,7 +55,7 @@ expect gis-gpkg-wrong-layer 2 "structures.gpkg" "no feature layer \`footprints\`
 
 new_case gis-gpkg-two-layers gpkg
 ogr2ogr -update -f GPKG gis-gpkg-two-layers/structures.gpkg base/structures.geojson -nln copy
-expect gis-gpkg-two-layers 2 "structures.gpkg" "2 feature layers" "\`copy\`, \`structures\`" "[structures] layer"
+expect gis-gpkg-two-layers 2 "structures.gpkg" "2 feature layers" "\`copy\`, \`structures\`" "structures.layer"
 
 new_case gis-gpkg-not-sqlite gpkg
 printf 'id,name\nH-1,House\n' > gis-gpkg-not-sqlite/structures.gpkg
@@ -85,5 +85,42 @@ rm gis-gpkg-crs-conflict/structures.gpkg
 ogr2ogr -f GPKG gis-gpkg-crs-conflict/structures.gpkg base/structures.geojson -nln structures -t_srs EPSG:32650
 sed -i 's|path = "structures.gpkg"|path = "structures.gpkg"\ncrs = "EPSG:4326"|' gis-gpkg-crs-conflict/portfolio.toml
 expect gis-gpkg-crs-conflict 2 "structures.gpkg" "declares EPSG:32650" "crs is EPSG:4326"
+
+# Points layers (the base's points.csv converted; x/y from lon/lat).
+points_case() { # name -> folder with the base structures and points.gpkg made from $2 (a CSV)
+  local name=$1 csv=$2 fmt=${3:-gpkg}
+  rm -rf "$name" && mkdir "$name"
+  cp base/structures.geojson "$name/"
+  case $fmt in
+    gpkg) ogr2ogr -f GPKG "$name/points.gpkg" "$csv" -nln points -oo AUTODETECT_TYPE=YES \
+            -oo X_POSSIBLE_NAMES=lon -oo Y_POSSIBLE_NAMES=lat -oo KEEP_GEOM_COLUMNS=NO -a_srs EPSG:4326 ;;
+    shp) ogr2ogr -f "ESRI Shapefile" "$name/points.shp" "$csv" -oo AUTODETECT_TYPE=YES \
+            -oo X_POSSIBLE_NAMES=lon -oo Y_POSSIBLE_NAMES=lat -oo KEEP_GEOM_COLUMNS=NO -a_srs EPSG:4326 ;;
+  esac
+  sed "s|path = \"points.csv\"|path = \"points.$fmt\"|" base/portfolio.toml > "$name/portfolio.toml"
+}
+
+points_case gis-points-gpkg-valid base/points.csv
+expect gis-points-gpkg-valid 0 "check passed" "points read from asc: 11" "points kept on structures: 8"
+
+python3 - <<'PY'
+rows = open("base/points.csv").read().split("\n")
+cells = rows[3].split(",")
+cells[6] = "abc"
+rows[3] = ",".join(cells)
+open("text-value.csv", "w").write("\n".join(rows))
+PY
+points_case gis-points-gpkg-text-value text-value.csv
+rm text-value.csv
+expect gis-points-gpkg-text-value 2 "points.gpkg" "layer \`points\`, feature 3, attribute" "\`abc\` is not a number"
+
+points_case gis-points-gpkg-polygon-layer base/points.csv
+rm gis-points-gpkg-polygon-layer/points.gpkg
+ogr2ogr -f GPKG gis-points-gpkg-polygon-layer/points.gpkg base/structures.geojson -nln points
+expect gis-points-gpkg-polygon-layer 2 "points.gpkg" "layer \`points\`, feature 1" "\`Polygon\` is not a point"
+
+points_case gis-points-shp-missing-dbf base/points.csv shp
+rm gis-points-shp-missing-dbf/points.dbf
+expect gis-points-shp-missing-dbf 2 "points.dbf" "is missing"
 
 echo "wrote the gis-* cases"

@@ -276,3 +276,91 @@ fn footprints_from_geopackage_and_shapefile_give_the_geojson_results() {
         }
     }
 }
+
+/// The demo's points CSV with the date headers as Shapefile-friendly `DYYYYMMDD` field names.
+fn d_prefixed(csv: &str) -> String {
+    let (head, body) = csv.split_once('\n').unwrap();
+    let head: Vec<String> = head
+        .split(',')
+        .map(|h| {
+            if chrono::NaiveDate::parse_from_str(h, "%Y-%m-%d").is_ok() {
+                format!("D{}", h.replace('-', ""))
+            } else {
+                h.to_string()
+            }
+        })
+        .collect();
+    format!("{}\n{body}", head.join(","))
+}
+
+#[test]
+fn points_from_geopackage_and_shapefile_layers_give_the_csv_results() {
+    let fx = Fx::new();
+    let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-portfolio");
+    let job = fx.path("job");
+    std::fs::create_dir_all(&job).unwrap();
+    for e in std::fs::read_dir(&demo).unwrap() {
+        let e = e.unwrap();
+        std::fs::copy(e.path(), job.join(e.file_name())).unwrap();
+    }
+    let open = [
+        "-oo",
+        "AUTODETECT_TYPE=YES",
+        "-oo",
+        "X_POSSIBLE_NAMES=lon",
+        "-oo",
+        "Y_POSSIBLE_NAMES=lat",
+        "-oo",
+        "KEEP_GEOM_COLUMNS=NO",
+        "-a_srs",
+        "EPSG:4326",
+    ];
+    let toml = std::fs::read_to_string(job.join("portfolio.toml")).unwrap();
+    let mut gpkg_toml = toml.clone();
+    let mut shp_toml = toml.clone();
+    for ds in ["asc", "desc"] {
+        let csv = format!("points-{ds}.csv");
+        let (gpkg, shp) = (format!("pts-{ds}.gpkg"), format!("pts-{ds}.shp"));
+        let mut args = vec!["-f", "GPKG", &gpkg, &csv, "-nln", "points"];
+        args.extend(open);
+        if !ogr2ogr(&job, &args) {
+            return;
+        }
+        let d_csv = format!("d-{ds}.csv");
+        let text = std::fs::read_to_string(job.join(&csv)).unwrap();
+        std::fs::write(job.join(&d_csv), d_prefixed(&text)).unwrap();
+        let mut args = vec!["-f", "ESRI Shapefile", &shp, &d_csv];
+        args.extend(open);
+        ogr2ogr(&job, &args);
+        let from = format!("path = \"{csv}\"\n");
+        assert!(toml.contains(&from), "the demo portfolio names {csv}");
+        gpkg_toml = gpkg_toml.replace(&from, &format!("path = \"{gpkg}\"\n"));
+        shp_toml = shp_toml.replace(
+            &from,
+            &format!("path = \"{shp}\"\ncolumns = {{ date_format = \"D%Y%m%d\" }}\n"),
+        );
+    }
+    let reference = fx.path("out-csv");
+    assess(&job.join("portfolio.toml"), &reference, &["--no-reports"]);
+    for (name, text) in [("gpkg", gpkg_toml), ("shp", shp_toml)] {
+        let p = job.join(format!("portfolio-{name}.toml"));
+        std::fs::write(&p, text).unwrap();
+        let out = fx.path(&format!("out-{name}"));
+        assess(&p, &out, &["--no-reports"]);
+        for f in ["results.json", "results.csv", "points.csv"] {
+            let (a, b) = (
+                std::fs::read_to_string(reference.join(f)).unwrap(),
+                std::fs::read_to_string(out.join(f)).unwrap(),
+            );
+            let first = a
+                .lines()
+                .zip(b.lines())
+                .position(|(x, y)| x != y)
+                .map(|i| format!("line {}", i + 1));
+            assert!(
+                a == b,
+                "{f} from the {name} points differs from the CSV run at {first:?}"
+            );
+        }
+    }
+}
