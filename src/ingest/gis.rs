@@ -1,7 +1,8 @@
-//! Footprints from GIS files: GeoPackage (`.gpkg`) and Shapefile (`.shp` + `.dbf` + `.prj`).
+//! Footprints from GIS files: GeoPackage (`.gpkg`), Shapefile (`.shp` + `.dbf` + `.prj`) and
+//! FlatGeobuf (`.fgb`).
 //!
 //! Owns choosing the reader by extension, choosing the GeoPackage layer, the CRS the file
-//! declares (GeoPackage `gpkg_spatial_ref_sys`, Shapefile `.prj`) and its agreement with the
+//! declares (GeoPackage `gpkg_spatial_ref_sys`, Shapefile `.prj`, FlatGeobuf header) and its agreement with the
 //! portfolio's `[structures] crs`, and turning each feature into the GeoJSON `Feature` value that
 //! [`FeatureCheck`] validates, so the property mapping, validation and messages are the GeoJSON
 //! reader's. Z and M values are dropped (x and y are used) with one `coordinates_3d` warning.
@@ -25,6 +26,8 @@ pub enum Format {
     GeoPackage,
     /// `.shp` with its `.dbf` and `.prj`.
     Shapefile,
+    /// `.fgb`: FlatGeobuf.
+    FlatGeobuf,
 }
 
 /// The format of a footprints file, from its extension (case-insensitive).
@@ -35,6 +38,7 @@ pub fn format_of(path: &Path) -> Format {
     match ext.as_deref() {
         Some("gpkg") => Format::GeoPackage,
         Some("shp") => Format::Shapefile,
+        Some("fgb") => Format::FlatGeobuf,
         _ => Format::GeoJson,
     }
 }
@@ -63,6 +67,7 @@ pub fn read_footprints(
     match format {
         Format::GeoPackage => gpkg::read(spec, defaults, warnings),
         Format::Shapefile => shp::read(spec, defaults, warnings),
+        Format::FlatGeobuf => fgb::read(spec, defaults, warnings),
         Format::GeoJson => unreachable!("GeoJSON is read by ingest::footprints"),
     }
 }
@@ -867,6 +872,182 @@ pub(crate) mod shp {
         let out = check.finish();
         if zm_seen {
             warn_zm(file, "the layer", warnings);
+        }
+        Ok((out, crs))
+    }
+}
+
+pub(crate) mod fgb {
+    use flatgeobuf::geozero::{ColumnValue, FeatureProperties, PropertyProcessor};
+    use flatgeobuf::{FallibleStreamingIterator, FgbReader, GeometryType};
+
+    use super::*;
+
+    fn err(
+        file: &Path,
+        loc: impl Into<String>,
+        what: impl Into<String>,
+        fix: impl Into<String>,
+    ) -> InputError {
+        InputError::new(file, loc, what, fix)
+    }
+
+    fn damaged(file: &Path, loc: &str, e: impl std::fmt::Display) -> InputError {
+        err(
+            file,
+            loc,
+            format!("cannot read the FlatGeobuf file: {e}"),
+            "check the file opens in a GIS; export it again if it is damaged or cut short",
+        )
+    }
+
+    /// Typed attribute values into a JSON map.
+    struct Props(serde_json::Map<String, Value>);
+
+    impl PropertyProcessor for Props {
+        fn property(
+            &mut self,
+            _: usize,
+            name: &str,
+            v: &ColumnValue,
+        ) -> flatgeobuf::geozero::error::Result<bool> {
+            let j = match v {
+                ColumnValue::Byte(x) => json!(x),
+                ColumnValue::UByte(x) => json!(x),
+                ColumnValue::Bool(x) => json!(x),
+                ColumnValue::Short(x) => json!(x),
+                ColumnValue::UShort(x) => json!(x),
+                ColumnValue::Int(x) => json!(x),
+                ColumnValue::UInt(x) => json!(x),
+                ColumnValue::Long(x) => json!(x),
+                ColumnValue::ULong(x) => json!(x),
+                ColumnValue::Float(x) => number_json(f64::from(*x)),
+                ColumnValue::Double(x) => number_json(*x),
+                ColumnValue::String(x) | ColumnValue::Json(x) | ColumnValue::DateTime(x) => {
+                    json!(x)
+                }
+                ColumnValue::Binary(_) => Value::Null,
+            };
+            self.0.insert(name.to_string(), j);
+            Ok(false)
+        }
+    }
+
+    /// Rings of a polygon part: `xy` cut at `ends` (one ring when absent).
+    fn rings(g: &flatgeobuf::Geometry<'_>) -> Value {
+        let xy: Vec<f64> = g.xy().map(|v| v.iter().collect()).unwrap_or_default();
+        let n = xy.len() / 2;
+        let ends: Vec<usize> = match g.ends() {
+            Some(e) if !e.is_empty() => e.iter().map(|x| x as usize).collect(),
+            _ => vec![n],
+        };
+        let mut start = 0;
+        let mut out = Vec::with_capacity(ends.len());
+        for end in ends {
+            let end = end.min(n);
+            out.push(ring_json((start..end).map(|i| (xy[2 * i], xy[2 * i + 1]))));
+            start = end;
+        }
+        Value::Array(out)
+    }
+
+    fn geometry(g: &flatgeobuf::Geometry<'_>, layer_type: GeometryType) -> Value {
+        let t = if layer_type == GeometryType::Unknown {
+            g.type_()
+        } else {
+            layer_type
+        };
+        match t {
+            GeometryType::Polygon => json!({"type": "Polygon", "coordinates": rings(g)}),
+            GeometryType::MultiPolygon => {
+                let parts: Vec<Value> = g
+                    .parts()
+                    .map(|p| p.iter().map(|q| rings(&q)).collect())
+                    .unwrap_or_else(|| vec![rings(g)]);
+                json!({"type": "MultiPolygon", "coordinates": parts})
+            }
+            other => json!({"type": format!("{other:?}"), "coordinates": []}),
+        }
+    }
+
+    pub(super) fn read(
+        spec: &StructuresSpec,
+        defaults: &FootprintDefaults,
+        warnings: &mut Warnings,
+    ) -> Result<(Vec<RawStructure>, Crs), InputError> {
+        let file = spec.path.as_path();
+        let f = std::fs::File::open(file).map_err(|e| damaged(file, "", e))?;
+        let mut buf = std::io::BufReader::new(f);
+        let reader = FgbReader::open(&mut buf).map_err(|e| damaged(file, "", e))?;
+        let header = reader.header();
+        let layer_type = header.geometry_type();
+        let zm = header.has_z() || header.has_m();
+        let declared = header.crs().and_then(|c| {
+            let org = c.org().unwrap_or("EPSG");
+            (org.eq_ignore_ascii_case("EPSG") && c.code() > 0)
+                .then(|| u32::try_from(c.code()).ok())
+                .flatten()
+                .or_else(|| c.wkt().and_then(wkt_epsg))
+        });
+        let name = header.name().unwrap_or("").to_string();
+        let lloc = if name.is_empty() {
+            String::new()
+        } else {
+            format!("layer `{name}`")
+        };
+        let crs = settle_crs(&Stated::structures(spec), file, &lloc, declared, warnings)?;
+        let mut iter = reader
+            .select_all_seq()
+            .map_err(|e| damaged(file, &lloc, e))?;
+        let mut check = FeatureCheck::new(
+            file,
+            &spec.id_property,
+            crs.is_geographic(),
+            defaults,
+            warnings,
+        );
+        if !name.is_empty() {
+            check = check.in_layer(&name);
+        }
+        let mut i = 0usize;
+        loop {
+            let loc = format!(
+                "{}feature {i}",
+                if name.is_empty() {
+                    String::new()
+                } else {
+                    format!("{lloc}, ")
+                }
+            );
+            let Some(feature) = iter.next().map_err(|e| damaged(file, &loc, e))? else {
+                break;
+            };
+            let mut props = Props(serde_json::Map::new());
+            feature
+                .process_properties(&mut props)
+                .map_err(|e| damaged(file, &loc, e))?;
+            let geom = feature
+                .geometry()
+                .map_or(Value::Null, |g| geometry(&g, layer_type));
+            let value = json!({"type": "Feature", "properties": props.0, "geometry": geom});
+            check.feature(i, &value)?;
+            i += 1;
+        }
+        if i == 0 {
+            return Err(err(
+                file,
+                &lloc,
+                "the FlatGeobuf file has no features",
+                "a portfolio needs at least one structure",
+            ));
+        }
+        let out = check.finish();
+        if zm {
+            warn_zm(
+                file,
+                if lloc.is_empty() { "the layer" } else { &lloc },
+                warnings,
+            );
         }
         Ok((out, crs))
     }

@@ -90,7 +90,13 @@ pub fn open(spec: &DatasetSpec, i: usize, warnings: &mut Warnings) -> Result<Lay
                 label,
             })
         }
-        _ => {
+        Format::FlatGeobuf | Format::GeoJson => Err(InputError::new(
+            file,
+            "",
+            "points are read from CSV, GeoPackage or Shapefile, not from this format",
+            "convert the points, e.g. `ogr2ogr -f GPKG points.gpkg points.fgb`",
+        )),
+        Format::Shapefile => {
             let reader = shapefile::Reader::from_path(file).map_err(|e| match e {
                 shapefile::Error::MissingDbf => InputError::new(
                     &file.with_extension("dbf"),

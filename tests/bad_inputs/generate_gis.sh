@@ -14,6 +14,7 @@ new_case() { # name format(gpkg|shp) exit stderr_fragments... -> folder with the
   case $fmt in
     gpkg) ogr2ogr -f GPKG "$name/structures.gpkg" base/structures.geojson -nln structures ;;
     shp) ogr2ogr -f "ESRI Shapefile" "$name/structures.shp" base/structures.geojson ;;
+    fgb) ogr2ogr -f FlatGeobuf "$name/structures.fgb" base/structures.geojson -nln structures ;;
   esac
   sed "s|path = \"structures.geojson\"|path = \"structures.$fmt\"|" base/portfolio.toml > "$name/portfolio.toml"
 }
@@ -85,6 +86,13 @@ rm gis-gpkg-crs-conflict/structures.gpkg
 ogr2ogr -f GPKG gis-gpkg-crs-conflict/structures.gpkg base/structures.geojson -nln structures -t_srs EPSG:32650
 sed -i 's|path = "structures.gpkg"|path = "structures.gpkg"\ncrs = "EPSG:4326"|' gis-gpkg-crs-conflict/portfolio.toml
 expect gis-gpkg-crs-conflict 2 "structures.gpkg" "declares EPSG:32650" "crs is EPSG:4326"
+
+new_case gis-fgb-valid fgb
+expect gis-fgb-valid 0 "check passed" "points kept on structures: 8"
+
+new_case gis-fgb-truncated fgb
+head -c 300 gis-fgb-truncated/structures.fgb > t && mv t gis-fgb-truncated/structures.fgb
+expect gis-fgb-truncated 2 "structures.fgb" "cannot read the FlatGeobuf file"
 
 # Points layers (the base's points.csv converted; x/y from lon/lat).
 points_case() { # name -> folder with the base structures and points.gpkg made from $2 (a CSV)

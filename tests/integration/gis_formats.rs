@@ -219,7 +219,7 @@ fn ogr2ogr(dir: &Path, args: &[&str]) -> bool {
 }
 
 #[test]
-fn footprints_from_geopackage_and_shapefile_give_the_geojson_results() {
+fn footprints_from_geopackage_shapefile_and_flatgeobuf_give_the_geojson_results() {
     let fx = Fx::new();
     let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-portfolio");
     let job = fx.path("job");
@@ -245,10 +245,23 @@ fn footprints_from_geopackage_and_shapefile_give_the_geojson_results() {
         &job,
         &["-f", "ESRI Shapefile", "fp.shp", "structures.geojson"],
     );
+    // An indexed FlatGeobuf stores its features in spatial order; without the index the order
+    // (and so every output) is the GeoJSON file's.
+    ogr2ogr(
+        &job,
+        &[
+            "-f",
+            "FlatGeobuf",
+            "fp.fgb",
+            "structures.geojson",
+            "-lco",
+            "SPATIAL_INDEX=NO",
+        ],
+    );
     let toml = std::fs::read_to_string(job.join("portfolio.toml")).unwrap();
     let reference = fx.path("out-geojson");
     assess(&job.join("portfolio.toml"), &reference, &["--no-reports"]);
-    for file in ["fp.gpkg", "fp.shp"] {
+    for file in ["fp.gpkg", "fp.shp", "fp.fgb"] {
         let p = job.join(format!("portfolio-{file}.toml"));
         let t = toml.replace(
             "path = \"structures.geojson\"",
