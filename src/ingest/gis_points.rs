@@ -178,14 +178,14 @@ impl BufRead for Blocks {
 }
 
 /// Writes CSV rows into blocks and sends each full block.
-struct Sink {
+pub(crate) struct Sink {
     tx: SyncSender<Vec<u8>>,
     w: csv::Writer<Vec<u8>>,
 }
 
 impl Sink {
     /// Write one row; false when the parser has stopped (nothing more is wanted).
-    fn row<I: AsRef<[u8]>>(&mut self, fields: impl IntoIterator<Item = I>) -> bool {
+    pub(crate) fn row<I: AsRef<[u8]>>(&mut self, fields: impl IntoIterator<Item = I>) -> bool {
         if self.w.write_record(fields).is_err() {
             return false;
         }
@@ -211,7 +211,7 @@ fn block_writer() -> csv::Writer<Vec<u8>> {
 }
 
 /// Text of a number as the CSV reader expects it: the shortest decimal that reads back exactly.
-fn num_text(v: f64) -> String {
+pub(crate) fn num_text(v: f64) -> String {
     if v.is_finite() {
         format!("{v}")
     } else {
@@ -227,33 +227,69 @@ pub fn read(
     associate: &(dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
     warnings: &mut Warnings,
 ) -> Result<super::points::Dataset, InputError> {
-    let file = spec.path.clone();
+    let gpkg = super::gis::format_of(&spec.path) == Format::GeoPackage;
+    let naming = Naming {
+        label: layer.label.clone(),
+        noun: "feature",
+        offset: if gpkg { 1 } else { 2 },
+    };
     let geographic = layer.crs.is_geographic();
-    let label = layer.label.clone();
+    let columns = (spec.columns.x.clone(), spec.columns.y.clone());
+    let file = spec.path.clone();
+    read_stream(
+        spec,
+        geographic,
+        &naming,
+        to_analysis,
+        associate,
+        warnings,
+        move |sink, zm| match layer.source {
+            Source::Gpkg {
+                conn,
+                table,
+                column,
+            } => produce_gpkg(&conn, &table, &column, &columns, &file, sink, zm),
+            Source::Shp(reader, names) => produce_shp(*reader, &names, &columns, &file, sink, zm),
+        },
+    )
+}
+
+/// How the rows of a streamed source are named in messages: `line N` of the CSV stream becomes
+/// `{label}, {noun} N-offset`.
+pub(crate) struct Naming {
+    /// E.g. ``layer `points` `` (may be empty).
+    pub(crate) label: String,
+    /// `feature` or `row`.
+    pub(crate) noun: &'static str,
+    /// Subtracted from the CSV line number.
+    pub(crate) offset: u64,
+}
+
+/// Run `produce` on its own thread, streaming CSV blocks into the points reader; the producer's
+/// error wins over the reader's. `produce` sets the flag when it dropped Z/M values.
+pub(crate) fn read_stream(
+    spec: &DatasetSpec,
+    geographic: bool,
+    naming: &Naming,
+    to_analysis: &Transformer,
+    associate: &(dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
+    warnings: &mut Warnings,
+    produce: impl FnOnce(&mut Sink, &std::sync::atomic::AtomicBool) -> Result<(), InputError> + Send,
+) -> Result<super::points::Dataset, InputError> {
+    let file = spec.path.clone();
     let mut csv_spec = spec.clone();
     csv_spec.delimiter = Some(b',');
     let (tx, rx) = sync_channel::<Vec<u8>>(IN_FLIGHT);
     let failure: Failure = Arc::default();
     let zm = Arc::new(std::sync::atomic::AtomicBool::new(false));
-    let columns = (spec.columns.x.clone(), spec.columns.y.clone());
     let result = std::thread::scope(|scope| {
-        let (failure2, zm2, file2) = (failure.clone(), zm.clone(), file.clone());
+        let (failure2, zm2) = (failure.clone(), zm.clone());
         scope.spawn(move || {
             let mut sink = Sink {
                 tx,
                 w: block_writer(),
             };
-            let r = match layer.source {
-                Source::Gpkg {
-                    conn,
-                    table,
-                    column,
-                } => produce_gpkg(&conn, &table, &column, &columns, &file2, &mut sink, &zm2),
-                Source::Shp(reader, names) => {
-                    produce_shp(*reader, &names, &columns, &file2, &mut sink, &zm2)
-                }
-            };
-            match r {
+            match produce(&mut sink, &zm2) {
                 Ok(()) => {
                     sink.flush();
                 }
@@ -288,28 +324,28 @@ pub fn read(
             ),
         );
     }
-    result.map_err(|e| rename_lines(e, &label, &file))
+    result.map_err(|e| rename_lines(e, naming))
 }
 
-/// Locations `line N` of the CSV stream become the feature: `feature N-1` (1-based in file
-/// order: the fid of a GeoPackage layer numbered 1, 2, ...) for a GeoPackage, `feature N-2`
-/// (0-based, as GIS software numbers Shapefile records) for a Shapefile.
-fn rename_lines(mut e: InputError, label: &str, file: &Path) -> InputError {
-    let gpkg = super::gis::format_of(file) == Format::GeoPackage;
-    let prefix = if label.is_empty() {
+/// Locations `line N` of the CSV stream become `{noun} N-offset` (a GeoPackage feature counts
+/// from 1 in fid order: its fid when the fids are 1, 2, ...; Shapefile features and Parquet rows
+/// count from 0, as GIS software numbers them); `line 1 (header)` becomes the attribute names.
+fn rename_lines(mut e: InputError, n: &Naming) -> InputError {
+    let prefix = if n.label.is_empty() {
         String::new()
     } else {
-        format!("{label}, ")
+        format!("{}, ", n.label)
     };
     let loc = e.location.clone();
     if let Some(rest) = loc.strip_prefix("line 1 (header)") {
         e.location = format!("{prefix}attribute names{rest}");
     } else if let Some(rest) = loc.strip_prefix("line ") {
         let digits: String = rest.chars().take_while(char::is_ascii_digit).collect();
-        if let Ok(n) = digits.parse::<u64>() {
-            let feature = if gpkg { n - 1 } else { n.saturating_sub(2) };
+        if let Ok(line) = digits.parse::<u64>() {
             e.location = format!(
-                "{prefix}feature {feature}{}",
+                "{prefix}{} {}{}",
+                n.noun,
+                line.saturating_sub(n.offset),
                 &rest[digits.len()..].replacen(", column", ", attribute", 1)
             );
         }
@@ -318,7 +354,7 @@ fn rename_lines(mut e: InputError, label: &str, file: &Path) -> InputError {
 }
 
 /// Header from the attribute names: every attribute but the x/y names, then x and y.
-fn header(names: &[String], xy: &(String, String)) -> (Vec<String>, Vec<usize>) {
+pub(crate) fn header(names: &[String], xy: &(String, String)) -> (Vec<String>, Vec<usize>) {
     let keep: Vec<usize> = (0..names.len())
         .filter(|&i| names[i] != xy.0 && names[i] != xy.1)
         .collect();
@@ -535,19 +571,23 @@ mod tests {
 
     #[test]
     fn line_locations_become_features() {
+        let gpkg = Naming {
+            label: "layer `pts`".into(),
+            noun: "feature",
+            offset: 1,
+        };
         let e = InputError::new(Path::new("p.gpkg"), "line 5, column `D20230115`", "m", "h");
-        let r = rename_lines(e, "layer `pts`", Path::new("p.gpkg"));
+        let r = rename_lines(e, &gpkg);
         assert_eq!(r.location, "layer `pts`, feature 4, attribute `D20230115`");
+        let shp = Naming {
+            label: String::new(),
+            noun: "feature",
+            offset: 2,
+        };
         let e = InputError::new(Path::new("p.shp"), "line 2", "m", "h");
-        assert_eq!(
-            rename_lines(e, "", Path::new("p.shp")).location,
-            "feature 0"
-        );
+        assert_eq!(rename_lines(e, &shp).location, "feature 0");
         let e = InputError::new(Path::new("p.shp"), "line 1 (header)", "m", "h");
-        assert_eq!(
-            rename_lines(e, "", Path::new("p.shp")).location,
-            "attribute names"
-        );
+        assert_eq!(rename_lines(e, &shp).location, "attribute names");
     }
 
     #[test]

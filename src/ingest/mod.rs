@@ -3,13 +3,16 @@
 //! Owns the order of reading (footprints first, so the points reader can keep only points within
 //! reach of a structure), the choice of the analysis CRS (the portfolio's, or the UTM zone of the
 //! structures' centroid), reprojection of footprints, and the per-structure local frame.
-//! Submodules: [`footprints`] (GeoJSON), [`gis`] (GeoPackage and Shapefile footprints), [`points`] (CSV reader), [`store`] (the compact
+//! Submodules: [`footprints`] (GeoJSON), [`gis`] (GeoPackage, Shapefile and FlatGeobuf
+//! footprints), [`gis_points`] and [`parquet_points`] (points layers streamed into the CSV
+//! reader), [`points`] (CSV reader), [`store`] (the compact
 //! in-memory point store), [`decimal`] (fast exact number parsing).
 
 pub mod decimal;
 pub mod footprints;
 pub mod gis;
 pub mod gis_points;
+pub mod parquet_points;
 pub mod points;
 pub mod reference;
 pub mod store;
@@ -182,6 +185,12 @@ pub fn load_structures(
     Ok((structures, analysis, index))
 }
 
+/// A points file that is not CSV, opened (its CRS settled).
+enum PointSource {
+    Gis(gis_points::Layer),
+    Parquet(parquet_points::ParquetPoints),
+}
+
 /// Read every points file, keeping only points within reach of a structure.
 pub fn read_datasets(
     pf: &Portfolio,
@@ -196,11 +205,18 @@ pub fn read_datasets(
         .map(|r| reference::ReferenceArea::project(r, analysis, &pf.file))
         .transpose()?;
     for (i, spec) in pf.datasets.iter().enumerate() {
-        let layer = gis_points::is_gis(&spec.path)
-            .then(|| gis_points::open(spec, i, warnings))
-            .transpose()?;
-        let dcrs = match &layer {
-            Some(l) => l.crs.clone(),
+        let source = if parquet_points::is_parquet(&spec.path) {
+            Some(PointSource::Parquet(parquet_points::open(
+                spec, i, warnings,
+            )?))
+        } else if gis_points::is_gis(&spec.path) {
+            Some(PointSource::Gis(gis_points::open(spec, i, warnings)?))
+        } else {
+            None
+        };
+        let dcrs = match &source {
+            Some(PointSource::Parquet(p)) => p.crs.clone(),
+            Some(PointSource::Gis(l)) => l.crs.clone(),
             None => crs_or_input_error(&spec.crs, &pf.file, &format!("datasets[{i}].crs"))?,
         };
         let to_a = Transformer::new(&dcrs, analysis);
@@ -212,8 +228,11 @@ pub fn read_datasets(
                     .map(|_| crate::association::PointAssociation::default())
             })
         };
-        let mut ds = match layer {
-            Some(l) => gis_points::read(l, spec, &to_a, &reach, warnings)?,
+        let mut ds = match source {
+            Some(PointSource::Parquet(p)) => {
+                parquet_points::read(p, spec, &to_a, &reach, warnings)?
+            }
+            Some(PointSource::Gis(l)) => gis_points::read(l, spec, &to_a, &reach, warnings)?,
             None => points::read_points(spec, &to_a, dcrs.is_geographic(), &reach, warnings)?,
         };
         if let Some(a) = &area {

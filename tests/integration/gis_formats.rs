@@ -377,3 +377,34 @@ fn points_from_geopackage_and_shapefile_layers_give_the_csv_results() {
         }
     }
 }
+
+/// Parquet and GeoParquet points written by pyarrow (committed fixtures, made by
+/// tests/bad_inputs/generate_parquet.py from the corpus base's points.csv) give the CSV run's
+/// results.
+#[test]
+fn points_from_parquet_and_geoparquet_give_the_csv_results() {
+    let fx = Fx::new();
+    let corpus = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/bad_inputs");
+    let reference = fx.path("out-csv");
+    assess(
+        &corpus.join("base/portfolio.toml"),
+        &reference,
+        &["--no-reports"],
+    );
+    for case in ["gis-points-parquet-valid", "gis-points-geoparquet-valid"] {
+        let out = fx.path(case);
+        assess(
+            &corpus.join(case).join("portfolio.toml"),
+            &out,
+            &["--no-reports"],
+        );
+        for f in ["results.json", "results.csv", "points.csv"] {
+            let (a, b) = (
+                std::fs::read_to_string(reference.join(f)).unwrap(),
+                std::fs::read_to_string(out.join(f)).unwrap(),
+            );
+            assert!(a.lines().count() > 1, "{f} has rows");
+            assert!(a == b, "{f} from {case} differs from the CSV run");
+        }
+    }
+}
