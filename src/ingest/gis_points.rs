@@ -177,37 +177,88 @@ impl BufRead for Blocks {
     }
 }
 
-/// Writes CSV rows into blocks and sends each full block.
+/// Writes CSV rows (comma-separated, quoted only where needed) into blocks and sends each
+/// full block.
 pub(crate) struct Sink {
     tx: SyncSender<Vec<u8>>,
-    w: csv::Writer<Vec<u8>>,
+    buf: Vec<u8>,
+    /// True before the first field of a row.
+    first: bool,
 }
 
 impl Sink {
-    /// Write one row; false when the parser has stopped (nothing more is wanted).
-    pub(crate) fn row<I: AsRef<[u8]>>(&mut self, fields: impl IntoIterator<Item = I>) -> bool {
-        if self.w.write_record(fields).is_err() {
-            return false;
+    fn new(tx: SyncSender<Vec<u8>>) -> Sink {
+        Sink {
+            tx,
+            buf: Vec::with_capacity(BLOCK + (64 << 10)),
+            first: true,
         }
-        if self.w.get_ref().len() >= BLOCK {
+    }
+
+    /// Write one row of text fields; false when the parser has stopped (nothing more is wanted).
+    pub(crate) fn row<I: AsRef<[u8]>>(&mut self, fields: impl IntoIterator<Item = I>) -> bool {
+        for f in fields {
+            self.text(f.as_ref());
+        }
+        self.end()
+    }
+
+    fn sep(&mut self) {
+        if !self.first {
+            self.buf.push(b',');
+        }
+        self.first = false;
+    }
+
+    /// A text field, quoted when it holds a comma, a quote or a line break.
+    pub(crate) fn text(&mut self, s: &[u8]) {
+        self.sep();
+        if memchr::memchr3(b',', b'"', b'\n', s).is_some() || memchr::memchr(b'\r', s).is_some() {
+            self.buf.push(b'"');
+            for &c in s {
+                if c == b'"' {
+                    self.buf.push(b'"');
+                }
+                self.buf.push(c);
+            }
+            self.buf.push(b'"');
+        } else {
+            self.buf.extend_from_slice(s);
+        }
+    }
+
+    /// A number field ([`num_text`]; empty when not finite).
+    pub(crate) fn num(&mut self, v: f64) {
+        use std::io::Write;
+        self.sep();
+        if v.is_finite() {
+            let _ = write!(self.buf, "{v}");
+        }
+    }
+
+    /// An integer field (empty for None).
+    pub(crate) fn int(&mut self, v: Option<i64>) {
+        use std::io::Write;
+        self.sep();
+        if let Some(v) = v {
+            let _ = write!(self.buf, "{v}");
+        }
+    }
+
+    /// End the row; false when the parser has stopped.
+    pub(crate) fn end(&mut self) -> bool {
+        self.buf.push(b'\n');
+        self.first = true;
+        if self.buf.len() >= BLOCK {
             return self.flush();
         }
         true
     }
 
     fn flush(&mut self) -> bool {
-        let full = std::mem::replace(&mut self.w, block_writer())
-            .into_inner()
-            .unwrap_or_default();
+        let full = std::mem::replace(&mut self.buf, Vec::with_capacity(BLOCK + (64 << 10)));
         full.is_empty() || self.tx.send(full).is_ok()
     }
-}
-
-/// A CSV writer into a new block.
-fn block_writer() -> csv::Writer<Vec<u8>> {
-    csv::WriterBuilder::new()
-        .flexible(true)
-        .from_writer(Vec::with_capacity(BLOCK + (64 << 10)))
 }
 
 /// Text of a number as the CSV reader expects it: the shortest decimal that reads back exactly.
@@ -285,10 +336,7 @@ pub(crate) fn read_stream(
     let result = std::thread::scope(|scope| {
         let (failure2, zm2) = (failure.clone(), zm.clone());
         scope.spawn(move || {
-            let mut sink = Sink {
-                tx,
-                w: block_writer(),
-            };
+            let mut sink = Sink::new(tx);
             match produce(&mut sink, &zm2) {
                 Ok(()) => {
                     sink.flush();

@@ -17,7 +17,7 @@ use parquet::file::reader::{FileReader, SerializedFileReader};
 use serde_json::Value;
 
 use super::gis::{Stated, settle_crs};
-use super::gis_points::{Naming, Sink, header, num_text};
+use super::gis_points::{Naming, Sink, header};
 use crate::association::PointAssociation;
 use crate::coords::{Crs, Transformer};
 use crate::error::{InputError, Warnings};
@@ -224,19 +224,6 @@ fn decode(reader: ColumnReader, n: usize, max_def: i16) -> parquet::errors::Resu
     })
 }
 
-/// The text of row `k` of a decoded column.
-fn cell(c: &Col, k: usize) -> String {
-    match c {
-        Col::Num(v) => num_text(v[k]),
-        Col::Int(v) => v[k].map_or_else(String::new, |i| i.to_string()),
-        Col::Bytes(v) => v[k]
-            .as_deref()
-            .map_or_else(String::new, |b| String::from_utf8_lossy(b).into_owned()),
-        Col::Bool(v) => v[k].map_or_else(String::new, |b| b.to_string()),
-        Col::Other => String::new(),
-    }
-}
-
 /// x, y of an ISO WKB point (Z/M ignored; the flag says whether there were any).
 fn wkb_point(b: &[u8]) -> Result<(f64, f64, bool), String> {
     let le = match b.first() {
@@ -295,7 +282,6 @@ fn produce(
         return Ok(());
     }
     let mut row0 = 0usize;
-    let mut fields: Vec<String> = Vec::with_capacity(h.len());
     for g in 0..p.reader.num_row_groups() {
         let rg = p
             .reader
@@ -318,8 +304,19 @@ fn produce(
             cols.push(col);
         }
         for r in 0..n {
-            fields.clear();
-            fields.extend(keep.iter().map(|&k| cell(&cols[k], r)));
+            for &k in &keep {
+                match &cols[k] {
+                    Col::Num(v) => sink.num(v[r]),
+                    Col::Int(v) => sink.int(v[r]),
+                    Col::Bytes(v) => sink.text(v[r].as_deref().unwrap_or_default()),
+                    Col::Bool(v) => sink.text(match v[r] {
+                        Some(true) => b"true",
+                        Some(false) => b"false",
+                        None => b"",
+                    }),
+                    Col::Other => sink.text(b""),
+                }
+            }
             if let Some(gc) = p.geometry {
                 let loc = || format!("row {}, column `{}`", row0 + r, names[gc]);
                 let Col::Bytes(v) = &cols[gc] else {
@@ -343,10 +340,10 @@ fn produce(
                 if has_zm {
                     zm.store(true, std::sync::atomic::Ordering::Relaxed);
                 }
-                fields.push(num_text(x));
-                fields.push(num_text(y));
+                sink.num(x);
+                sink.num(y);
             }
-            if !sink.row(&fields) {
+            if !sink.end() {
                 return Ok(());
             }
         }
