@@ -43,6 +43,21 @@ pub fn format_of(path: &Path) -> Format {
     }
 }
 
+/// The name of the format a footprints file (`points` false) or points file (`points` true) is
+/// read as, chosen by its extension, for `plinth check`.
+pub fn format_name(path: &Path, points: bool) -> &'static str {
+    if points && super::parquet_points::is_parquet(path) {
+        return "Parquet";
+    }
+    match (format_of(path), points) {
+        (Format::GeoPackage, _) => "GeoPackage",
+        (Format::Shapefile, _) => "Shapefile",
+        (Format::FlatGeobuf, _) => "FlatGeobuf",
+        (Format::GeoJson, false) => "GeoJSON",
+        (Format::GeoJson, true) => "CSV",
+    }
+}
+
 /// The files read beside a footprints file (a Shapefile's `.dbf`, `.prj` and `.shx` that exist),
 /// for the manifest's input hashes.
 pub fn sidecars(path: &Path) -> Vec<std::path::PathBuf> {

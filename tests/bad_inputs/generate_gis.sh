@@ -33,10 +33,10 @@ expect() { # name exit fragments... (the last argument may be `warn:FRAGMENT`)
 }
 
 new_case gis-gpkg-valid gpkg
-expect gis-gpkg-valid 0 "check passed" "points kept on structures: 8"
+expect gis-gpkg-valid 0 "check passed" "structures.gpkg (GeoPackage)" "points kept on structures: 8"
 
 new_case gis-shp-valid shp
-expect gis-shp-valid 0 "check passed" "points kept on structures: 8"
+expect gis-shp-valid 0 "check passed" "structures.shp (Shapefile)" "points kept on structures: 8"
 
 new_case gis-shp-truncated shp
 head -c 150 gis-shp-truncated/structures.shp > t && mv t gis-shp-truncated/structures.shp
@@ -88,7 +88,7 @@ sed -i 's|path = "structures.gpkg"|path = "structures.gpkg"\ncrs = "EPSG:4326"|'
 expect gis-gpkg-crs-conflict 2 "structures.gpkg" "declares EPSG:32650" "crs is EPSG:4326"
 
 new_case gis-fgb-valid fgb
-expect gis-fgb-valid 0 "check passed" "points kept on structures: 8"
+expect gis-fgb-valid 0 "check passed" "structures.fgb (FlatGeobuf)" "points kept on structures: 8"
 
 new_case gis-fgb-truncated fgb
 head -c 300 gis-fgb-truncated/structures.fgb > t && mv t gis-fgb-truncated/structures.fgb
@@ -109,7 +109,7 @@ points_case() { # name -> folder with the base structures and points.gpkg made f
 }
 
 points_case gis-points-gpkg-valid base/points.csv
-expect gis-points-gpkg-valid 0 "check passed" "points read from asc: 11" "points kept on structures: 8"
+expect gis-points-gpkg-valid 0 "check passed" "points.gpkg (GeoPackage)" "points read from asc: 11" "points kept on structures: 8"
 
 python3 - <<'PY'
 rows = open("base/points.csv").read().split("\n")

@@ -42,7 +42,7 @@ def case(name, table, expect, metadata=None):
 
 t = base_table()
 case("gis-points-parquet-valid", t,
-     'exit = 0\nstderr_contains = ["check passed", "points read from asc: 11", "points kept on structures: 8"]\n')
+     'exit = 0\nstderr_contains = ["check passed", "points.parquet (Parquet)", "points read from asc: 11", "points kept on structures: 8"]\n')
 
 date = [n for n in t.column_names if n[:2] == "20"][2]
 s = t.set_column(t.column_names.index(date), date, t[date].cast(pa.string()))
@@ -55,6 +55,6 @@ g = t.drop_columns(["lon", "lat"]).append_column("geometry", pa.array(wkb, pa.bi
 geo = {"version": "1.0.0", "primary_column": "geometry",
        "columns": {"geometry": {"encoding": "WKB", "geometry_types": ["Point"]}}}
 case("gis-points-geoparquet-valid", g,
-     'exit = 0\nstderr_contains = ["check passed", "points read from asc: 11", "points kept on structures: 8"]\n',
+     'exit = 0\nstderr_contains = ["check passed", "points.parquet (Parquet)", "points read from asc: 11", "points kept on structures: 8"]\n',
      {b"geo": json.dumps(geo).encode()})
 print("wrote the Parquet cases")
