@@ -16,7 +16,8 @@ pub fn scaffold(dir: &Path) -> Result<()> {
         std::fs::write(d.join("portfolio.toml"), PORTFOLIO_TEMPLATE)?;
         std::fs::write(
             d.join("data/README.txt"),
-            "Put the footprints (structures.geojson) and one CSV per viewing geometry here,\n\
+            "Put the footprints (structures.geojson, .gpkg or .shp with its .dbf and .prj) and one\n\
+             CSV per viewing geometry here,\n\
              then edit ../portfolio.toml and run: plinth check portfolio.toml\n",
         )?;
         Ok(())

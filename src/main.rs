@@ -141,6 +141,20 @@ fn print_check(c: &plinth::run::CheckSummary) {
         p.window.end,
         p.inputs.analysis_crs.name()
     );
+    let pf = &p.portfolio;
+    eprintln!(
+        "footprints: {} ({})",
+        pf.structures.path.display(),
+        plinth::ingest::gis::format_name(&pf.structures.path, false)
+    );
+    for d in &pf.datasets {
+        eprintln!(
+            "points {}: {} ({})",
+            d.name,
+            d.path.display(),
+            plinth::ingest::gis::format_name(&d.path, true)
+        );
+    }
     eprintln!("structures: {}", cov.structures);
     eprintln!("  meeting the minimums: {}", c.meeting_minimums);
     let below: usize = c.below_minimum.values().sum();

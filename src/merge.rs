@@ -3,7 +3,8 @@
 //! Owns the order of the merged records (structures in the footprint file's feature order; point
 //! rows by dataset in portfolio order, then line in the points file, a tie row before the point's
 //! links, links by structure input order — the order a single run writes), the recomputation of
-//! the portfolio-level counts, the merged manifest (the first shard's, with the list of shards)
+//! the portfolio-level counts, results.gpkg rebuilt from the shards' layers in that order, the
+//! merged manifest (the first shard's, with the list of shards)
 //! and copying every other file of the shard folders (reports) across.
 //!
 //! The record files are merged at the level of their parsed values and written with the same
@@ -22,7 +23,7 @@ use anyhow::{Context, Result, bail};
 use serde_json::Value;
 
 use crate::error::InputError;
-use crate::output::{self, guard};
+use crate::output::{self, gpkg, guard};
 
 /// The files of an output folder that are merged rather than copied.
 pub const MERGED_FILES: &[&str] = guard::OUTPUT_FILES.split_at(guard::DATA_FILE_COUNT).0;
@@ -313,6 +314,7 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
     manifest[guard::FORMAT_KEY] = Value::from(guard::FORMAT_MARKER);
     manifest["shards"] = Value::Array(shard_labels);
 
+    let gpkg_layers = merge_gpkg(shards, &idx, &dataset_order)?;
     let collection =
         |feats: Vec<Value>| serde_json::json!({"type": "FeatureCollection", "features": feats});
     let target = check_out(out, shards, portfolio, Some(&pf))?;
@@ -339,6 +341,15 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
             "points.geojson",
             (serde_json::to_string(&pfc)? + "\n").as_bytes(),
         )?;
+        if let Some((structures, points)) = gpkg_layers {
+            let date = portfolio_v["analysis_date"].as_str();
+            let path = d.join(gpkg::FILE);
+            let mut g = gpkg::Gpkg::create(&path, &gpkg::last_change(date))?;
+            g.write_layer(&gpkg::STRUCTURES_LAYER, structures.into_iter().map(Ok))?;
+            g.write_layer(&gpkg::POINTS_LAYER, points.into_iter().map(Ok))?;
+            g.finish()
+                .with_context(|| format!("cannot write {}", path.display()))?;
+        }
         output::write_file(
             d,
             "manifest.json",
@@ -407,6 +418,77 @@ fn check_shard(dir: &Path) -> Result<()> {
         .into());
     }
     Ok(())
+}
+
+/// The features of the structures and points layers of results.gpkg.
+type GpkgLayers = (Vec<gpkg::Feature>, Vec<gpkg::Feature>);
+
+/// The two layers of the shards' results.gpkg files, each in the single run's order; None when no
+/// shard has the file (shards written before it existed), an error when only some have it.
+fn merge_gpkg(
+    shards: &[PathBuf],
+    idx: &dyn Fn(&str) -> Result<usize>,
+    dataset_order: &HashMap<String, usize>,
+) -> Result<Option<GpkgLayers>> {
+    let with: Vec<&PathBuf> = shards
+        .iter()
+        .filter(|d| d.join(gpkg::FILE).is_file())
+        .collect();
+    if with.is_empty() {
+        return Ok(None);
+    }
+    if let Some(d) = shards.iter().find(|d| !with.contains(d)) {
+        bail!(
+            "{} has no {} while other shards do: merge the shards of one run only",
+            d.display(),
+            gpkg::FILE
+        );
+    }
+    let text = |f: &gpkg::Feature, i: usize| match &f.values[i] {
+        rusqlite::types::Value::Text(s) => s.clone(),
+        _ => String::new(),
+    };
+    let col = |name: &str| {
+        gpkg::POINT_FIELDS
+            .iter()
+            .position(|(n, _)| *n == name)
+            .unwrap_or(0)
+    };
+    let (c_ds, c_line, c_sid, c_role) = (
+        col("dataset"),
+        col("line"),
+        col("structure_id"),
+        col("role"),
+    );
+    let mut structures = Vec::new();
+    let mut points = Vec::new();
+    for d in shards {
+        let path = d.join(gpkg::FILE);
+        for f in gpkg::read_layer(&path, &gpkg::STRUCTURES_LAYER)? {
+            structures.push((idx(&text(&f, 0))?, f));
+        }
+        for f in gpkg::read_layer(&path, &gpkg::POINTS_LAYER)? {
+            let line = match f.values[c_line] {
+                rusqlite::types::Value::Integer(l) => l as u64,
+                _ => 0,
+            };
+            let key = point_key(
+                dataset_order,
+                idx,
+                &text(&f, c_ds),
+                line,
+                &text(&f, c_role),
+                &text(&f, c_sid),
+            )?;
+            points.push((key, f));
+        }
+    }
+    structures.sort_by_key(|(i, _)| *i);
+    points.sort_by_key(|(k, _)| *k);
+    Ok(Some((
+        structures.into_iter().map(|(_, f)| f).collect(),
+        points.into_iter().map(|(_, f)| f).collect(),
+    )))
 }
 
 fn point_key(

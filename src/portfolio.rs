@@ -64,6 +64,7 @@ struct RawStructures {
     path: String,
     id_property: Option<String>,
     crs: Option<String>,
+    layer: Option<String>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -81,6 +82,7 @@ struct RawDataset {
     wavelength_mm: Option<f64>,
     delimiter: Option<String>,
     columns: Option<RawColumns>,
+    layer: Option<String>,
 }
 
 #[derive(Debug, Deserialize, Default)]
@@ -215,6 +217,13 @@ pub struct DatasetSpec {
     pub delimiter: Option<u8>,
     /// Column map.
     pub columns: Columns,
+    /// True when `crs` was written in the portfolio file (a GeoPackage or Shapefile that declares
+    /// another CRS is then refused).
+    #[serde(skip)]
+    pub crs_given: bool,
+    /// Layer of a GeoPackage points file (None: its only feature layer).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub layer: Option<String>,
 }
 
 /// The `[structures]` section.
@@ -224,8 +233,15 @@ pub struct StructuresSpec {
     pub path: PathBuf,
     /// Feature property holding the structure id.
     pub id_property: String,
-    /// CRS of the footprint coordinates.
+    /// CRS of the footprint coordinates (for a GeoPackage or Shapefile that declares its CRS,
+    /// the file's CRS is used and must agree with this when it was given).
     pub crs: String,
+    /// True when `crs` was written in the portfolio file (not the default).
+    #[serde(skip)]
+    pub crs_given: bool,
+    /// Layer of a GeoPackage footprints file (None: its only feature layer).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub layer: Option<String>,
 }
 
 /// Largest accepted `min_points`: a plausibility bound against typing errors (a minimum above it
@@ -572,6 +588,8 @@ impl Portfolio {
                 "id".into()
             }),
             crs: structures_crs,
+            crs_given: raw.structures.crs.is_some(),
+            layer: raw.structures.layer.clone(),
         };
         if !structures.path.is_file() {
             return Err(InputError::new(
@@ -717,6 +735,8 @@ impl Portfolio {
                 wavelength_mm,
                 delimiter,
                 columns,
+                crs_given: d.crs.is_some(),
+                layer: d.layer.clone(),
             };
             if !spec.path.is_file() {
                 return Err(InputError::new(

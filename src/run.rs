@@ -1184,8 +1184,14 @@ pub fn hash_inputs_in_background(
         ("portfolio", None, pf.file.clone()),
         ("structures", None, pf.structures.path.clone()),
     ];
+    for side in crate::ingest::gis::sidecars(&pf.structures.path) {
+        files.push(("structures", None, side));
+    }
     for d in &pf.datasets {
         files.push(("dataset", Some(d.name.clone()), d.path.clone()));
+        for side in crate::ingest::gis::sidecars(&d.path) {
+            files.push(("dataset", Some(d.name.clone()), side));
+        }
     }
     std::thread::spawn(move || {
         files
@@ -1289,9 +1295,13 @@ fn write_outputs(
     d: &Path,
     digests: std::thread::JoinHandle<Result<Vec<InputDigest>>>,
 ) -> Result<()> {
-    let (points, results) = rayon::join(|| write_points(a, d), || write_results(a, d));
+    let (points, (results, gpkg)) = rayon::join(
+        || write_points(a, d),
+        || rayon::join(|| write_results(a, d), || write_gpkg(a, d)),
+    );
     points?;
     results?;
+    gpkg?;
     let digests = digests
         .join()
         .map_err(|_| anyhow::anyhow!("hashing the inputs failed (the thread stopped)"))??;
@@ -1306,6 +1316,25 @@ fn write_outputs(
         crate::report::pipeline::render_reports(&a.report_input(), d, opts.jobs, opts.progress)?;
     }
     Ok(())
+}
+
+/// results.gpkg: the structures and points layers (output::gpkg).
+fn write_gpkg(a: &Analysis, d: &Path) -> Result<()> {
+    let to_wgs =
+        crate::coords::Transformer::new(&a.inputs.analysis_crs, &crate::coords::Crs::wgs84());
+    let fps: Vec<&geo::MultiPolygon<f64>> = a
+        .inputs
+        .structures
+        .iter()
+        .map(|s| &s.footprint_wgs84)
+        .collect();
+    output::gpkg::write_results(
+        d,
+        &a.results.structures,
+        &fps,
+        a.point_rows(&to_wgs),
+        a.results.portfolio.analysis_date.as_deref(),
+    )
 }
 
 /// results.json, results.csv and results.geojson.

@@ -59,6 +59,8 @@ fn spec(unit: Unit, delimiter: Option<u8>) -> DatasetSpec {
             height: None,
             date_format: "%Y-%m-%d".into(),
         },
+        crs_given: true,
+        layer: None,
     }
 }
 

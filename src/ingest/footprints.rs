@@ -195,39 +195,67 @@ fn parse_polygon(
     Ok(Polygon::new(exterior, parsed))
 }
 
-/// Read and validate a footprints file.
-pub fn read_footprints(
-    path: &Path,
-    id_property: &str,
+/// Validates footprint features one at a time and keeps the structures read. Every footprint
+/// reader (GeoJSON here, GeoPackage, Shapefile and FlatGeobuf in `ingest::gis`) hands it each
+/// feature as a GeoJSON `Feature` value, so the property mapping, validation and messages are one.
+pub struct FeatureCheck<'a> {
+    path: &'a Path,
+    id_property: &'a str,
     geographic: bool,
-    defaults: &FootprintDefaults,
-    warnings: &mut Warnings,
-) -> Result<Vec<RawStructure>, InputError> {
-    let text = std::fs::read_to_string(path).map_err(|e| {
-        InputError::new(
-            path,
-            "",
-            format!("cannot read the footprints file: {e}"),
-            "check [structures] path in the portfolio file",
-        )
-    })?;
-    parse_footprints(&text, path, id_property, geographic, defaults, warnings)
+    defaults: &'a FootprintDefaults,
+    warnings: &'a mut Warnings,
+    /// Put before `feature N` in locations, e.g. ``layer `buildings`, ``.
+    loc_prefix: String,
+    out: Vec<RawStructure>,
+    seen: std::collections::HashMap<String, usize>,
+    warned_3d: bool,
 }
 
-/// Parse footprints GeoJSON text (see [`read_footprints`]).
-pub fn parse_footprints(
-    text: &str,
-    path: &Path,
-    id_property: &str,
-    geographic: bool,
-    defaults: &FootprintDefaults,
-    warnings: &mut Warnings,
-) -> Result<Vec<RawStructure>, InputError> {
-    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
-    let mut out: Vec<RawStructure> = Vec::new();
-    let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
-    let mut warned_3d = false;
-    let mut handle = |i: usize, f: &Value| -> Result<(), InputError> {
+impl<'a> FeatureCheck<'a> {
+    /// A check of the features of `path`.
+    pub fn new(
+        path: &'a Path,
+        id_property: &'a str,
+        geographic: bool,
+        defaults: &'a FootprintDefaults,
+        warnings: &'a mut Warnings,
+    ) -> FeatureCheck<'a> {
+        FeatureCheck {
+            path,
+            id_property,
+            geographic,
+            defaults,
+            warnings,
+            loc_prefix: String::new(),
+            out: Vec::new(),
+            seen: std::collections::HashMap::new(),
+            warned_3d: false,
+        }
+    }
+
+    /// Name a layer in every location (``layer `NAME`, feature N``).
+    pub fn in_layer(mut self, layer: &str) -> FeatureCheck<'a> {
+        self.loc_prefix = format!("layer `{layer}`, ");
+        self
+    }
+
+    /// Structures read so far.
+    pub fn count(&self) -> usize {
+        self.out.len()
+    }
+
+    /// The structures read, in feature order.
+    pub fn finish(self) -> Vec<RawStructure> {
+        self.out
+    }
+
+    /// Validate feature number `i` (a GeoJSON `Feature` value) and keep its structure.
+    pub fn feature(&mut self, i: usize, f: &Value) -> Result<(), InputError> {
+        let (path, id_property, geographic, defaults) =
+            (self.path, self.id_property, self.geographic, self.defaults);
+        let warnings = &mut *self.warnings;
+        let feature_loc =
+            |i: usize, id: Option<&str>| format!("{}{}", self.loc_prefix, feature_loc(i, id));
         let props = f.get("properties").and_then(Value::as_object);
         let id = props
             .and_then(|p| p.get(id_property))
@@ -247,7 +275,7 @@ pub fn parse_footprints(
             ));
         };
         let loc = feature_loc(i, Some(&id));
-        if let Some(first) = seen.get(&id) {
+        if let Some(first) = self.seen.get(&id) {
             return Err(InputError::new(
                 path,
                 loc,
@@ -255,7 +283,7 @@ pub fn parse_footprints(
                 "structure ids must be unique",
             ));
         }
-        seen.insert(id.clone(), i);
+        self.seen.insert(id.clone(), i);
         let geom = f.get("geometry").filter(|g| !g.is_null()).ok_or_else(|| {
             InputError::new(
                 path,
@@ -280,7 +308,7 @@ pub fn parse_footprints(
                 &loc,
                 geographic,
                 warnings,
-                &mut warned_3d,
+                &mut self.warned_3d,
             )?]),
             "MultiPolygon" => {
                 let parts = coords.as_array().ok_or_else(|| {
@@ -307,7 +335,7 @@ pub fn parse_footprints(
                         &loc,
                         geographic,
                         warnings,
-                        &mut warned_3d,
+                        &mut self.warned_3d,
                     )?);
                 }
                 MultiPolygon::new(polys)
@@ -433,7 +461,7 @@ pub fn parse_footprints(
             Some(Value::String(s)) if !s.trim().is_empty() => Some(s.trim().to_string()),
             _ => None,
         };
-        out.push(RawStructure {
+        self.out.push(RawStructure {
             feature_index: i,
             id,
             name,
@@ -444,7 +472,40 @@ pub fn parse_footprints(
             fallbacks,
         });
         Ok(())
-    };
+    }
+}
+
+/// Read and validate a footprints file.
+pub fn read_footprints(
+    path: &Path,
+    id_property: &str,
+    geographic: bool,
+    defaults: &FootprintDefaults,
+    warnings: &mut Warnings,
+) -> Result<Vec<RawStructure>, InputError> {
+    let text = std::fs::read_to_string(path).map_err(|e| {
+        InputError::new(
+            path,
+            "",
+            format!("cannot read the footprints file: {e}"),
+            "check [structures] path in the portfolio file",
+        )
+    })?;
+    parse_footprints(&text, path, id_property, geographic, defaults, warnings)
+}
+
+/// Parse footprints GeoJSON text (see [`read_footprints`]).
+pub fn parse_footprints(
+    text: &str,
+    path: &Path,
+    id_property: &str,
+    geographic: bool,
+    defaults: &FootprintDefaults,
+    warnings: &mut Warnings,
+) -> Result<Vec<RawStructure>, InputError> {
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
+    let mut check = FeatureCheck::new(path, id_property, geographic, defaults, warnings);
+    let mut handle = |i: usize, f: &Value| check.feature(i, f);
     let mut stream = FeatureStream {
         handle: &mut handle,
         kind: None,
@@ -493,7 +554,7 @@ pub fn parse_footprints(
             "a portfolio needs at least one structure",
         ));
     }
-    Ok(out)
+    Ok(check.finish())
 }
 
 fn not_a_collection(path: &Path) -> InputError {

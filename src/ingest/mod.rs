@@ -3,11 +3,16 @@
 //! Owns the order of reading (footprints first, so the points reader can keep only points within
 //! reach of a structure), the choice of the analysis CRS (the portfolio's, or the UTM zone of the
 //! structures' centroid), reprojection of footprints, and the per-structure local frame.
-//! Submodules: [`footprints`] (GeoJSON), [`points`] (CSV reader), [`store`] (the compact
+//! Submodules: [`footprints`] (GeoJSON), [`gis`] (GeoPackage, Shapefile and FlatGeobuf
+//! footprints), [`gis_points`] and [`parquet_points`] (points layers streamed into the CSV
+//! reader), [`points`] (CSV reader), [`store`] (the compact
 //! in-memory point store), [`decimal`] (fast exact number parsing).
 
 pub mod decimal;
 pub mod footprints;
+pub mod gis;
+pub mod gis_points;
+pub mod parquet_points;
 pub mod points;
 pub mod reference;
 pub mod store;
@@ -89,13 +94,19 @@ pub fn load_structures(
         height_m: pf.assessment.default_height_m,
         structure_type: pf.assessment.default_structure.clone(),
     };
-    let raws = footprints::read_footprints(
-        sfile,
-        &pf.structures.id_property,
-        scrs.is_geographic(),
-        &defaults,
-        warnings,
-    )?;
+    let (raws, scrs) = match gis::format_of(sfile) {
+        gis::Format::GeoJson => (
+            footprints::read_footprints(
+                sfile,
+                &pf.structures.id_property,
+                scrs.is_geographic(),
+                &defaults,
+                warnings,
+            )?,
+            scrs,
+        ),
+        other => gis::read_footprints(&pf.structures, other, &defaults, warnings)?,
+    };
     let wgs = Crs::wgs84();
     let s_to_wgs = Transformer::new(&scrs, &wgs);
     let mut wgs_fps = Vec::with_capacity(raws.len());
@@ -174,6 +185,12 @@ pub fn load_structures(
     Ok((structures, analysis, index))
 }
 
+/// A points file that is not CSV, opened (its CRS settled).
+enum PointSource {
+    Gis(gis_points::Layer),
+    Parquet(parquet_points::ParquetPoints),
+}
+
 /// Read every points file, keeping only points within reach of a structure.
 pub fn read_datasets(
     pf: &Portfolio,
@@ -188,7 +205,20 @@ pub fn read_datasets(
         .map(|r| reference::ReferenceArea::project(r, analysis, &pf.file))
         .transpose()?;
     for (i, spec) in pf.datasets.iter().enumerate() {
-        let dcrs = crs_or_input_error(&spec.crs, &pf.file, &format!("datasets[{i}].crs"))?;
+        let source = if parquet_points::is_parquet(&spec.path) {
+            Some(PointSource::Parquet(parquet_points::open(
+                spec, i, warnings,
+            )?))
+        } else if gis_points::is_gis(&spec.path) {
+            Some(PointSource::Gis(gis_points::open(spec, i, warnings)?))
+        } else {
+            None
+        };
+        let dcrs = match &source {
+            Some(PointSource::Parquet(p)) => p.crs.clone(),
+            Some(PointSource::Gis(l)) => l.crs.clone(),
+            None => crs_or_input_error(&spec.crs, &pf.file, &format!("datasets[{i}].crs"))?,
+        };
         let to_a = Transformer::new(&dcrs, analysis);
         // The reference area's points are kept as well (no link to any structure), however
         // far they lie from the structures.
@@ -198,7 +228,13 @@ pub fn read_datasets(
                     .map(|_| crate::association::PointAssociation::default())
             })
         };
-        let mut ds = points::read_points(spec, &to_a, dcrs.is_geographic(), &reach, warnings)?;
+        let mut ds = match source {
+            Some(PointSource::Parquet(p)) => {
+                parquet_points::read(p, spec, &to_a, &reach, warnings)?
+            }
+            Some(PointSource::Gis(l)) => gis_points::read(l, spec, &to_a, &reach, warnings)?,
+            None => points::read_points(spec, &to_a, dcrs.is_geographic(), &reach, warnings)?,
+        };
         if let Some(a) = &area {
             ds.reference = Some(reference::rereference(
                 &mut ds,

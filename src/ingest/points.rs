@@ -1523,6 +1523,8 @@ mod tests {
                 height: None,
                 date_format: "%Y-%m-%d".into(),
             },
+            crs_given: true,
+            layer: None,
         }
     }
 

@@ -26,16 +26,17 @@ pub const FORMAT_MARKER: &str = "plinth-output-folder/1";
 
 /// How many of [`OUTPUT_FILES`], from the first, are the data files (`merge` merges these and
 /// copies the rest).
-pub const DATA_FILE_COUNT: usize = 6;
+pub const DATA_FILE_COUNT: usize = 7;
 
 /// The files Plinth writes at the top of an output folder (besides the `reports/` folder): the
 /// [`DATA_FILE_COUNT`] data files first, then the portfolio overview.
-pub const OUTPUT_FILES: [&str; 8] = [
+pub const OUTPUT_FILES: [&str; 9] = [
     "results.json",
     "results.csv",
     "results.geojson",
     "points.csv",
     "points.geojson",
+    super::gpkg::FILE,
     "manifest.json",
     "portfolio.pdf",
     "portfolio.json",

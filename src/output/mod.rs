@@ -1,4 +1,5 @@
-//! Output files: results.json/csv/geojson, points.csv/geojson, manifest.json, atomic writes and
+//! Output files: results.json/csv/geojson, points.csv/geojson, results.gpkg, manifest.json, atomic
+//! writes and
 //! safe file names.
 //!
 //! Owns the on-disk formats (documented in docs/formats.md) and the rule that a run either
@@ -6,6 +7,7 @@
 //! temporary sibling folder, which is swapped in by rename only when the whole run succeeded.
 //! Which folder may be written at all is decided first, by [`guard`]. It does not compute anything.
 
+pub mod gpkg;
 pub mod guard;
 pub mod safe_names;
 

@@ -130,6 +130,7 @@ fn all_outputs_written_with_manifest_hashes() {
         "results.geojson",
         "points.csv",
         "points.geojson",
+        "results.gpkg",
         "manifest.json",
     ] {
         assert!(out.join(f).is_file(), "{f} missing");
@@ -209,6 +210,7 @@ fn rerun_is_byte_identical() {
         "results.csv",
         "results.geojson",
         "points.csv",
+        "results.gpkg",
     ] {
         assert_eq!(
             std::fs::read(o1.join(f)).unwrap(),

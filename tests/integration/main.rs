@@ -3,6 +3,7 @@
 mod demo;
 mod fixture;
 mod foundation;
+mod gis_formats;
 mod limits;
 mod metrics;
 mod output_safety;

@@ -98,6 +98,7 @@ fn merged_shards_equal_a_single_run() {
         "results.geojson",
         "points.csv",
         "points.geojson",
+        "results.gpkg",
     ] {
         let a = std::fs::read(single.join(f)).unwrap();
         let b = std::fs::read(merged.join(f)).unwrap();

@@ -1,0 +1,415 @@
+//! Points from Parquet / GeoParquet (`.parquet`): one column per acquisition date.
+//!
+//! Owns reading the file one row group at a time (every column of the group decoded into typed
+//! vectors, so memory holds one row group, never the file), the point position (the `columns.x`
+//! and `columns.y` columns, or a GeoParquet WKB point geometry column, whose CRS is then the
+//! file's declared one), refusing a date column stored as text, and handing the rows to the CSV
+//! reader through the stream of `ingest::gis_points`, so the column map, `date_format`, units,
+//! sign, validation and screening are the CSV's. Rows are named in messages by their 0-based
+//! position in the file (`row N`); a row's `line` in points.csv is that position + 2.
+//! It does not associate or screen points itself.
+
+use std::path::Path;
+
+use parquet::column::reader::{ColumnReader, ColumnReaderImpl};
+use parquet::data_type::DataType;
+use parquet::file::reader::{FileReader, SerializedFileReader};
+use serde_json::Value;
+
+use super::gis::{Stated, settle_crs};
+use super::gis_points::{Naming, Sink, header};
+use crate::association::PointAssociation;
+use crate::coords::{Crs, Transformer};
+use crate::error::{InputError, Warnings};
+use crate::portfolio::DatasetSpec;
+
+/// Whether a points file is Parquet (by extension: `.parquet`, `.geoparquet`, `.pq`).
+pub fn is_parquet(path: &Path) -> bool {
+    let ext = path
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase());
+    matches!(ext.as_deref(), Some("parquet" | "geoparquet" | "pq"))
+}
+
+/// An opened Parquet points file.
+pub struct ParquetPoints {
+    reader: SerializedFileReader<std::fs::File>,
+    /// Index of the GeoParquet WKB geometry column, if the positions come from it.
+    geometry: Option<usize>,
+    /// CRS of the positions.
+    pub crs: Crs,
+}
+
+fn err(file: &Path, loc: impl Into<String>, what: impl Into<String>, fix: &str) -> InputError {
+    InputError::new(file, loc, what, fix)
+}
+
+fn damaged(file: &Path, loc: impl Into<String>, e: impl std::fmt::Display) -> InputError {
+    err(
+        file,
+        loc,
+        format!("cannot read the Parquet file: {e}"),
+        "check the file (e.g. with pyarrow.parquet.read_metadata); write it again if it is damaged",
+    )
+}
+
+/// The GeoParquet `geo` metadata: the primary geometry column and its EPSG code (None for an
+/// undefined CRS; OGC:CRS84, the default when `crs` is absent, is EPSG:4326 in x = longitude order).
+fn geo_metadata(text: &str) -> Option<(String, Option<u32>)> {
+    let v: Value = serde_json::from_str(text).ok()?;
+    let col = v.get("primary_column")?.as_str()?.to_string();
+    let meta = v.get("columns")?.get(&col)?;
+    let crs = match meta.get("crs") {
+        None => Some(4326),
+        Some(Value::Null) => None,
+        Some(c) => {
+            let id = c.get("id")?;
+            let auth = id.get("authority")?.as_str()?;
+            let code = &id["code"];
+            let code = code
+                .as_u64()
+                .or_else(|| code.as_str().and_then(|s| s.parse().ok()))?;
+            match auth.to_ascii_uppercase().as_str() {
+                "EPSG" => u32::try_from(code).ok(),
+                "OGC" if code == 84 => Some(4326),
+                _ => None,
+            }
+        }
+    };
+    Some((col, crs))
+}
+
+/// Open the Parquet points file of dataset `i`: its schema checks and CRS.
+pub fn open(
+    spec: &DatasetSpec,
+    i: usize,
+    warnings: &mut Warnings,
+) -> Result<ParquetPoints, InputError> {
+    let file = spec.path.as_path();
+    let f = std::fs::File::open(file).map_err(|e| damaged(file, "", e))?;
+    let reader = SerializedFileReader::new(f).map_err(|e| damaged(file, "", e))?;
+    let meta = reader.metadata().file_metadata();
+    let schema = meta.schema_descr();
+    let names: Vec<String> = schema.columns().iter().map(|c| c.path().string()).collect();
+    // A date column must hold numbers.
+    for (k, c) in schema.columns().iter().enumerate() {
+        let is_date =
+            chrono::NaiveDate::parse_from_str(&names[k], &spec.columns.date_format).is_ok();
+        let numeric = matches!(
+            c.physical_type(),
+            parquet::basic::Type::FLOAT
+                | parquet::basic::Type::DOUBLE
+                | parquet::basic::Type::INT32
+                | parquet::basic::Type::INT64
+        );
+        if is_date && !numeric {
+            return Err(err(
+                file,
+                format!("column `{}`", names[k]),
+                format!(
+                    "the date column `{}` holds {:?} values (text or bytes), not numbers",
+                    names[k],
+                    c.physical_type()
+                ),
+                "write the displacements as float or double columns (e.g. pyarrow float64)",
+            ));
+        }
+        if c.max_rep_level() > 0 {
+            return Err(err(
+                file,
+                format!("column `{}`", names[k]),
+                "a repeated (list) column: one value per point and column is expected",
+                "write one flat column per acquisition date",
+            ));
+        }
+    }
+    let geo = meta
+        .key_value_metadata()
+        .and_then(|kv| kv.iter().find(|k| k.key == "geo"))
+        .and_then(|k| k.value.as_deref())
+        .and_then(geo_metadata);
+    let has_xy = names.contains(&spec.columns.x) && names.contains(&spec.columns.y);
+    let geometry = match &geo {
+        Some((col, _)) if !has_xy => names.iter().position(|n| n == col),
+        _ => None,
+    };
+    let crs = match (geometry, &geo) {
+        (Some(_), Some((_, declared))) => {
+            let key = format!("datasets[{i}].crs");
+            let stated = Stated {
+                crs: &spec.crs,
+                given: spec.crs_given,
+                key: &key,
+            };
+            settle_crs(&stated, file, "", *declared, warnings)?
+        }
+        _ => Crs::parse(&spec.crs).map_err(|e| {
+            err(
+                file,
+                format!("datasets[{i}].crs"),
+                e.to_string(),
+                "use an EPSG code such as \"EPSG:4326\"",
+            )
+        })?,
+    };
+    Ok(ParquetPoints {
+        reader,
+        geometry,
+        crs,
+    })
+}
+
+/// One decoded column of a row group.
+enum Col {
+    Num(Vec<f64>),
+    Int(Vec<Option<i64>>),
+    Bytes(Vec<Option<Vec<u8>>>),
+    Bool(Vec<Option<bool>>),
+    Other,
+}
+
+/// Every value of a column chunk, None where null.
+fn read_all<T: DataType>(
+    r: &mut ColumnReaderImpl<T>,
+    n: usize,
+    max_def: i16,
+) -> parquet::errors::Result<Vec<Option<T::T>>> {
+    let mut values = Vec::with_capacity(n);
+    let mut defs = Vec::with_capacity(n);
+    let mut records = 0;
+    while records < n {
+        let (r_read, _, _) = r.read_records(n - records, Some(&mut defs), None, &mut values)?;
+        if r_read == 0 {
+            break;
+        }
+        records += r_read;
+    }
+    if max_def == 0 {
+        return Ok(values.into_iter().map(Some).collect());
+    }
+    let mut it = values.into_iter();
+    Ok(defs
+        .iter()
+        .map(|&d| if d == max_def { it.next() } else { None })
+        .collect())
+}
+
+fn decode(reader: ColumnReader, n: usize, max_def: i16) -> parquet::errors::Result<Col> {
+    let nan = |v: Option<f64>| v.unwrap_or(f64::NAN);
+    Ok(match reader {
+        ColumnReader::DoubleColumnReader(mut r) => {
+            Col::Num(read_all(&mut r, n, max_def)?.into_iter().map(nan).collect())
+        }
+        ColumnReader::FloatColumnReader(mut r) => Col::Num(
+            read_all(&mut r, n, max_def)?
+                .into_iter()
+                .map(|v| nan(v.map(f64::from)))
+                .collect(),
+        ),
+        ColumnReader::Int32ColumnReader(mut r) => Col::Int(
+            read_all(&mut r, n, max_def)?
+                .into_iter()
+                .map(|v| v.map(i64::from))
+                .collect(),
+        ),
+        ColumnReader::Int64ColumnReader(mut r) => Col::Int(read_all(&mut r, n, max_def)?),
+        ColumnReader::ByteArrayColumnReader(mut r) => Col::Bytes(
+            read_all(&mut r, n, max_def)?
+                .into_iter()
+                .map(|v| v.map(|b| b.data().to_vec()))
+                .collect(),
+        ),
+        ColumnReader::BoolColumnReader(mut r) => Col::Bool(read_all(&mut r, n, max_def)?),
+        _ => Col::Other,
+    })
+}
+
+/// x, y of an ISO WKB point (Z/M ignored; the flag says whether there were any).
+fn wkb_point(b: &[u8]) -> Result<(f64, f64, bool), String> {
+    let le = match b.first() {
+        Some(1) => true,
+        Some(0) => false,
+        _ => return Err("the geometry is not WKB".into()),
+    };
+    let word = |at: usize| -> Option<[u8; 8]> { b.get(at..at + 8)?.try_into().ok() };
+    let t = b.get(1..5).ok_or("the geometry (WKB) is cut short")?;
+    let t: [u8; 4] = t.try_into().map_err(|_| "bad WKB")?;
+    let t = if le {
+        u32::from_le_bytes(t)
+    } else {
+        u32::from_be_bytes(t)
+    };
+    let base = (t & 0x0FFF_FFFF) % 1000;
+    if base != 1 {
+        return Err(format!("geometry of WKB type {base} is not a point"));
+    }
+    let f = |w: [u8; 8]| {
+        if le {
+            f64::from_le_bytes(w)
+        } else {
+            f64::from_be_bytes(w)
+        }
+    };
+    let x = f(word(5).ok_or("the geometry (WKB) is cut short")?);
+    let y = f(word(13).ok_or("the geometry (WKB) is cut short")?);
+    Ok((x, y, t > 1000 || t & 0xC000_0000 != 0))
+}
+
+/// Stream the row groups as CSV rows.
+fn produce(
+    p: &ParquetPoints,
+    xy: &(String, String),
+    file: &Path,
+    sink: &mut Sink,
+    zm: &std::sync::atomic::AtomicBool,
+) -> Result<(), InputError> {
+    let schema = p.reader.metadata().file_metadata().schema_descr();
+    let names: Vec<String> = schema.columns().iter().map(|c| c.path().string()).collect();
+    let max_defs: Vec<i16> = schema.columns().iter().map(|c| c.max_def_level()).collect();
+    // The geometry column is not an attribute; with it, x and y come last.
+    let attrs: Vec<usize> = (0..names.len())
+        .filter(|&k| Some(k) != p.geometry)
+        .collect();
+    let (h, keep) = match p.geometry {
+        Some(_) => {
+            let attr_names: Vec<String> = attrs.iter().map(|&k| names[k].clone()).collect();
+            let (h, keep) = header(&attr_names, xy);
+            (h, keep.into_iter().map(|k| attrs[k]).collect::<Vec<_>>())
+        }
+        None => (names.clone(), attrs),
+    };
+    if !sink.row(&h) {
+        return Ok(());
+    }
+    let mut row0 = 0usize;
+    for g in 0..p.reader.num_row_groups() {
+        let rg = p
+            .reader
+            .get_row_group(g)
+            .map_err(|e| damaged(file, format!("row group {g}"), e))?;
+        let n = usize::try_from(rg.metadata().num_rows()).unwrap_or(0);
+        let mut cols = Vec::with_capacity(names.len());
+        for k in 0..names.len() {
+            let needed = keep.contains(&k) || Some(k) == p.geometry;
+            let col = if needed {
+                let r = rg.get_column_reader(k).map_err(|e| {
+                    damaged(file, format!("row group {g}, column `{}`", names[k]), e)
+                })?;
+                decode(r, n, max_defs[k]).map_err(|e| {
+                    damaged(file, format!("row group {g}, column `{}`", names[k]), e)
+                })?
+            } else {
+                Col::Other
+            };
+            cols.push(col);
+        }
+        for r in 0..n {
+            for &k in &keep {
+                match &cols[k] {
+                    Col::Num(v) => sink.num(v[r]),
+                    Col::Int(v) => sink.int(v[r]),
+                    Col::Bytes(v) => sink.text(v[r].as_deref().unwrap_or_default()),
+                    Col::Bool(v) => sink.text(match v[r] {
+                        Some(true) => b"true",
+                        Some(false) => b"false",
+                        None => b"",
+                    }),
+                    Col::Other => sink.text(b""),
+                }
+            }
+            if let Some(gc) = p.geometry {
+                let loc = || format!("row {}, column `{}`", row0 + r, names[gc]);
+                let Col::Bytes(v) = &cols[gc] else {
+                    return Err(err(
+                        file,
+                        loc(),
+                        "the geometry column does not hold WKB bytes",
+                        "write the geometry as WKB (GeoParquet)",
+                    ));
+                };
+                let b = v[r].as_deref().ok_or_else(|| {
+                    err(
+                        file,
+                        loc(),
+                        "the point has no geometry",
+                        "every point needs its position",
+                    )
+                })?;
+                let (x, y, has_zm) = wkb_point(b)
+                    .map_err(|m| err(file, loc(), m, "the geometry column must hold points"))?;
+                if has_zm {
+                    zm.store(true, std::sync::atomic::Ordering::Relaxed);
+                }
+                sink.num(x);
+                sink.num(y);
+            }
+            if !sink.end() {
+                return Ok(());
+            }
+        }
+        row0 += n;
+    }
+    Ok(())
+}
+
+/// Read the Parquet points of dataset `spec` (see [`super::points::read_points`]).
+pub fn read(
+    p: ParquetPoints,
+    spec: &DatasetSpec,
+    to_analysis: &Transformer,
+    associate: &(dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
+    warnings: &mut Warnings,
+) -> Result<super::points::Dataset, InputError> {
+    let naming = Naming {
+        label: String::new(),
+        noun: "row",
+        offset: 2,
+    };
+    let xy = (spec.columns.x.clone(), spec.columns.y.clone());
+    let file = spec.path.clone();
+    let geographic = p.crs.is_geographic();
+    super::gis_points::read_stream(
+        spec,
+        geographic,
+        &naming,
+        to_analysis,
+        associate,
+        warnings,
+        move |sink, zm| produce(&p, &xy, &file, sink, zm),
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn geoparquet_metadata_gives_the_column_and_crs() {
+        let m = r#"{"version":"1.0.0","primary_column":"geometry","columns":{"geometry":
+            {"encoding":"WKB","geometry_types":["Point"],
+             "crs":{"id":{"authority":"EPSG","code":32631}}}}}"#;
+        assert_eq!(geo_metadata(m), Some(("geometry".into(), Some(32631))));
+        let no_crs = r#"{"primary_column":"g","columns":{"g":{"encoding":"WKB"}}}"#;
+        assert_eq!(geo_metadata(no_crs), Some(("g".into(), Some(4326))));
+        let null_crs = r#"{"primary_column":"g","columns":{"g":{"encoding":"WKB","crs":null}}}"#;
+        assert_eq!(geo_metadata(null_crs), Some(("g".into(), None)));
+    }
+
+    #[test]
+    fn wkb_points_read_in_both_byte_orders() {
+        let mut le = vec![1u8];
+        le.extend_from_slice(&1u32.to_le_bytes());
+        le.extend_from_slice(&3.5f64.to_le_bytes());
+        le.extend_from_slice(&(-2.0f64).to_le_bytes());
+        assert_eq!(wkb_point(&le), Ok((3.5, -2.0, false)));
+        let mut be = vec![0u8];
+        be.extend_from_slice(&1001u32.to_be_bytes());
+        for v in [1.0f64, 2.0, 9.0] {
+            be.extend_from_slice(&v.to_be_bytes());
+        }
+        assert_eq!(wkb_point(&be), Ok((1.0, 2.0, true)));
+        let mut poly = vec![1u8];
+        poly.extend_from_slice(&3u32.to_le_bytes());
+        assert!(wkb_point(&poly).unwrap_err().contains("not a point"));
+    }
+}
