@@ -23,7 +23,7 @@ use chrono::NaiveDate;
 
 /// Code of a missing epoch.
 pub const MISSING: i16 = i16::MIN;
-/// [`Dataset::series_at`] of a point whose series was dropped.
+/// Series position of a point whose series was dropped (see [`Dataset::drop_series`]).
 pub const NO_SERIES: u32 = u32::MAX;
 /// Largest code magnitude.
 const MAX_CODE: f64 = 32_767.0;
