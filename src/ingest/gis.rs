@@ -386,15 +386,6 @@ pub(crate) mod gpkg {
 
     use super::*;
 
-    fn err(
-        file: &Path,
-        loc: impl Into<String>,
-        what: impl Into<String>,
-        fix: impl Into<String>,
-    ) -> InputError {
-        InputError::new(file, loc, what, fix)
-    }
-
     /// One feature layer: table, geometry column, srs_id.
     pub(crate) struct Layer {
         pub(crate) table: String,
@@ -408,14 +399,14 @@ pub(crate) mod gpkg {
             rusqlite::Error::SqliteFailure(f, _) if f.code == rusqlite::ErrorCode::NotADatabase
         );
         if not_db {
-            err(
+            InputError::new(
                 file,
                 "",
                 "not a GeoPackage: the file is not an SQLite database",
                 "export the footprints again as GeoPackage (.gpkg), or give the file its real extension",
             )
         } else {
-            err(
+            InputError::new(
                 file,
                 "",
                 format!("cannot read the GeoPackage: {e}"),
@@ -433,7 +424,7 @@ pub(crate) mod gpkg {
             )
             .map_err(|e| match e {
                 rusqlite::Error::SqliteFailure(..) if e.to_string().contains("no such table") => {
-                    err(
+                    InputError::new(
                         file,
                         "",
                         "not a GeoPackage: an SQLite file without the gpkg_contents and \
@@ -472,7 +463,7 @@ pub(crate) mod gpkg {
             Some(w) => {
                 let n = layers.len();
                 layers.into_iter().find(|l| l.table == w).ok_or_else(|| {
-                    err(
+                    InputError::new(
                         file,
                         format!("key {key}"),
                         format!(
@@ -488,13 +479,13 @@ pub(crate) mod gpkg {
                 })
             }
             None if layers.len() == 1 => Ok(layers.into_iter().next().expect("one layer")),
-            None if layers.is_empty() => Err(err(
+            None if layers.is_empty() => Err(InputError::new(
                 file,
                 "",
                 "the GeoPackage has no feature layer",
                 "export the footprints polygons into it",
             )),
-            None => Err(err(
+            None => Err(InputError::new(
                 file,
                 "",
                 format!(
@@ -625,7 +616,7 @@ pub(crate) mod gpkg {
                             }
                             Ok(None) => {}
                             Err(e) => {
-                                return Err(err(
+                                return Err(InputError::new(
                                     file,
                                     format!("{lloc}, feature {fid}"),
                                     e,
@@ -643,7 +634,7 @@ pub(crate) mod gpkg {
         }
         drop(rows);
         if !any {
-            return Err(err(
+            return Err(InputError::new(
                 file,
                 &lloc,
                 "the layer has no features",
@@ -663,15 +654,6 @@ pub(crate) mod shp {
     use shapefile::{PolygonRing, Shape};
 
     use super::*;
-
-    fn err(
-        file: &Path,
-        loc: impl Into<String>,
-        what: impl Into<String>,
-        fix: impl Into<String>,
-    ) -> InputError {
-        InputError::new(file, loc, what, fix)
-    }
 
     /// Outer rings start a polygon; inner rings are holes of the polygon before them.
     fn polygons<P>(
@@ -752,7 +734,7 @@ pub(crate) mod shp {
                 return Ok(None);
             }
             Err(e) => {
-                return Err(err(
+                return Err(InputError::new(
                     &prj,
                     "",
                     format!(
@@ -780,7 +762,7 @@ pub(crate) mod shp {
                 );
                 Ok(None)
             }
-            None => Err(err(
+            None => Err(InputError::new(
                 &prj,
                 "",
                 format!(
@@ -801,7 +783,7 @@ pub(crate) mod shp {
         let actual = std::fs::metadata(file).map(|m| m.len()).unwrap_or(0);
         let declared = u64::try_from(header_words).unwrap_or(0) * 2;
         if actual < declared {
-            return Err(err(
+            return Err(InputError::new(
                 file,
                 "",
                 format!(
@@ -820,13 +802,13 @@ pub(crate) mod shp {
     ) -> Result<(Vec<RawStructure>, Crs), InputError> {
         let file = spec.path.as_path();
         let open_err = |e: shapefile::Error| match e {
-            shapefile::Error::MissingDbf => err(
+            shapefile::Error::MissingDbf => InputError::new(
                 &file.with_extension("dbf"),
                 "",
                 "the Shapefile's .dbf (its attribute table) is missing",
                 "copy the .dbf that came with the .shp beside it (same name)",
             ),
-            e => err(
+            e => InputError::new(
                 file,
                 "",
                 format!("cannot read the Shapefile: {e}"),
@@ -851,7 +833,7 @@ pub(crate) mod shp {
             n += 1;
             let loc = format!("feature {i}");
             let (shape, record) = item.map_err(|e| {
-                err(
+                InputError::new(
                     file,
                     &loc,
                     format!(
@@ -861,7 +843,7 @@ pub(crate) mod shp {
                 )
             })?;
             let (geometry, zm) = shape_geometry(&shape).map_err(|e| {
-                err(
+                InputError::new(
                     file,
                     &loc,
                     e,
@@ -877,7 +859,7 @@ pub(crate) mod shp {
             check.feature(i, &feature)?;
         }
         if n == 0 {
-            return Err(err(
+            return Err(InputError::new(
                 file,
                 "",
                 "the Shapefile has no features",
@@ -898,17 +880,8 @@ pub(crate) mod fgb {
 
     use super::*;
 
-    fn err(
-        file: &Path,
-        loc: impl Into<String>,
-        what: impl Into<String>,
-        fix: impl Into<String>,
-    ) -> InputError {
-        InputError::new(file, loc, what, fix)
-    }
-
     fn damaged(file: &Path, loc: &str, e: impl std::fmt::Display) -> InputError {
-        err(
+        InputError::new(
             file,
             loc,
             format!("cannot read the FlatGeobuf file: {e}"),
@@ -1049,7 +1022,7 @@ pub(crate) mod fgb {
             i += 1;
         }
         if i == 0 {
-            return Err(err(
+            return Err(InputError::new(
                 file,
                 &lloc,
                 "the FlatGeobuf file has no features",

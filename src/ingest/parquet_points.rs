@@ -40,12 +40,8 @@ pub struct ParquetPoints {
     pub crs: Crs,
 }
 
-fn err(file: &Path, loc: impl Into<String>, what: impl Into<String>, fix: &str) -> InputError {
-    InputError::new(file, loc, what, fix)
-}
-
 fn damaged(file: &Path, loc: impl Into<String>, e: impl std::fmt::Display) -> InputError {
-    err(
+    InputError::new(
         file,
         loc,
         format!("cannot read the Parquet file: {e}"),
@@ -103,7 +99,7 @@ pub fn open(
                 | parquet::basic::Type::INT64
         );
         if is_date && !numeric {
-            return Err(err(
+            return Err(InputError::new(
                 file,
                 format!("column `{}`", names[k]),
                 format!(
@@ -115,7 +111,7 @@ pub fn open(
             ));
         }
         if c.max_rep_level() > 0 {
-            return Err(err(
+            return Err(InputError::new(
                 file,
                 format!("column `{}`", names[k]),
                 "a repeated (list) column: one value per point and column is expected",
@@ -144,7 +140,7 @@ pub fn open(
             settle_crs(&stated, file, "", *declared, warnings)?
         }
         _ => Crs::parse(&spec.crs).map_err(|e| {
-            err(
+            InputError::new(
                 file,
                 format!("datasets[{i}].crs"),
                 e.to_string(),
@@ -320,7 +316,7 @@ fn produce(
             if let Some(gc) = p.geometry {
                 let loc = || format!("row {}, column `{}`", row0 + r, names[gc]);
                 let Col::Bytes(v) = &cols[gc] else {
-                    return Err(err(
+                    return Err(InputError::new(
                         file,
                         loc(),
                         "the geometry column does not hold WKB bytes",
@@ -328,15 +324,16 @@ fn produce(
                     ));
                 };
                 let b = v[r].as_deref().ok_or_else(|| {
-                    err(
+                    InputError::new(
                         file,
                         loc(),
                         "the point has no geometry",
                         "every point needs its position",
                     )
                 })?;
-                let (x, y, has_zm) = wkb_point(b)
-                    .map_err(|m| err(file, loc(), m, "the geometry column must hold points"))?;
+                let (x, y, has_zm) = wkb_point(b).map_err(|m| {
+                    InputError::new(file, loc(), m, "the geometry column must hold points")
+                })?;
                 if has_zm {
                     zm.store(true, std::sync::atomic::Ordering::Relaxed);
                 }
