@@ -20,7 +20,7 @@ use rusqlite::types::Value as Sql;
 
 use crate::results::StructureResult;
 
-use super::PointRow;
+use super::{PointRow, rtree_pack};
 
 /// The file name inside the output folder.
 pub const FILE: &str = "results.gpkg";
@@ -419,7 +419,8 @@ impl Gpkg {
     }
 
     /// Write one layer: its table, its features (fid 1, 2, ... in order), its metadata rows and
-    /// its R-tree. Returns the number of features.
+    /// its R-tree, packed in one pass once every feature is in (output::rtree_pack) rather than
+    /// grown one insertion at a time. Returns the number of features.
     pub fn write_layer(
         &mut self,
         spec: &LayerSpec<'_>,
@@ -442,9 +443,7 @@ impl Gpkg {
             "INSERT INTO {t} VALUES ({})",
             marks.trim_end_matches(',')
         ))?;
-        let mut index = self
-            .conn
-            .prepare(&format!("INSERT INTO {rtree} VALUES (?,?,?,?,?)"))?;
+        let mut index = Vec::new();
         let mut extent: Option<Envelope> = None;
         let mut n = 0u64;
         for f in features {
@@ -462,7 +461,7 @@ impl Gpkg {
             let head = [Sql::Integer(fid), Sql::Blob(f.geom)];
             insert.execute(rusqlite::params_from_iter(head.iter().chain(&f.values)))?;
             if let Some(e) = f.envelope {
-                index.execute(rusqlite::params![fid, e[0], e[1], e[2], e[3]])?;
+                index.push(rtree_pack::Entry::new(fid, e));
                 let x = extent.get_or_insert(e);
                 *x = [
                     x[0].min(e[0]),
@@ -472,7 +471,8 @@ impl Gpkg {
                 ];
             }
         }
-        drop((insert, index));
+        drop(insert);
+        rtree_pack::write(&self.conn, &rtree_name(spec.name), index)?;
         let [min_x, max_x, min_y, max_y] = extent.map_or([None; 4], |e| e.map(Some));
         self.conn.execute(
             "INSERT INTO gpkg_contents VALUES (?1, 'features', ?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",

@@ -9,6 +9,7 @@
 
 pub mod gpkg;
 pub mod guard;
+pub mod rtree_pack;
 pub mod safe_names;
 
 use std::io::Write;

@@ -114,6 +114,48 @@ fn results_gpkg_opens_in_gdal_with_both_layers_crs_counts_and_values() {
         "{idx}"
     );
 
+    // The packed R-trees pass SQLite's own consistency check (R*Tree module `rtreecheck`), and
+    // a window query through GDAL's spatial filter (which reads the index first) lists exactly
+    // the points of points.csv inside the window.
+    for layer in ["structures", "points"] {
+        let sql = format!("SELECT rtreecheck('rtree_{layer}_geom') AS c");
+        let check = ogrinfo(&["-ro", gpkg, "-sql", &sql]).unwrap();
+        assert!(
+            check.lines().any(|l| l.trim() == "c (String) = ok"),
+            "{check}"
+        );
+    }
+    let points_csv = std::fs::read_to_string(out.join("points.csv")).unwrap();
+    let mut rows = points_csv.lines();
+    let head: Vec<&str> = rows.next().unwrap().split(',').collect();
+    let col = |n: &str| head.iter().position(|h| *h == n).unwrap();
+    let (lon_c, lat_c) = (col("lon"), col("lat"));
+    let lonlat: Vec<(f64, f64)> = rows
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (f[lon_c].parse().unwrap(), f[lat_c].parse().unwrap())
+        })
+        .collect();
+    let (lon0, lat0) = lonlat[lonlat.len() / 3];
+    let window = [lon0 - 0.0004, lat0 - 0.0003, lon0 + 0.0007, lat0 + 0.0005];
+    let inside = lonlat
+        .iter()
+        .filter(|(x, y)| *x >= window[0] && *x <= window[2] && *y >= window[1] && *y <= window[3])
+        .count();
+    assert!(
+        inside > 5 && inside < csv_rows,
+        "a window holding some points: {inside}"
+    );
+    let w: Vec<String> = window.iter().map(|v| format!("{v:.9}")).collect();
+    // Features listed, not the summary's "Feature Count" (GDAL counts index entries there, whose
+    // boxes are rounded outward to 32-bit floats).
+    let spat = ogrinfo(&["-ro", "-spat", &w[0], &w[1], &w[2], &w[3], gpkg, "points"]).unwrap();
+    let listed = spat
+        .lines()
+        .filter(|l| l.starts_with("OGRFeature(points):"))
+        .count();
+    assert_eq!(listed, inside, "{spat}");
+
     // Field values and footprints of a few structures against results.json / results.geojson.
     let geojson: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out.join("results.geojson")).unwrap())
