@@ -16,6 +16,8 @@
 //! filled polygons, whose winding is the data's, are never merged. Anything else is copied
 //! unchanged.
 
+use super::svg_element::{Element, Tag};
+
 /// The SVG with runs of alike simple shapes merged into one `<path>` each.
 pub fn merge_runs(svg: &str) -> String {
     let mut out = String::with_capacity(svg.len());
@@ -136,62 +138,59 @@ impl Shape<'_> {
 
 /// The paint and geometry of one mergeable element on one line; `None` otherwise.
 fn shape(line: &str) -> Option<(Paint<'_>, Shape<'_>)> {
-    let body = line.trim_end().strip_prefix('<')?.strip_suffix("/>")?;
-    let (tag, attrs) = body.split_once(' ')?;
-    let attrs = attributes(attrs)?;
-    let get = |key: &str| attrs.iter().find(|(k, _)| *k == key).map(|(_, v)| *v);
-    let geometry: &[&str] = match tag {
-        "line" => &["x1", "y1", "x2", "y2"],
-        "polyline" | "polygon" => &["points"],
-        "rect" => &["x", "y", "width", "height"],
-        "circle" => &["cx", "cy", "r"],
-        _ => return None,
-    };
-    let paint_keys = ["fill", "stroke", "stroke-width", "opacity"];
-    if attrs
-        .iter()
-        .any(|(k, _)| !geometry.contains(k) && !paint_keys.contains(k))
-        || get("opacity") != Some("1")
-    {
+    let e = Element::parse(line)?;
+    if e.get("opacity") != Some("1") {
         return None;
     }
     // `<line>` has no fill; the other shapes must name theirs (the SVG default is black).
-    let fill = if tag == "line" { "none" } else { get("fill")? };
-    let stroke = get("stroke").unwrap_or("none");
+    let fill = if e.tag == Tag::Line {
+        "none"
+    } else {
+        e.get("fill")?
+    };
+    let stroke = e.get("stroke").unwrap_or("none");
     let stroked = stroke != "none";
     let filled = fill != "none";
-    if stroked == filled || (filled && tag == "polygon") {
+    if stroked == filled || (filled && e.tag == Tag::Polygon) {
         return None;
     }
     let paint = Paint {
         fill,
         stroke,
         stroke_width: if stroked {
-            get("stroke-width").unwrap_or("1")
+            e.get("stroke-width").unwrap_or("1")
         } else {
             "0"
         },
     };
-    let number = |key: &str| get(key).filter(|v| is_number(v));
-    let value = |key: &str| -> Option<f64> { number(key)?.parse().ok() };
-    let shape = match tag {
-        "line" => Shape::Line([number("x1")?, number("y1")?, number("x2")?, number("y2")?]),
-        "rect" => {
-            let r = [value("x")?, value("y")?, value("width")?, value("height")?];
+    let shape = match e.tag {
+        Tag::Line => Shape::Line([
+            e.number("x1")?,
+            e.number("y1")?,
+            e.number("x2")?,
+            e.number("y2")?,
+        ]),
+        Tag::Rect => {
+            let r = [
+                e.value("x")?,
+                e.value("y")?,
+                e.value("width")?,
+                e.value("height")?,
+            ];
             if r[2] < 0.0 || r[3] < 0.0 {
                 return None;
             }
             Shape::Rect(r)
         }
-        "circle" => {
-            let c = [value("cx")?, value("cy")?, value("r")?];
+        Tag::Circle => {
+            let c = [e.value("cx")?, e.value("cy")?, e.value("r")?];
             if c[2] <= 0.0 {
                 return None;
             }
             Shape::Circle(c)
         }
-        _ => {
-            let points = get("points")?;
+        Tag::Polyline | Tag::Polygon => {
+            let points = e.get("points")?;
             // `x,y` pairs of plain numbers separated by spaces.
             let valid = points
                 .bytes()
@@ -203,37 +202,10 @@ fn shape(line: &str) -> Option<(Paint<'_>, Shape<'_>)> {
             if !valid || points.trim().is_empty() {
                 return None;
             }
-            Shape::Points(points, tag == "polygon")
+            Shape::Points(points, e.tag == Tag::Polygon)
         }
     };
     Some((paint, shape))
-}
-
-/// A plain decimal number as plotters writes coordinates (`-12`, `3.5`): only digits, `.` and
-/// `-`, so nothing that could change meaning when copied into path data.
-fn is_number(s: &str) -> bool {
-    s.bytes().any(|b| b.is_ascii_digit())
-        && s.bytes()
-            .all(|b| b.is_ascii_digit() || b == b'.' || b == b'-')
-}
-
-/// `key="value"` pairs (values without entities, as plotters writes numbers and colours).
-pub(super) fn attributes(s: &str) -> Option<Vec<(&str, &str)>> {
-    let mut out = Vec::with_capacity(8);
-    let mut rest = s.trim();
-    while !rest.is_empty() {
-        let eq = rest.find('=')?;
-        let key = rest[..eq].trim();
-        let after = rest[eq + 1..].strip_prefix('"')?;
-        let close = after.find('"')?;
-        let value = &after[..close];
-        if value.contains('&') {
-            return None;
-        }
-        out.push((key, value));
-        rest = after[close + 1..].trim_start();
-    }
-    Some(out)
 }
 
 #[cfg(test)]

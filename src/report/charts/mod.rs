@@ -30,6 +30,7 @@ pub mod palette;
 pub mod pdf_art;
 pub mod portfolio_map;
 pub mod profile;
+mod svg_element;
 pub mod timeseries;
 pub mod works;
 

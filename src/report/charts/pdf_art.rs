@@ -21,6 +21,8 @@
 
 use std::fmt::Write;
 
+use super::svg_element::{self, Tag, is_number};
+
 /// The drawing `art` (an SVG as [`super::labels::split`] leaves it) as a one-page PDF of
 /// `width` × `height` units; `None` when the SVG uses anything outside the accepted form.
 pub fn to_pdf(art: &str, width: f64, height: f64) -> Option<Vec<u8>> {
@@ -51,7 +53,7 @@ pub fn to_pdf(art: &str, width: f64, height: f64) -> Option<Vec<u8>> {
 
 /// The root element: `<svg width="W" height="H" [viewBox="0 0 W H"] [xmlns="…"]>`.
 fn check_root(line: &str, width: f64, height: f64) -> Option<()> {
-    let attrs = super::compact::attributes(line.strip_prefix("<svg ")?.strip_suffix('>')?)?;
+    let attrs = svg_element::attributes(line.strip_prefix("<svg ")?.strip_suffix('>')?)?;
     for (key, value) in attrs {
         let ok = match key {
             "width" => value.parse::<f64>().ok() == Some(width),
@@ -94,60 +96,49 @@ struct Element<'a> {
     width: &'a str,
 }
 
-/// One self-closing shape element as plotters writes it; `None` for anything else.
+/// One self-closing shape element as plotters writes it ([`super::svg_element`]), opaque
+/// (`opacity` absent or 1), with `#RRGGBB` or `none` paint; `None` for anything else.
 fn parse_element(line: &str) -> Option<Element<'_>> {
-    let body = line.strip_prefix('<')?.strip_suffix("/>")?;
-    let (tag, attrs) = body.split_once(' ')?;
-    let attrs = super::compact::attributes(attrs)?;
-    let get = |key: &str| attrs.iter().find(|(k, _)| *k == key).map(|(_, v)| *v);
-    let keys: &[&str] = match tag {
-        "line" => &["x1", "y1", "x2", "y2"],
-        "polyline" | "polygon" => &["points"],
-        "rect" => &["x", "y", "width", "height"],
-        "circle" => &["cx", "cy", "r"],
-        _ => return None,
-    };
-    let paint_keys = ["fill", "stroke", "stroke-width", "opacity"];
-    if attrs
-        .iter()
-        .any(|(k, _)| !keys.contains(k) && !paint_keys.contains(k))
-        || get("opacity").is_some_and(|o| o != "1")
-    {
+    let e = svg_element::Element::parse(line)?;
+    if e.get("opacity").is_some_and(|o| o != "1") {
         return None;
     }
     // SVG defaults: black fill (none for a line, which has no inside), no stroke, width 1.
-    let fill = match (tag, get("fill")) {
-        ("line", _) => None,
+    let fill = match (e.tag, e.get("fill")) {
+        (Tag::Line, _) => None,
         (_, None) => Some([0, 0, 0]),
         (_, Some(f)) => paint(f)?,
     };
-    let stroke = paint(get("stroke").unwrap_or("none"))?;
-    let width = get("stroke-width").unwrap_or("1");
+    let stroke = paint(e.get("stroke").unwrap_or("none"))?;
+    let width = e.get("stroke-width").unwrap_or("1");
     if !is_number(width) || width.starts_with('-') {
         return None;
     }
-    let number = |key: &str| get(key).filter(|v| is_number(v));
-    let four = |k: &[&str]| -> Option<[&str; 4]> {
-        Some([number(k[0])?, number(k[1])?, number(k[2])?, number(k[3])?])
+    let four = |k: [&str; 4]| -> Option<[&str; 4]> {
+        Some([
+            e.number(k[0])?,
+            e.number(k[1])?,
+            e.number(k[2])?,
+            e.number(k[3])?,
+        ])
     };
-    let geometry = match tag {
-        "line" => Geometry::Line(four(keys)?),
-        "rect" => {
-            let r = four(keys)?;
+    let geometry = match e.tag {
+        Tag::Line => Geometry::Line(four(["x1", "y1", "x2", "y2"])?),
+        Tag::Rect => {
+            let r = four(["x", "y", "width", "height"])?;
             if r[2].starts_with('-') || r[3].starts_with('-') {
                 return None;
             }
             Geometry::Rect(r)
         }
-        "circle" => {
-            let value = |key: &str| number(key)?.parse::<f64>().ok();
-            let c = [value("cx")?, value("cy")?, value("r")?];
+        Tag::Circle => {
+            let c = [e.value("cx")?, e.value("cy")?, e.value("r")?];
             if c[2] <= 0.0 {
                 return None;
             }
             Geometry::Circle(c)
         }
-        _ => Geometry::Points(get("points")?, tag == "polygon"),
+        Tag::Polyline | Tag::Polygon => Geometry::Points(e.get("points")?, e.tag == Tag::Polygon),
     };
     Some(Element {
         geometry,
@@ -415,15 +406,6 @@ fn num(v: f64) -> String {
     s
 }
 
-/// A plain decimal number as plotters writes coordinates (`-12`, `3.5`).
-fn is_number(s: &str) -> bool {
-    let digits = s.strip_prefix('-').unwrap_or(s);
-    !digits.is_empty()
-        && digits.bytes().any(|b| b.is_ascii_digit())
-        && digits.bytes().all(|b| b.is_ascii_digit() || b == b'.')
-        && digits.bytes().filter(|b| *b == b'.').count() <= 1
-}
-
 /// A complete one-page PDF around `content` (uncompressed: the report's PDF writer copies the
 /// page and compresses it there).
 fn document(content: &str, width: f64, height: f64) -> Vec<u8> {
@@ -570,6 +552,36 @@ mod tests {
             let offset: usize = entry[..10].parse().unwrap();
             assert!(text[offset..].starts_with(&format!("{} 0 obj", i + 1)));
         }
+    }
+
+    /// Every chart of the sample asset reports and of the sample overview, as the report
+    /// pipeline draws them, has the plain form and becomes a PDF drawing (none falls back to
+    /// the slower SVG).
+    #[test]
+    fn every_chart_plotters_draws_for_the_reports_becomes_a_pdf() {
+        use crate::report::render::ReportJob;
+        use crate::report::sample;
+        let (asset, charts) = sample::assessed_asset("sample").unwrap();
+        let (empty, empty_charts) = sample::insufficient_asset().unwrap();
+        let (overview, overview_charts) = sample::portfolio().unwrap();
+        let jobs = [
+            ReportJob::asset(asset, charts),
+            ReportJob::asset(empty, empty_charts),
+            ReportJob::portfolio(overview, overview_charts),
+        ];
+        let mut drawn = 0;
+        for job in jobs {
+            for (file, svg) in job.prepare().unwrap().charts {
+                let (art, labels) = crate::report::charts::labels::split(&svg)
+                    .unwrap_or_else(|| panic!("{file:?}: labels split"));
+                assert!(
+                    to_pdf(&art, labels.width, labels.height).is_some(),
+                    "{file:?} fell back to SVG"
+                );
+                drawn += 1;
+            }
+        }
+        assert!(drawn >= 5, "{drawn} charts");
     }
 
     #[test]
