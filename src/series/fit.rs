@@ -255,29 +255,14 @@ pub fn adjusted_se(se: f64, n: usize, n_eff: f64) -> Option<f64> {
     Some(se * ((n as f64 - 2.0) / (n_eff - 2.0)).sqrt())
 }
 
-/// OLS linear velocity with its standard error and the AR(1) adjustment.
+/// OLS linear velocity with its standard error and the AR(1) adjustment: the [`LineSummary`]
+/// (its fields are read through `Deref` and serialised in place, first), the significance test
+/// and the residuals.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct LinearFit {
-    /// Number of epochs.
-    pub n: usize,
-    /// Intercept at t = 0 (mm).
-    pub intercept_mm: f64,
-    /// Standard error of the intercept (mm).
-    pub se_intercept_mm: f64,
-    /// Velocity (mm/yr).
-    pub velocity_mm_per_yr: f64,
-    /// White-noise standard error of the velocity (mm/yr).
-    pub se_velocity_mm_per_yr: f64,
-    /// Residual standard deviation `s` (mm).
-    pub residual_sd_mm: f64,
-    /// Residual sum of squares (mm²).
-    pub rss_mm2: f64,
-    /// Lag-1 autocorrelation of the residuals.
-    pub lag1_autocorrelation: f64,
-    /// AR(1) effective sample size.
-    pub effective_n: f64,
-    /// AR(1)-adjusted SE of the velocity (mm/yr); `None` when n_eff ≤ 2 (not estimable).
-    pub se_velocity_adjusted_mm_per_yr: Option<f64>,
+    /// Line, standard errors, residual SD, r1, n_eff and adjusted SE.
+    #[serde(flatten)]
+    pub line: LineSummary,
     /// `v / SE_adj`.
     pub t_statistic_adjusted: Option<f64>,
     /// Two-sided p of `t_statistic_adjusted` with n_eff − 2 degrees of freedom.
@@ -319,16 +304,7 @@ pub fn fit_linear(t_yr: &[f64], d_mm: &[f64]) -> Result<LinearFit, FitError> {
     let t_adj = se_adj.and_then(|se| if se > 0.0 { Some(v / se) } else { None });
     let p_adj = t_adj.map(|t| super::stats::t_two_sided(t, l.effective_n - 2.0));
     Ok(LinearFit {
-        n: l.n,
-        intercept_mm: l.intercept_mm,
-        se_intercept_mm: l.se_intercept_mm,
-        velocity_mm_per_yr: v,
-        se_velocity_mm_per_yr: l.se_velocity_mm_per_yr,
-        residual_sd_mm: l.residual_sd_mm,
-        rss_mm2: l.rss_mm2,
-        lag1_autocorrelation: l.lag1_autocorrelation,
-        effective_n: l.effective_n,
-        se_velocity_adjusted_mm_per_yr: se_adj,
+        line: l,
         t_statistic_adjusted: t_adj,
         p_value_adjusted: p_adj,
         distinguishable_from_zero: se_adj.is_some_and(|se| v.abs() > 2.0 * se),
@@ -339,7 +315,7 @@ pub fn fit_linear(t_yr: &[f64], d_mm: &[f64]) -> Result<LinearFit, FitError> {
 /// The numbers of [`fit_linear`] without the residual series and the significance test: what a
 /// per-point velocity and period need, computed without allocating (the residuals are formed on
 /// the fly by the same expression, so every number equals [`fit_linear`]'s bit for bit).
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct LineSummary {
     /// Number of epochs.
     pub n: usize,
@@ -361,6 +337,13 @@ pub struct LineSummary {
     pub effective_n: f64,
     /// AR(1)-adjusted SE of the velocity (mm/yr); `None` when n_eff ≤ 2 (not estimable).
     pub se_velocity_adjusted_mm_per_yr: Option<f64>,
+}
+
+impl std::ops::Deref for LinearFit {
+    type Target = LineSummary;
+    fn deref(&self) -> &LineSummary {
+        &self.line
+    }
 }
 
 /// OLS straight line `d = a + v·t` with SE, AR(1) r1, n_eff and adjusted SE (as [`fit_linear`],
