@@ -58,9 +58,14 @@ pub struct Analysis {
 }
 
 impl Analysis {
-    /// What the reports render.
-    pub fn report_input(&self) -> crate::report::pipeline::ReportInput<'_> {
+    /// What the reports render, with the inputs' SHA-256 the run already computed
+    /// (`(path, hex)`).
+    pub fn report_input<'a>(
+        &'a self,
+        input_sha256: &'a [(PathBuf, String)],
+    ) -> crate::report::pipeline::ReportInput<'a> {
         crate::report::pipeline::ReportInput {
+            input_sha256,
             portfolio: &self.portfolio,
             structures: &self.inputs.structures,
             datasets: &self.inputs.datasets,
@@ -1313,7 +1318,16 @@ fn write_outputs(
     )?;
     // PDF reports (report::pipeline) read the detail files back from `d`.
     if !opts.no_reports {
-        crate::report::pipeline::render_reports(&a.report_input(), d, opts.jobs, opts.progress)?;
+        let sha256: Vec<(PathBuf, String)> = digests
+            .iter()
+            .map(|g| (g.path.clone(), g.sha256.clone()))
+            .collect();
+        crate::report::pipeline::render_reports(
+            &a.report_input(&sha256),
+            d,
+            opts.jobs,
+            opts.progress,
+        )?;
     }
     Ok(())
 }

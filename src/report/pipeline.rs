@@ -76,6 +76,9 @@ pub struct ReportInput<'a> {
     pub results: &'a Results,
     /// The assessment window.
     pub window: Window,
+    /// SHA-256 (hex) of the input files the run has already hashed, by path; a file not listed
+    /// is hashed here.
+    pub input_sha256: &'a [(std::path::PathBuf, String)],
 }
 
 /// Folder (inside the output folder) of the per-structure reports.
@@ -274,7 +277,8 @@ fn run_methods(a: &ReportInput) -> Vec<Method> {
 }
 
 /// Run-level report facts: names and people from `[report]`, the report date from the data
-/// (`analysis_date`, else the window end — never the clock), inputs with SHA-256 (hashed once),
+/// (`analysis_date`, else the window end — never the clock), inputs with SHA-256 (the run's own
+/// digests, see [`ReportInput::input_sha256`]),
 /// the assessment parameters and the method references.
 pub fn report_context(a: &ReportInput) -> Result<ReportContext> {
     let pf = &a.portfolio;
@@ -286,18 +290,24 @@ pub fn report_context(a: &ReportInput) -> Result<ReportContext> {
         .and_then(|d| NaiveDate::parse_from_str(d, "%Y-%m-%d").ok())
         .unwrap_or(a.window.end);
     let base = pf.file.parent();
+    let sha256 = |path: &std::path::Path| -> Result<String> {
+        match a.input_sha256.iter().find(|(p, _)| p == path) {
+            Some((_, hex)) => Ok(hex.clone()),
+            None => crate::output::sha256_file(path),
+        }
+    };
     let mut inputs = vec![InputFile {
         path: display_path(&pf.file, base),
-        sha256: crate::output::sha256_file(&pf.file)?,
+        sha256: sha256(&pf.file)?,
     }];
     inputs.push(InputFile {
         path: display_path(&pf.structures.path, base),
-        sha256: crate::output::sha256_file(&pf.structures.path)?,
+        sha256: sha256(&pf.structures.path)?,
     });
     for d in &pf.datasets {
         inputs.push(InputFile {
             path: display_path(&d.path, base),
-            sha256: crate::output::sha256_file(&d.path)?,
+            sha256: sha256(&d.path)?,
         });
     }
     let s = &pf.assessment;

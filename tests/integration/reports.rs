@@ -133,6 +133,15 @@ fn check_reports(out: &Path, r: &serde_json::Value) {
     assert!(out.join("portfolio.pdf").is_file());
     assert!(out.join("portfolio.json").is_file());
     let text_tools = have("pdftotext") && have("pdfinfo");
+    // The reports print the inputs' SHA-256 the run computed once for the manifest.
+    let manifest: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("manifest.json")).unwrap()).unwrap();
+    let hashed: Vec<&str> = manifest["inputs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|i| i["sha256"].as_str().unwrap())
+        .collect();
     for s in structures {
         let stem = s["report_file"].as_str().unwrap();
         let pdf = out.join("reports").join(format!("{stem}.pdf"));
@@ -142,6 +151,15 @@ fn check_reports(out: &Path, r: &serde_json::Value) {
             serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
         assert_eq!(model["structure"]["id"], s["id"]);
         assert_eq!(model["structure"]["name"], s["name"]);
+        let printed = model["provenance"]["inputs"].as_array().unwrap();
+        assert!(!printed.is_empty());
+        for i in printed {
+            let sha = i["sha256"].as_str().unwrap();
+            assert!(
+                hashed.contains(&sha),
+                "{stem}: {sha} is not in the manifest"
+            );
+        }
         // The plan map is always drawn from the pipeline's own footprint and points.
         assert_eq!(model["figures"]["map"]["available"], true, "{stem}");
         if !text_tools {
