@@ -249,6 +249,11 @@ impl<'a> FeatureCheck<'a> {
         self.out
     }
 
+    /// The run's warnings (for a reader's own notes while the check holds them).
+    pub fn warnings(&mut self) -> &mut Warnings {
+        self.warnings
+    }
+
     /// Validate feature number `i` (a GeoJSON `Feature` value) and keep its structure.
     pub fn feature(&mut self, i: usize, f: &Value) -> Result<(), InputError> {
         let (path, id_property, geographic, defaults) =

@@ -182,6 +182,44 @@ fn warn_zm(file: &Path, loc: &str, warnings: &mut Warnings) {
     }
 }
 
+/// One feature of a GIS layer (its attributes and its geometry as GeoJSON) through the same
+/// validation as a GeoJSON footprint.
+fn check_feature(
+    check: &mut FeatureCheck<'_>,
+    i: usize,
+    properties: serde_json::Map<String, Value>,
+    geometry: Value,
+) -> Result<(), InputError> {
+    let feature = json!({"type": "Feature", "properties": properties, "geometry": geometry});
+    check.feature(i, &feature)
+}
+
+/// The end every footprint reader shares: a layer of `features` features — none is refused,
+/// `what` naming it ("the layer", "the Shapefile", …) — and dropped Z/M values noted once
+/// (`loc` locates the layer, empty for a file of one layer).
+fn finish_layer(
+    mut check: FeatureCheck<'_>,
+    file: &Path,
+    loc: &str,
+    what: &str,
+    features: usize,
+    zm_seen: bool,
+) -> Result<Vec<RawStructure>, InputError> {
+    if features == 0 {
+        return Err(InputError::new(
+            file,
+            loc,
+            format!("{what} has no features"),
+            "a portfolio needs at least one structure",
+        ));
+    }
+    if zm_seen {
+        let at = if loc.is_empty() { "the layer" } else { loc };
+        warn_zm(file, at, check.warnings());
+    }
+    Ok(check.finish())
+}
+
 /// Integral numbers become JSON integers (an id of 12 reads as "12", as in GeoJSON).
 fn number_json(v: f64) -> Value {
     if v.fract() == 0.0 && v.abs() < 9.0e15 {
@@ -597,9 +635,9 @@ pub(crate) mod gpkg {
         )
         .in_layer(&layer.table);
         let mut zm_seen = false;
-        let mut any = false;
+        let mut features = 0usize;
         while let Some(row) = rows.next().map_err(|e| sql_err(file, e))? {
-            any = true;
+            features += 1;
             let mut fid = 0i64;
             let mut geometry = Value::Null;
             let mut props = serde_json::Map::new();
@@ -629,22 +667,15 @@ pub(crate) mod gpkg {
                     props.insert(n.clone(), sql_json(v));
                 }
             }
-            let feature = json!({"type": "Feature", "properties": props, "geometry": geometry});
-            check.feature(usize::try_from(fid).unwrap_or(0), &feature)?;
+            check_feature(
+                &mut check,
+                usize::try_from(fid).unwrap_or(0),
+                props,
+                geometry,
+            )?;
         }
         drop(rows);
-        if !any {
-            return Err(InputError::new(
-                file,
-                &lloc,
-                "the layer has no features",
-                "a portfolio needs at least one structure",
-            ));
-        }
-        let out = check.finish();
-        if zm_seen {
-            warn_zm(file, &lloc, warnings);
-        }
+        let out = finish_layer(check, file, &lloc, "the layer", features, zm_seen)?;
         Ok((out, crs))
     }
 }
@@ -855,21 +886,9 @@ pub(crate) mod shp {
                 .into_iter()
                 .map(|(k, v)| (k, field_json(v)))
                 .collect();
-            let feature = json!({"type": "Feature", "properties": props, "geometry": geometry});
-            check.feature(i, &feature)?;
+            check_feature(&mut check, i, props, geometry)?;
         }
-        if n == 0 {
-            return Err(InputError::new(
-                file,
-                "",
-                "the Shapefile has no features",
-                "a portfolio needs at least one structure",
-            ));
-        }
-        let out = check.finish();
-        if zm_seen {
-            warn_zm(file, "the layer", warnings);
-        }
+        let out = finish_layer(check, file, "", "the Shapefile", n, zm_seen)?;
         Ok((out, crs))
     }
 }
@@ -1017,26 +1036,10 @@ pub(crate) mod fgb {
             let geom = feature
                 .geometry()
                 .map_or(Value::Null, |g| geometry(&g, layer_type));
-            let value = json!({"type": "Feature", "properties": props.0, "geometry": geom});
-            check.feature(i, &value)?;
+            check_feature(&mut check, i, props.0, geom)?;
             i += 1;
         }
-        if i == 0 {
-            return Err(InputError::new(
-                file,
-                &lloc,
-                "the FlatGeobuf file has no features",
-                "a portfolio needs at least one structure",
-            ));
-        }
-        let out = check.finish();
-        if zm {
-            warn_zm(
-                file,
-                if lloc.is_empty() { "the layer" } else { &lloc },
-                warnings,
-            );
-        }
+        let out = finish_layer(check, file, &lloc, "the FlatGeobuf file", i, zm)?;
         Ok((out, crs))
     }
 }

@@ -62,6 +62,11 @@ new_case gis-gpkg-not-sqlite gpkg
 printf 'id,name\nH-1,House\n' > gis-gpkg-not-sqlite/structures.gpkg
 expect gis-gpkg-not-sqlite 2 "structures.gpkg" "not an SQLite database"
 
+new_case gis-gpkg-empty-layer gpkg
+rm gis-gpkg-empty-layer/structures.gpkg
+ogr2ogr -f GPKG gis-gpkg-empty-layer/structures.gpkg base/structures.geojson -nln structures -where "1 = 0"
+expect gis-gpkg-empty-layer 2 "structures.gpkg" "layer \`structures\`" "the layer has no features" "at least one structure"
+
 new_case gis-gpkg-mixed-geometry gpkg
 python3 - <<'PY'
 import json
