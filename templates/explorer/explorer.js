@@ -190,7 +190,7 @@
     if (selected) {
       const p = new Path2D();
       for (const ring of selected.footprint) ringPath(p, ring);
-      ctx.lineWidth = 4 * px; ctx.strokeStyle = "#0057d9"; ctx.stroke(p);
+      ctx.lineWidth = 2 * px; ctx.strokeStyle = "#0057d9"; ctx.stroke(p);
       // A marker so a small footprint stays findable at any zoom.
       const b = selected._bbox;
       const rad = Math.max((b[2] - b[0]) / 2, (b[3] - b[1]) / 2) + 8 * px;
@@ -232,6 +232,33 @@
       if ((yi > y) !== (yj > y) && x < ((xj - xi) * (y - yi)) / (yj - yi) + xi) inside = !inside;
     }
     return inside;
+  }
+  function insideAll(s, x, y) {
+    let inside = false;
+    for (const r of s.footprint) if (pointInRing(x, y, r)) inside = !inside;
+    return inside;
+  }
+  function edgeDistance(s, x, y) {
+    let best = Infinity;
+    for (const r of s.footprint) for (let k = 0; k + 3 < r.length; k += 2) {
+      const ax = r[k], ay = r[k + 1], bx = r[k + 2], by = r[k + 3];
+      const dx = bx - ax, dy = by - ay, l2 = dx * dx + dy * dy;
+      const t = l2 > 0 ? Math.max(0, Math.min(1, ((x - ax) * dx + (y - ay) * dy) / l2)) : 0;
+      best = Math.min(best, Math.hypot(x - ax - t * dx, y - ay - t * dy));
+    }
+    return best;
+  }
+  // The point of a 20 × 20 grid over the footprint that is inside and farthest from its edges.
+  function interiorPoint(s) {
+    const b = s._bbox;
+    let best = [s._cx, s._cy], bestD = -1;
+    for (let i = 0; i <= 20; i++) for (let j = 0; j <= 20; j++) {
+      const x = b[0] + (b[2] - b[0]) * i / 20, y = b[1] + (b[3] - b[1]) * j / 20;
+      if (!insideAll(s, x, y)) continue;
+      const d = edgeDistance(s, x, y);
+      if (d > bestD) { bestD = d; best = [x, y]; }
+    }
+    return best;
   }
   function hit(x, y) {
     const tol = 3 / view.scale;
@@ -413,8 +440,8 @@
       const rc = canvas.getBoundingClientRect();
       const b = s._bbox;
       const [sx, sy] = toScreen(s._cx, s._cy);
-      if (view.scale * Math.max(b[2] - b[0], b[3] - b[1]) < 12) {
-        const w = Math.max(b[2] - b[0], b[3] - b[1], 20) * 8;
+      if (view.scale * Math.max(b[2] - b[0], b[3] - b[1]) < 80) {
+        const w = Math.max(b[2] - b[0], b[3] - b[1], 10) * 4;
         fit([s._cx - w / 2, s._cy - w / 2, s._cx + w / 2, s._cy + w / 2]);
       } else if (sx < 0 || sy < 0 || sx > rc.width || sy > rc.height) {
         view.tx += rc.width / 2 - sx; view.ty += rc.height / 2 - sy;
@@ -597,6 +624,7 @@
   window.plinthExplorer = {
     shapeCount: () => shapesDrawn,
     screenPointOf: id => { const s = S.find(x => x.id === id); if (!s) return null; const rc = canvas.getBoundingClientRect(); const [x, y] = toScreen(s._cx, s._cy); return [rc.left + x, rc.top + y]; },
+    interiorScreenPointOf: id => { const s = S.find(x => x.id === id); if (!s) return null; const rc = canvas.getBoundingClientRect(); const [x, y] = toScreen(...interiorPoint(s)); return [rc.left + x, rc.top + y]; },
     selectedId: () => (selected ? selected.id : null),
     ready: true,
   };
