@@ -229,12 +229,13 @@ fn years(d: chrono::NaiveDate, origin: chrono::NaiveDate) -> f64 {
     (d - origin).num_days() as f64 / 365.25
 }
 
-/// The vertical series as `{label, dates: index into the page's date table, mm, trend}`; the
-/// trend is the linear fit's line at the first and last epoch (mm, + up).
+/// The vertical series as `{label, dates: index into the page's date sets, mm (rounded to
+/// 0.1 mm, a chart's resolution), trend}`; the trend is the linear fit's line at the first and
+/// last epoch (mm, + up).
 fn series_json(s: &SeriesPart, dates: &mut DateTable) -> Option<Value> {
     let v = s.vertical.as_ref()?;
-    let idx: Vec<usize> = v.dates.iter().map(|d| dates.index(*d)).collect();
-    let mm: Vec<Option<f64>> = v.vertical_mm.iter().map(|x| x.map(cm)).collect();
+    let set = dates.set(&v.dates);
+    let mm: Vec<Option<f64>> = v.vertical_mm.iter().map(|x| x.map(tenth)).collect();
     let trend = v
         .fits
         .as_ref()
@@ -250,14 +251,17 @@ fn series_json(s: &SeriesPart, dates: &mut DateTable) -> Option<Value> {
                 "to": [dates.index(*last), at(*last)],
             }))
         });
-    Some(json!({"label": v.label, "d": idx, "mm": mm, "trend": trend}))
+    Some(json!({"label": v.label, "dates": set, "mm": mm, "trend": trend}))
 }
 
-/// The page's table of dates (ISO), each series refers to dates by index.
+/// The page's table of dates (ISO) and of date sets (lists of date indices): each series refers
+/// to its epochs by the index of its date set, as most structures share their epochs.
 #[derive(Default)]
 struct DateTable {
     dates: Vec<chrono::NaiveDate>,
     index: std::collections::HashMap<chrono::NaiveDate, usize>,
+    sets: Vec<Vec<usize>>,
+    set_index: std::collections::HashMap<Vec<usize>, usize>,
 }
 
 impl DateTable {
@@ -267,6 +271,45 @@ impl DateTable {
             self.dates.len() - 1
         })
     }
+
+    fn set(&mut self, ds: &[chrono::NaiveDate]) -> usize {
+        let idx: Vec<usize> = ds.iter().map(|d| self.index(*d)).collect();
+        let n = self.sets.len();
+        let k = *self.set_index.entry(idx.clone()).or_insert(n);
+        if k == n {
+            self.sets.push(idx);
+        }
+        k
+    }
+}
+
+fn tenth(v: f64) -> f64 {
+    (v * 10.0).round() / 10.0
+}
+
+/// Records as columns: `{fields: [name…], rows: [[value…]…]}` (the field names once instead of
+/// once per structure; the page rebuilds the objects).
+fn columns(records: Vec<Value>) -> Value {
+    let mut fields: Vec<String> = Vec::new();
+    for r in &records {
+        for k in r.as_object().into_iter().flat_map(|m| m.keys()) {
+            if !fields.contains(k) {
+                fields.push(k.clone());
+            }
+        }
+    }
+    let rows: Vec<Value> = records
+        .into_iter()
+        .map(|mut r| {
+            Value::Array(
+                fields
+                    .iter()
+                    .map(|f| r.get_mut(f).map(Value::take).unwrap_or(Value::Null))
+                    .collect(),
+            )
+        })
+        .collect();
+    json!({"fields": fields, "rows": rows})
 }
 
 /// One structure's entry: its compact record as written to results.json, plus its footprint,
@@ -281,7 +324,9 @@ fn structure_json(
 ) -> Result<Value> {
     let mut v = serde_json::to_value(r)?;
     if let Some(m) = v.as_object_mut() {
-        m.remove("assumptions");
+        for unused in ["assumptions", "detail_file", "report_file", "fallbacks"] {
+            m.remove(unused);
+        }
         m.insert("footprint".into(), json!(footprint_rings(fp, o)));
         let series = detail.series.as_ref().and_then(|s| series_json(s, dates));
         m.insert("series".into(), series.unwrap_or(Value::Null));
@@ -326,8 +371,9 @@ pub fn data(input: &ExplorerInput, dir: &Path) -> Result<Value> {
         "cautions": input.cautions,
         "origin": o,
         "dates": dates.dates.iter().map(|d| d.to_string()).collect::<Vec<_>>(),
+        "date_sets": dates.sets,
         "works": input.works.map(|w| works_layer(w, o)),
-        "structures": structures,
+        "structures": columns(structures),
     }))
 }
 
@@ -394,6 +440,18 @@ mod tests {
         let d = |m| chrono::NaiveDate::from_ymd_opt(2024, m, 1).unwrap();
         assert_eq!([t.index(d(3)), t.index(d(1)), t.index(d(3))], [0, 1, 0]);
         assert_eq!(t.dates, vec![d(3), d(1)]);
+        assert_eq!(
+            [t.set(&[d(1), d(2)]), t.set(&[d(3)]), t.set(&[d(1), d(2)])],
+            [0, 1, 0]
+        );
+        assert_eq!(t.sets, vec![vec![1, 2], vec![0]]);
+    }
+
+    #[test]
+    fn columns_keep_every_field_of_every_record() {
+        let c = columns(vec![json!({"a": 1, "b": 2}), json!({"b": 3, "c": 4})]);
+        assert_eq!(c["fields"], json!(["a", "b", "c"]));
+        assert_eq!(c["rows"], json!([[1, 2, null], [null, 3, 4]]));
     }
 
     #[test]
@@ -416,6 +474,8 @@ mod tests {
         let mut t = DateTable::default();
         let j = series_json(&s, &mut t).unwrap();
         assert_eq!(j["mm"], json!([0.0, null]), "a gap stays a gap");
+        assert_eq!(j["dates"], 0);
+        assert_eq!(t.sets, vec![vec![0, 1]]);
         assert_eq!(j["trend"]["from"], json!([0, 1.0]));
         // 365 days = 0.99932 yr: 1 − 3 × 0.99932 = −1.998 mm.
         assert_eq!(j["trend"]["to"], json!([1, -2.0]));
