@@ -361,11 +361,11 @@
     { key: "id", label: "id", get: s => s.id },
     { key: "name", label: "name", get: s => s.name },
     { key: "cat", label: "category", get: s => (notAssessable(s) ? -1 : s.damage_category), text: catLabel },
-    { key: "prob", label: "P(category) %", num: true, get: s => s.damage_category_probability, text: s => fmt(s.damage_category_probability, "pct") },
+    { key: "prob", label: "P(cat.) %", num: true, get: s => s.damage_category_probability, text: s => fmt(s.damage_category_probability, "pct") },
     { key: "grade", label: "evidence", get: s => s.evidence_grade || "", text: s => s.evidence_grade || "not graded" },
-    { key: "vel", label: "vertical velocity mm/yr", num: true, get: s => s.vertical_velocity_mm_per_yr, text: s => fmt(s.vertical_velocity_mm_per_yr, "mmyr") },
+    { key: "vel", label: "v. velocity mm/yr", num: true, get: s => s.vertical_velocity_mm_per_yr, text: s => fmt(s.vertical_velocity_mm_per_yr, "mmyr") },
     { key: "trig", label: "trigger", get: s => s.trigger_status || "", text: s => s.trigger_status || "none" },
-    { key: "change", label: "change since previous", get: changeKey, text: s => CHANGE_TEXT[changeKey(s)] },
+    { key: "change", label: "change", get: changeKey, text: s => CHANGE_TEXT[changeKey(s)] },
   ];
   const head = document.getElementById("table-head");
   let sortKey = null, sortDir = 1;
@@ -520,7 +520,7 @@
         const t = el("table");
         const tr1 = el("tr"), tr2 = el("tr");
         for (let k = 0; k < 5; k++) {
-          tr1.appendChild(el("th", null, k === 4 ? "4–5" : String(k)));
+          tr1.appendChild(el("th", { class: "num" }, k === 4 ? "4–5" : String(k)));
           tr2.appendChild(el("td", { class: "num" }, fmt(probs[String(k)], "pct") + " %"));
         }
         t.appendChild(tr1); t.appendChild(tr2); d.appendChild(t);
@@ -631,7 +631,7 @@
       g.appendChild(svg("text", { x: X(tt), y: H - B + 13, "text-anchor": "middle", "font-size": 10 }, y + "-" + (m ? "07" : "01")));
     }
     g.appendChild(svg("text", { x: (L + W - R) / 2, y: H - 6, "text-anchor": "middle", "font-size": 11 }, "acquisition date"));
-    g.appendChild(svg("text", { x: 12, y: (T + H - B) / 2, "text-anchor": "middle", "font-size": 11, transform: "rotate(-90 12 " + (T + H - B) / 2 + ")" }, "vertical displacement (mm, + up)"));
+    g.appendChild(svg("text", { x: 12, y: (T + H - B) / 2, "text-anchor": "middle", "font-size": 11, transform: "rotate(-90 12 " + (T + H - B) / 2 + ")" }, "vertical (mm, + up)"));
     let dpath = "";
     ser.mm.forEach((v, k) => { if (isNum(v)) dpath += (dpath && isNum(ser.mm[k - 1]) ? "L" : "M") + X(t[k]).toFixed(1) + "," + Y(v).toFixed(1); });
     g.appendChild(svg("path", { d: dpath, fill: "none", stroke: "#2a6db0", "stroke-width": 1 }));
