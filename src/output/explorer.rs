@@ -29,9 +29,10 @@ pub const FILE: &str = "explorer.html";
 /// Format marker of the page's data document (`format` in the embedded JSON).
 pub const DATA_FORMAT: &str = "plinth-explorer-data/1";
 
-/// Half-width of a tunnel's drawn influence zone in trough widths i: 2.5 i, where Peck's (1969)
-/// Gaussian settlement trough has fallen to exp(−2.5²/2) ≈ 4.4 % of S_max (docs/methods.md §11,
-/// "Tunnels").
+/// Half-width of a tunnel's drawn influence zone in trough widths i (dimensionless): 2.5 i, where
+/// Peck's (1969) Gaussian settlement trough s = S_max·exp(−x²/(2i²)) has fallen to
+/// exp(−2.5²/2) ≈ 4.4 % of S_max (docs/methods.md §5.8, §11.2). A drawing choice, not a limit of
+/// the screening, which uses the whole trough.
 pub const TUNNEL_ZONE_IN_I: f64 = 2.5;
 
 const PAGE_HEAD: &str = include_str!("../../templates/explorer/head.html");
@@ -93,7 +94,8 @@ fn footprint_rings(m: &MultiPolygon<f64>, o: [f64; 2]) -> Vec<Vec<f64>> {
 
 /// The works layer: each tunnel's centreline with its zone ±2.5 i and inflection lines ±i per
 /// segment, each excavation's outline with its influence zone (the outline buffered by
-/// `influence_m`, the reach of the published settlement envelopes, docs/methods.md §11).
+/// `influence_m`, the reach of the Clough & O'Rourke (1990) envelopes, docs/methods.md §11.3).
+/// Coordinates in local metres of the analysis CRS (x east, y north of the page origin).
 fn works_layer(w: &WorksGeometry, o: [f64; 2]) -> Value {
     let local = |p: [f64; 2]| [cm(p[0] - o[0]), cm(p[1] - o[1])];
     let tunnels: Vec<Value> = w
@@ -224,7 +226,8 @@ fn read_detail(dir: &Path, rel: Option<&str>) -> Result<DetailPart> {
     })
 }
 
-/// Decimal years of 365.25 days from `origin` (the series' time axis, docs/methods.md §4).
+/// Decimal years of 365.25 days from `origin`, the time axis of the series fits
+/// (docs/methods.md §3.7).
 fn years(d: chrono::NaiveDate, origin: chrono::NaiveDate) -> f64 {
     (d - origin).num_days() as f64 / 365.25
 }

@@ -937,8 +937,9 @@ fn write_period_2(dir: &Path, sc: &Scenario, extra: &str) -> Result<()> {
 /// The `[works]` section for the planted tunnel drive: the alignment in lon/lat, the axis depth
 /// and K of the planted trough, a diameter of 6 m and the volume loss that gives the planted
 /// S_max through S_max = V_L·(πD²/4) / (√(2π)·i), i = K·z0 (Peck 1969; O'Reilly & New 1982;
-/// docs/methods.md §11), and the face progress of the planted drive (launch, then the end of
-/// the alignment at the planted advance rate), so predicted and observed can be compared.
+/// docs/methods.md §5.8, §11.2; V_L in percent in the file, S_max in mm + down), and the face
+/// progress of the planted drive (launch, then the end of the alignment at the planted advance
+/// rate), so predicted and observed can be compared.
 fn works_toml(sc: &Scenario, tr: &Trough) -> String {
     const DIAMETER_M: f64 = 6.0;
     let i_m = tr.k * tr.axis_depth_m;
