@@ -316,7 +316,8 @@ fn columns(records: Vec<Value>) -> Value {
 }
 
 /// One structure's entry: its compact record as written to results.json, plus its footprint,
-/// series, works comparison and report link.
+/// series, the works near it with the predicted-against-observed comparison (only where the
+/// prediction reaches `MIN_PREDICTED_SETTLEMENT_MM`) and the report link.
 fn structure_json(
     r: &StructureResult,
     fp: &MultiPolygon<f64>,
@@ -333,9 +334,14 @@ fn structure_json(
         m.insert("footprint".into(), json!(footprint_rings(fp, o)));
         let series = detail.series.as_ref().and_then(|s| series_json(s, dates));
         m.insert("series".into(), series.unwrap_or(Value::Null));
+        // The comparison only where the works predict a settlement worth comparing (below it,
+        // every ratio is "not meaningful"; most of a city is far from the works).
+        let compared = r
+            .predicted_settlement_mm
+            .is_some_and(|p| p >= crate::works::compare::MIN_PREDICTED_SETTLEMENT_MM);
         let works = detail
             .works
-            .map(|w| json!({"nearby": w.nearby, "comparison": w.comparison}));
+            .map(|w| json!({"nearby": w.nearby, "comparison": w.comparison.filter(|_| compared)}));
         m.insert("works".into(), works.unwrap_or(Value::Null));
         let pdf = r
             .report_file

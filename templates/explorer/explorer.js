@@ -7,12 +7,24 @@
   const DATA = JSON.parse(document.getElementById("plinth-data").textContent);
   performance.mark("json-parsed");
   // Structures arrive as columns (field names once); rebuild one object per structure.
+  // The map and the table need a few fields of every structure; the detail panel rebuilds the
+  // whole record of the one selected (`full`).
   const FIELDS = DATA.structures.fields;
-  const S = DATA.structures.rows.map(row => {
-    const o = {};
-    for (let k = 0; k < FIELDS.length; k++) o[FIELDS[k]] = row[k];
+  const ROWS = DATA.structures.rows;
+  const LIGHT = ["id", "name", "status", "damage_category", "damage_category_probability", "evidence_grade",
+    "vertical_velocity_mm_per_yr", "trigger_status", "change", "footprint"];
+  const at = LIGHT.map(f => FIELDS.indexOf(f));
+  const S = ROWS.map((row, r) => {
+    const o = { _row: r };
+    for (let k = 0; k < LIGHT.length; k++) o[LIGHT[k]] = at[k] < 0 ? null : row[at[k]];
     return o;
   });
+  function full(s) {
+    const o = Object.assign({}, s);
+    const row = ROWS[s._row];
+    for (let k = 0; k < FIELDS.length; k++) o[FIELDS[k]] = row[k];
+    return o;
+  }
   const P = DATA.portfolio;
   const CAT_COLOURS = ["#3a9a4a", "#a6cf4f", "#f2c232", "#ef8a2c", "#d7301f"];
   const NA_FILL = "#ffffff";
@@ -476,7 +488,7 @@
       }
     }
     scrollRowIntoView(s);
-    renderDetail(s);
+    renderDetail(full(s));
     schedule();
   }
 
@@ -572,7 +584,8 @@
         tr.appendChild(el("td", { class: "num" }, isNum(r.ratio) ? r.ratio.toFixed(2) : (r.note || "n/a")));
         ct.appendChild(tr);
       }
-      d.appendChild(ct);
+      if (cmp) d.appendChild(ct);
+      else d.appendChild(el("p", { class: "muted" }, "Predicted settlement on the footprint " + fmt(s.predicted_settlement_mm, "mm") + " mm: below 0.1 mm, nothing to compare."));
       if (cmp && cmp.period) d.appendChild(el("p", { class: "muted" }, "Predicted side: " + cmp.period));
       d.appendChild(el("p", null, "Predicted category (upper bound, stage 2): " + (isNum(s.predicted_category) ? s.predicted_category : "n/a")));
     }
