@@ -404,18 +404,54 @@ pub fn script_safe_json(v: &Value) -> Result<String> {
     Ok(out)
 }
 
+/// Standard base64 (RFC 4648 §4, with padding) of `bytes`.
+fn base64(bytes: &[u8]) -> String {
+    const ABC: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
+    let mut out = String::with_capacity(bytes.len().div_ceil(3) * 4);
+    for chunk in bytes.chunks(3) {
+        let b = [
+            chunk[0],
+            *chunk.get(1).unwrap_or(&0),
+            *chunk.get(2).unwrap_or(&0),
+        ];
+        let n = (u32::from(b[0]) << 16) | (u32::from(b[1]) << 8) | u32::from(b[2]);
+        for k in 0..4 {
+            if k <= chunk.len() {
+                out.push(char::from(ABC[((n >> (18 - 6 * k)) & 63) as usize]));
+            } else {
+                out.push('=');
+            }
+        }
+    }
+    out
+}
+
+/// The page's content security policy: nothing may be fetched (no network, no other file), and
+/// the only script that may run is the page's own (allowed by its SHA-256), so even markup that
+/// slipped into the page could not run an inline handler.
+fn content_security_policy(script: &str) -> String {
+    use sha2::{Digest, Sha256};
+    let hash = base64(&Sha256::digest(script.as_bytes()));
+    format!(
+        "<meta http-equiv=\"Content-Security-Policy\" content=\"default-src 'none'; \
+         script-src 'sha256-{hash}'; style-src 'unsafe-inline'; img-src data:; connect-src 'none'\">\n"
+    )
+}
+
 /// The whole page around an already script-safe data document.
 pub fn page(data_json: &str) -> String {
+    let script = format!("\n{PAGE_JS}");
     let mut html = String::with_capacity(data_json.len() + 64 * 1024);
     html.push_str(PAGE_HEAD);
+    html.push_str(&content_security_policy(&script));
     html.push_str("<style>\n");
     html.push_str(PAGE_CSS);
     html.push_str("</style>\n</head>\n");
     html.push_str(PAGE_BODY);
     html.push_str("<script type=\"application/json\" id=\"plinth-data\">");
     html.push_str(data_json);
-    html.push_str("</script>\n<script>\n");
-    html.push_str(PAGE_JS);
+    html.push_str("</script>\n<script>");
+    html.push_str(&script);
     html.push_str("</script>\n</body>\n</html>\n");
     html
 }
@@ -441,6 +477,22 @@ mod tests {
         );
         let back: Value = serde_json::from_str(&s).unwrap();
         assert_eq!(back["name"], name);
+    }
+
+    #[test]
+    fn base64_matches_rfc_4648_test_vectors() {
+        // RFC 4648 §10.
+        for (plain, coded) in [
+            ("", ""),
+            ("f", "Zg=="),
+            ("fo", "Zm8="),
+            ("foo", "Zm9v"),
+            ("foob", "Zm9vYg=="),
+            ("fooba", "Zm9vYmE="),
+            ("foobar", "Zm9vYmFy"),
+        ] {
+            assert_eq!(base64(plain.as_bytes()), coded, "{plain}");
+        }
     }
 
     #[test]

@@ -398,6 +398,7 @@
   options("f-trig", [["", "all"]].concat(uniq(s => s.trigger_status || "none").map(g => [g, g])));
   options("f-change", [["", "all"]].concat(Object.keys(CHANGE_TEXT).map(k => [k, CHANGE_TEXT[k]])));
   for (const id of ["f-text", "f-prob", "f-vmin", "f-vmax"]) document.getElementById(id).oninput = applyFilters;
+  document.getElementById("filters").addEventListener("submit", e => e.preventDefault());
 
   let visible = S.slice();
   function numOrNull(id) { const v = document.getElementById(id).value; return v === "" ? null : Number(v); }
@@ -458,7 +459,9 @@
         } else td.textContent = c.text ? c.text(s) : c.get(s);
         tr.appendChild(td);
       }
+      tr.tabIndex = 0;
       tr.onclick = () => select(s, "table");
+      tr.onkeydown = e => { if (e.key === "Enter" || e.key === " ") { e.preventDefault(); select(s, "table"); } };
       tbody.appendChild(tr);
     }
     tbody.appendChild(spacer((visible.length - last) * ROW_H));
