@@ -520,6 +520,16 @@
     d.appendChild(el("h2", null, s.name));
     d.appendChild(el("div", { class: "muted" }, s.id + " · " + s.structure_type + " · height " + s.height_m + " m · criteria " + (s.criteria_set || "n/a")));
 
+    verdictSection(d, s);
+    observabilitySection(d, s);
+    keyNumbersSection(d, s);
+    section(d, "Vertical time series");
+    d.appendChild(chart(s));
+    worksSection(d, s);
+    changeSection(d, s);
+    reportSection(d, s);
+  }
+  function verdictSection(d, s) {
     section(d, "Verdict");
     const v = el("p", { class: "verdict", id: "verdict" });
     if (s.status === "insufficient_data") v.textContent = "Insufficient data — not assessable (this is not “no movement”).";
@@ -546,13 +556,15 @@
     const ul = el("ul");
     for (const r of s.evidence_grade_reasons || []) ul.appendChild(el("li", null, r));
     if (ul.children.length) d.appendChild(ul);
-
+  }
+  function observabilitySection(d, s) {
     section(d, "Observability");
     const obs = el("div", { id: "observability" });
     if (s.horizontal_strain_status) obs.appendChild(el("p", { class: s.horizontal_strain_status === "measured" ? "" : "note" }, HS_TEXT[s.horizontal_strain_status] || s.horizontal_strain_status));
     obs.appendChild(el("p", null, "Look directions of the kept points: " + ((s.look_directions || []).join(", ") || "none") + (s.look_directions && s.look_directions.length === 1 ? " — no east–west component" : "") + ". The radar is practically blind to north–south movement."));
     d.appendChild(obs);
-
+  }
+  function keyNumbersSection(d, s) {
     section(d, "Key numbers (± one standard error)");
     const t = el("table", { id: "key-numbers" });
     numRow(t, "largest settlement (+ down)", s.settlement_mm, null, "mm", "mm", "settlement_mm");
@@ -567,41 +579,39 @@
     numRow(t, "governing tensile strain", s.governing_strain, null, "m/m", "ratio", "governing_strain");
     const pts = el("tr"); pts.appendChild(el("th", null, "points kept / surroundings")); pts.appendChild(el("td", { class: "num" }, s.n_points + " / " + s.n_surroundings)); t.appendChild(pts);
     d.appendChild(t);
-
-    section(d, "Vertical time series");
-    d.appendChild(chart(s));
-
-    if (s.works || isNum(s.predicted_settlement_mm)) {
-      section(d, "Works: predicted against observed");
-      const w = s.works || {};
-      for (const n of w.nearby || []) d.appendChild(el("p", null, n.name + " (" + n.kind + "): " + fmt(n.distance_m, "mm") + " m away; predicted settlement at the centroid " + fmt(n.settlement_at_centroid_mm, "mm") + " mm (all works complete)"));
-      const ct = el("table", { id: "works-comparison" });
-      const h = el("tr"); for (const x of ["quantity", "predicted", "observed", "observed / predicted"]) h.appendChild(el("th", null, x)); ct.appendChild(h);
-      const cmp = w.comparison;
-      for (const r of (cmp && cmp.rows) || []) {
-        const tr = el("tr", { "data-quantity": r.quantity });
-        const kind = r.quantity === "settlement_mm" ? "mm" : r.quantity === "damage_category" ? "" : "ratio";
-        tr.appendChild(el("td", null, r.quantity.replace(/_/g, " ")));
-        tr.appendChild(el("td", { class: "num" }, fmt(r.predicted, kind)));
-        tr.appendChild(el("td", { class: "num" }, fmt(r.observed, kind)));
-        tr.appendChild(el("td", { class: "num" }, isNum(r.ratio) ? r.ratio.toFixed(2) : (r.note || "n/a")));
-        ct.appendChild(tr);
-      }
-      if (cmp) d.appendChild(ct);
-      else d.appendChild(el("p", { class: "muted" }, "Predicted settlement on the footprint " + fmt(s.predicted_settlement_mm, "mm") + " mm: below 0.1 mm, nothing to compare."));
-      if (cmp && cmp.period) d.appendChild(el("p", { class: "muted" }, "Predicted side: " + cmp.period));
-      d.appendChild(el("p", null, "Predicted category (upper bound, stage 2): " + (isNum(s.predicted_category) ? s.predicted_category : "n/a")));
+  }
+  function worksSection(d, s) {
+    if (!(s.works || isNum(s.predicted_settlement_mm))) return;
+    section(d, "Works: predicted against observed");
+    const w = s.works || {};
+    for (const n of w.nearby || []) d.appendChild(el("p", null, n.name + " (" + n.kind + "): " + fmt(n.distance_m, "mm") + " m away; predicted settlement at the centroid " + fmt(n.settlement_at_centroid_mm, "mm") + " mm (all works complete)"));
+    const ct = el("table", { id: "works-comparison" });
+    const h = el("tr"); for (const x of ["quantity", "predicted", "observed", "observed / predicted"]) h.appendChild(el("th", null, x)); ct.appendChild(h);
+    const cmp = w.comparison;
+    for (const r of (cmp && cmp.rows) || []) {
+      const tr = el("tr", { "data-quantity": r.quantity });
+      const kind = r.quantity === "settlement_mm" ? "mm" : r.quantity === "damage_category" ? "" : "ratio";
+      tr.appendChild(el("td", null, r.quantity.replace(/_/g, " ")));
+      tr.appendChild(el("td", { class: "num" }, fmt(r.predicted, kind)));
+      tr.appendChild(el("td", { class: "num" }, fmt(r.observed, kind)));
+      tr.appendChild(el("td", { class: "num" }, isNum(r.ratio) ? r.ratio.toFixed(2) : (r.note || "n/a")));
+      ct.appendChild(tr);
     }
-
-    if ((s.triggers || []).length || s.change) {
-      section(d, "Triggers and change since the previous period");
-      for (const h of s.triggers || []) d.appendChild(el("p", { class: "note" }, h.level + ": " + h.field + " " + h.value.toFixed(2) + " (rule " + h.rule + ")" + (h.action ? " — " + h.action : "")));
-      if (s.change) {
-        const c = s.change;
-        d.appendChild(el("p", { id: "change" }, CHANGE_TEXT[changeKey(s)] + (c.kind === "new" ? "" : ": previous category " + (c.previous_damage_category ?? "none") + ", velocity change " + fmt(c.velocity_change_mm_per_yr, "mmyr") + " mm/yr (z = " + (isNum(c.velocity_change_z) ? c.velocity_change_z.toFixed(1) : "n/a") + ")")));
-      }
+    if (cmp) d.appendChild(ct);
+    else d.appendChild(el("p", { class: "muted" }, "Predicted settlement on the footprint " + fmt(s.predicted_settlement_mm, "mm") + " mm: below 0.1 mm, nothing to compare."));
+    if (cmp && cmp.period) d.appendChild(el("p", { class: "muted" }, "Predicted side: " + cmp.period));
+    d.appendChild(el("p", null, "Predicted category (upper bound, stage 2): " + (isNum(s.predicted_category) ? s.predicted_category : "n/a")));
+  }
+  function changeSection(d, s) {
+    if (!((s.triggers || []).length || s.change)) return;
+    section(d, "Triggers and change since the previous period");
+    for (const h of s.triggers || []) d.appendChild(el("p", { class: "note" }, h.level + ": " + h.field + " " + h.value.toFixed(2) + " (rule " + h.rule + ")" + (h.action ? " — " + h.action : "")));
+    if (s.change) {
+      const c = s.change;
+      d.appendChild(el("p", { id: "change" }, CHANGE_TEXT[changeKey(s)] + (c.kind === "new" ? "" : ": previous category " + (c.previous_damage_category ?? "none") + ", velocity change " + fmt(c.velocity_change_mm_per_yr, "mmyr") + " mm/yr (z = " + (isNum(c.velocity_change_z) ? c.velocity_change_z.toFixed(1) : "n/a") + ")")));
     }
-
+  }
+  function reportSection(d, s) {
     section(d, "Report");
     if (s.report_pdf) {
       const a = el("a", { href: s.report_pdf, id: "report-link", target: "_blank", rel: "noopener" }, "Open the PDF report (" + s.report_pdf + ")");

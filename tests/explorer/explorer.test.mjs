@@ -101,6 +101,7 @@ async function demoChecks(browser) {
     ["2", r => r.damage_category === 2],
     ["0", r => r.damage_category === 0],
     ["insufficient", r => r.status === "insufficient_data"],
+    ["nocat", r => r.status === "assessed" && r.damage_category === null],
   ]) {
     await page.selectOption("#f-cat", value);
     const ids = await page.$$eval("#rows tr.row", rows => rows.map(r => r.dataset.id));
@@ -113,7 +114,10 @@ async function demoChecks(browser) {
   // Clicking a row shows that structure's detail with the numbers of results.json.
   const fields = ["settlement_mm", "differential_settlement_mm", "vertical_velocity_mm_per_yr", "east_velocity_mm_per_yr",
     "tilt", "tilt_azimuth_deg", "angular_distortion", "deflection_ratio", "horizontal_strain", "governing_strain"];
-  for (const r of [target, results.find(x => x.damage_category === 2), results.find(x => x.status === "insufficient_data")]) {
+  const withheld = results.find(x => x.status === "assessed" && x.damage_category === null);
+  check(withheld !== undefined, "demo: an assessed structure without a category exists");
+  for (const r of [target, results.find(x => x.damage_category === 2), results.find(x => x.status === "insufficient_data"), withheld]) {
+    await page.fill("#f-text", r.id);
     await page.click(`#rows tr.row[data-id="${r.id}"]`);
     const shown = await page.evaluate(() => {
       const d = document.getElementById("detail-body");
@@ -131,6 +135,7 @@ async function demoChecks(browser) {
     });
     check(bad.length === 0, `detail of ${r.id}: key numbers equal results.json ` + JSON.stringify(bad.map(f => [f, r[f], shown.rows[f]])));
     if (r.status === "insufficient_data") check(/insufficient data/i.test(shown.verdict) && !/category 0/.test(shown.verdict), `detail of ${r.id}: insufficient data, never category 0`);
+    else if (r.damage_category === null) check(/no damage category/i.test(shown.verdict) && !/category 0/.test(shown.verdict), `detail of ${r.id}: no category, never category 0`);
     else check(shown.verdict.includes("Damage category " + (r.damage_category === 4 ? "4–5" : r.damage_category)), `detail of ${r.id}: verdict states category ${r.damage_category}`);
     if (r.status === "assessed") {
       const chart = await page.$$eval("#series-chart svg path, #series-chart svg line[stroke-dasharray]", e => e.length);
@@ -140,6 +145,20 @@ async function demoChecks(browser) {
     const href = await page.$eval("#report-link", a => a.getAttribute("href")).catch(() => null);
     check(href !== null && fs.existsSync(path.join(demoOut, href)), `detail of ${r.id}: PDF link ${href} resolves to a file`);
   }
+
+  // Near the tunnel: predicted against observed, the same ratio as results.json.
+  const nearTunnel = results.filter(r => r.observed_to_predicted_settlement !== null);
+  check(nearTunnel.length > 0, `demo: ${nearTunnel.length} structures with predicted against observed`);
+  for (const r of nearTunnel) {
+    await page.fill("#f-text", r.id);
+    await page.click(`#rows tr.row[data-id="${r.id}"]`);
+    const ratio = await page.$eval('#works-comparison tr[data-quantity="settlement_mm"]', tr => tr.children[3].textContent).catch(() => null);
+    check(ratio === r.observed_to_predicted_settlement.toFixed(2), `detail of ${r.id}: observed / predicted settlement ${ratio} = results.json ${r.observed_to_predicted_settlement}`);
+  }
+  await page.fill("#f-text", "");
+  await page.dispatchEvent("#f-text", "input");
+  const legend = await page.$eval("#legend", e => e.textContent);
+  check(legend.includes("tunnel centreline") && legend.includes("tunnel zone"), "demo: the tunnel and its zone are in the map legend");
 
   // Cautions, window and provenance are on the page.
   const text = await page.evaluate(() => document.body.innerText);
