@@ -17,6 +17,7 @@ use std::path::Path;
 
 use anyhow::{Context, Result};
 use geo::{Buffer, MultiPolygon};
+use rayon::prelude::*;
 use serde::Deserialize;
 use serde_json::{Value, json};
 
@@ -294,9 +295,10 @@ fn tenth(v: f64) -> f64 {
 /// once per structure; the page rebuilds the objects).
 fn columns(records: Vec<Value>) -> Value {
     let mut fields: Vec<String> = Vec::new();
+    let mut seen = std::collections::HashSet::new();
     for r in &records {
         for k in r.as_object().into_iter().flat_map(|m| m.keys()) {
-            if !fields.contains(k) {
+            if seen.insert(k.as_str()) {
                 fields.push(k.clone());
             }
         }
@@ -357,10 +359,24 @@ fn structure_json(
 pub fn data(input: &ExplorerInput, dir: &Path) -> Result<Value> {
     let o = origin(&input.footprints);
     let mut dates = DateTable::default();
+    // The detail files are read and parsed in parallel (most of the work), the entries built in
+    // order (the date table is shared).
+    let details: Vec<Result<DetailPart>> = (input.results.structures.par_iter())
+        .map(|r| read_detail(dir, r.detail_file.as_deref()))
+        .collect();
     let mut structures = Vec::with_capacity(input.results.structures.len());
-    for (r, fp) in input.results.structures.iter().zip(&input.footprints) {
-        let detail = read_detail(dir, r.detail_file.as_deref())?;
-        structures.push(structure_json(r, fp, o, detail, &mut dates, input.reports)?);
+    for ((r, fp), detail) in (input.results.structures.iter())
+        .zip(&input.footprints)
+        .zip(details)
+    {
+        structures.push(structure_json(
+            r,
+            fp,
+            o,
+            detail?,
+            &mut dates,
+            input.reports,
+        )?);
     }
     let p = &input.results.portfolio;
     Ok(json!({
