@@ -520,7 +520,10 @@ fn copy_extra(src: &Path, dst: &Path, rel: &Path, copied: &mut BTreeSet<PathBuf>
     for e in entries {
         let name = e.file_name();
         let r = rel.join(&name);
-        if rel.as_os_str().is_empty() && MERGED_FILES.iter().any(|m| name == *m) {
+        // A shard's explorer page shows that shard only: not copied (the merged folder has none).
+        if rel.as_os_str().is_empty()
+            && (MERGED_FILES.iter().any(|m| name == *m) || name == crate::output::explorer::FILE)
+        {
             continue;
         }
         if e.file_type()?.is_dir() {

@@ -1329,7 +1329,42 @@ fn write_outputs(
             opts.progress,
         )?;
     }
-    Ok(())
+    write_explorer(a, opts, d, &m["inputs"])
+}
+
+/// explorer.html (output::explorer): results, footprints, works, cautions and the manifest's
+/// inputs; reads the series back from the detail files in `d`.
+fn write_explorer(
+    a: &Analysis,
+    opts: &RunOptions,
+    d: &Path,
+    inputs: &serde_json::Value,
+) -> Result<()> {
+    let works = match &a.portfolio.works {
+        Some(w) => Some(
+            crate::works::WorksGeometry::project(w, &a.inputs.analysis_crs, &a.portfolio.file)
+                .context("planned works for the explorer")?,
+        ),
+        None => None,
+    };
+    let by_id: std::collections::HashMap<&str, &geo::MultiPolygon<f64>> = a
+        .inputs
+        .structures
+        .iter()
+        .map(|s| (s.raw.id.as_str(), &s.footprint))
+        .collect();
+    let empty = geo::MultiPolygon::<f64>(vec![]);
+    let input = output::explorer::ExplorerInput {
+        results: &a.results,
+        footprints: (a.results.structures.iter())
+            .map(|r| by_id.get(r.id.as_str()).copied().unwrap_or(&empty))
+            .collect(),
+        works: works.as_ref(),
+        inputs: inputs.clone(),
+        cautions: crate::report::pipeline::portfolio_cautions(&a.portfolio, a.window)?,
+        reports: !opts.no_reports,
+    };
+    output::explorer::write(d, &input)
 }
 
 /// results.gpkg: the structures and points layers (output::gpkg).

@@ -9,13 +9,16 @@ use plinth::synth::generate::{PointRole, generate};
 use plinth::synth::model::NoiseModel;
 use plinth::synth::{demo, write};
 
-const DEMO_FILES: [&str; 6] = [
+const DEMO_FILES: [&str; 9] = [
     "portfolio.toml",
     "structures.geojson",
     "points-asc.csv",
     "points-desc.csv",
     "truth.json",
     "README.md",
+    "portfolio-2.toml",
+    "points-asc-2.csv",
+    "points-desc-2.csv",
 ];
 
 fn read_all(dir: &Path) -> BTreeMap<String, Vec<u8>> {

@@ -30,7 +30,7 @@ pub const DATA_FILE_COUNT: usize = 7;
 
 /// The files Plinth writes at the top of an output folder (besides the `reports/` folder): the
 /// [`DATA_FILE_COUNT`] data files first, then the portfolio overview.
-pub const OUTPUT_FILES: [&str; 9] = [
+pub const OUTPUT_FILES: [&str; 10] = [
     "results.json",
     "results.csv",
     "results.geojson",
@@ -40,6 +40,7 @@ pub const OUTPUT_FILES: [&str; 9] = [
     "manifest.json",
     "portfolio.pdf",
     "portfolio.json",
+    super::explorer::FILE,
 ];
 
 /// The folder of per-structure reports inside an output folder.

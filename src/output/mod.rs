@@ -7,6 +7,7 @@
 //! temporary sibling folder, which is swapped in by rename only when the whole run succeeded.
 //! Which folder may be written at all is decided first, by [`guard`]. It does not compute anything.
 
+pub mod explorer;
 pub mod gpkg;
 pub mod guard;
 pub mod rtree_pack;

@@ -100,6 +100,21 @@ pub struct ReportSummary {
 // Entry point
 // ---------------------------------------------------------------------------------------------
 
+/// The portfolio cautions (`portfolio_cautions.j2`, overridden by the portfolio's template
+/// folder like the reports'), one paragraph each, for the explorer page.
+pub fn portfolio_cautions(portfolio: &Portfolio, window: Window) -> Result<Vec<String>> {
+    let blocks = match portfolio.report.template_dir.as_deref() {
+        Some(t) => TextBlocks::with_template_dir(t)?,
+        None => TextBlocks::builtin()?,
+    };
+    let ctx = TextContext::new()
+        .text("portfolio_name", one_line(&portfolio.name))
+        .text("window_start", window.start.to_string())
+        .text("window_end", window.end.to_string())
+        .text("reference", REFERENCE);
+    Ok(blocks.paragraphs("portfolio_cautions.j2", &ctx)?)
+}
+
 /// Renders one report per structure and the portfolio overview into `dir`:
 /// `reports/<report_file>.pdf` with its model `reports/<report_file>.json`, and
 /// `portfolio.pdf` with `portfolio.json`.

@@ -296,6 +296,23 @@ pub struct StructureTruth {
     pub damage_designed: bool,
     /// Trough context, when the scenario has a trough.
     pub trough: Option<TroughTruth>,
+    /// What the radar cannot observe on this structure by design (see [`observability_of`]);
+    /// null for structures not designed for it.
+    pub observability: Option<String>,
+}
+
+/// The observability situation a structure was designed to show, from its role:
+/// `no_east_west` (points from one look direction only, so no east–west component and no
+/// horizontal strain), `strain_axis_not_observable` (long axis near north–south: the east–west
+/// component says nothing along it) or `profile_unresolved` (too few points along the axis to
+/// resolve the deflection ratio, so no damage category).
+pub fn observability_of(role: &str) -> Option<&'static str> {
+    match role {
+        "one_look_direction" => Some("no_east_west"),
+        "axis_north_south" => Some("strain_axis_not_observable"),
+        "unresolved_profile" => Some("profile_unresolved"),
+        _ => None,
+    }
 }
 
 /// A planted unwrapping error as written to the truth.
@@ -610,6 +627,7 @@ pub fn build_truth(sc: &Scenario, generated: &Generated, designed: &[&str]) -> O
             damage_designed: designed.contains(&s.id.as_str()),
             period,
             trough,
+            observability: observability_of(&s.role).map(str::to_string),
         });
     }
     let mut jumps = Vec::new();

@@ -93,3 +93,92 @@ fn demo_headline_results_match_planted_truth() {
     let planted = chrono::NaiveDate::from_ymd_opt(2024, 3, 1).unwrap();
     assert!((d - planted).num_days().abs() <= 150, "breakpoint {d}");
 }
+
+/// Each observability situation the demo was designed for (truth.json `observability`) is what
+/// the assessment reports for that structure, and the tunnel's `[works]` gives the structures
+/// near it a prediction to compare with.
+#[test]
+fn demo_reports_each_designed_observability_situation_and_the_works() {
+    let fx = Fx::new();
+    let portfolio = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-portfolio/portfolio.toml");
+    let r = assess(
+        std::path::Path::new(portfolio),
+        &fx.path("out"),
+        &["--no-reports"],
+    );
+    let t = truth();
+    let designed: Vec<(&str, &str)> = t["structures"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter_map(|s| Some((s["id"].as_str()?, s["observability"].as_str()?)))
+        .collect();
+    let situations: Vec<&str> = designed.iter().map(|(_, o)| *o).collect();
+    for want in [
+        "no_east_west",
+        "strain_axis_not_observable",
+        "profile_unresolved",
+    ] {
+        assert!(situations.contains(&want), "no demo structure for {want}");
+    }
+    for (id, situation) in designed {
+        let s = structure(&r, id);
+        assert_eq!(s["status"], "assessed", "{id}");
+        match situation {
+            "no_east_west" => {
+                assert_eq!(
+                    s["look_directions"],
+                    serde_json::json!(["east-looking"]),
+                    "{id}"
+                );
+                assert_eq!(
+                    s["horizontal_strain_status"], "not_observable_geometry",
+                    "{id}"
+                );
+                assert!(s["east_velocity_mm_per_yr"].is_null(), "{id}");
+                assert_eq!(s["category_lower_bound"], true, "{id}");
+            }
+            "strain_axis_not_observable" => {
+                assert_eq!(s["horizontal_strain_status"], "not_observable_axis", "{id}");
+                assert_eq!(s["category_lower_bound"], true, "{id}");
+            }
+            "profile_unresolved" => {
+                assert!(s["damage_category"].is_null(), "{id}");
+                let why = s["status_reasons"].to_string();
+                assert!(why.contains("deflection ratio not resolved"), "{id}: {why}");
+            }
+            other => panic!("{id}: unknown situation {other}"),
+        }
+    }
+    // Predicted against observed near the tunnel: the structures over the trough have a
+    // prediction of the planted order (S_max 20 mm) and an observed/predicted ratio.
+    let near: Vec<&serde_json::Value> = r["structures"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|s| {
+            s["predicted_settlement_mm"]
+                .as_f64()
+                .is_some_and(|p| p > 5.0)
+        })
+        .collect();
+    assert!(
+        near.len() >= 4,
+        "{} structures with a prediction",
+        near.len()
+    );
+    for s in near {
+        let p = s["predicted_settlement_mm"].as_f64().unwrap();
+        assert!(
+            p <= 20.5,
+            "{}: predicted {p} mm above the planted S_max",
+            s["id"]
+        );
+        let ratio = s["observed_to_predicted_settlement"].as_f64().unwrap();
+        assert!(
+            (0.5..2.5).contains(&ratio),
+            "{}: observed/predicted {ratio}",
+            s["id"]
+        );
+    }
+}

@@ -313,7 +313,7 @@ fn footprints_from_geopackage_shapefile_and_flatgeobuf_give_the_geojson_results(
         std::fs::write(&p, t).unwrap();
         let out = fx.path(&format!("out-{file}"));
         let r = assess(&p, &out, &["--no-reports"]);
-        assert_eq!(r["structures"].as_array().unwrap().len(), 39, "{file}");
+        assert_eq!(r["structures"].as_array().unwrap().len(), 42, "{file}");
         for f in ["results.json", "results.csv", "points.csv"] {
             let (a, b) = (
                 std::fs::read_to_string(reference.join(f)).unwrap(),

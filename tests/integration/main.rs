@@ -1,6 +1,7 @@
 //! End-to-end tests of the `plinth` binary on small fixture portfolios, one module per topic.
 
 mod demo;
+mod explorer;
 mod fixture;
 mod foundation;
 mod gis_formats;
