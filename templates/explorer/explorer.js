@@ -224,7 +224,15 @@
         ctx.strokeStyle = "#333";
       }
       ctx.fill(groups[k].path, "evenodd");
-      ctx.lineWidth = px;
+      if (view.scale >= 0.6) {
+        ctx.lineWidth = px;
+      } else {
+        // City scale: a dark outline would hide the colours, and a building may be smaller than
+        // a pixel; a 2-pixel outline in the class colour keeps every one visible.
+        ctx.setLineDash([]);
+        ctx.strokeStyle = k === "insufficient" || k === "nocat" ? "#9a9a9a" : CAT_COLOURS[Number(k)];
+        ctx.lineWidth = 2 * px;
+      }
       ctx.stroke(groups[k].path);
     }
     ctx.setLineDash([]);
