@@ -201,9 +201,30 @@ struct LinearPart {
 #[derive(Debug, Deserialize)]
 struct WorksPart {
     #[serde(default)]
-    nearby: Vec<Value>,
+    nearby: Vec<NearbyPart>,
     #[serde(default)]
     comparison: Option<Value>,
+}
+
+/// One of the works near a structure (`works.nearby` of the detail file).
+#[derive(Debug, Deserialize)]
+struct NearbyPart {
+    name: String,
+    kind: String,
+    distance_m: f64,
+    settlement_at_centroid_mm: f64,
+}
+
+impl NearbyPart {
+    /// As shown: distance to 0.1 m, settlement to 0.01 mm.
+    fn json(&self) -> Value {
+        json!({
+            "name": self.name,
+            "kind": self.kind,
+            "distance_m": tenth(self.distance_m),
+            "settlement_at_centroid_mm": cm(self.settlement_at_centroid_mm),
+        })
+    }
 }
 
 /// Read the parts of a structure's detail file the page needs; a missing file gives nothing
@@ -233,13 +254,18 @@ fn years(d: chrono::NaiveDate, origin: chrono::NaiveDate) -> f64 {
     (d - origin).num_days() as f64 / 365.25
 }
 
-/// The vertical series as `{label, dates: index into the page's date sets, mm (rounded to
-/// 0.1 mm, a chart's resolution), trend}`; the trend is the linear fit's line at the first and
+/// The vertical series as `{label, dates: index into the page's date sets, mm_tenths (integers
+/// of 0.1 mm, a chart's resolution), trend}`; the trend is the linear fit's line at the first and
 /// last epoch (mm, + up).
 fn series_json(s: &SeriesPart, dates: &mut DateTable) -> Option<Value> {
     let v = s.vertical.as_ref()?;
     let set = dates.set(&v.dates);
-    let mm: Vec<Option<f64>> = v.vertical_mm.iter().map(|x| x.map(tenth)).collect();
+    let mm: Vec<Option<i64>> = (v.vertical_mm.iter())
+        .map(|x| {
+            x.filter(|v| v.is_finite())
+                .map(|v| (v * 10.0).round() as i64)
+        })
+        .collect();
     let trend = v
         .fits
         .as_ref()
@@ -255,7 +281,7 @@ fn series_json(s: &SeriesPart, dates: &mut DateTable) -> Option<Value> {
                 "to": [dates.index(*last), at(*last)],
             }))
         });
-    Some(json!({"label": v.label, "dates": set, "mm": mm, "trend": trend}))
+    Some(json!({"label": v.label, "dates": set, "mm_tenths": mm, "trend": trend}))
 }
 
 /// The page's table of dates (ISO) and of date sets (lists of date indices): each series refers
@@ -291,9 +317,46 @@ fn tenth(v: f64) -> f64 {
     (v * 10.0).round() / 10.0
 }
 
+/// Text fields repeated across structures, sent once in the page's `strings` table: in a row
+/// each string of these fields is its index in that table (a list of strings, a list of indices).
+pub const INTERNED_FIELDS: [&str; 5] = [
+    "status_reasons",
+    "evidence_grade_reasons",
+    "damage_route",
+    "look_directions",
+    "datasets",
+];
+
+/// The page's table of repeated strings (see [`INTERNED_FIELDS`]).
+#[derive(Default)]
+struct Strings {
+    list: Vec<String>,
+    index: std::collections::HashMap<String, usize>,
+}
+
+impl Strings {
+    fn index(&mut self, s: &str) -> usize {
+        if let Some(&k) = self.index.get(s) {
+            return k;
+        }
+        self.list.push(s.to_string());
+        self.index.insert(s.to_string(), self.list.len() - 1);
+        self.list.len() - 1
+    }
+
+    /// A string becomes its index, a list of strings a list of indices; anything else stays.
+    fn intern(&mut self, v: &mut Value) {
+        match v {
+            Value::String(s) => *v = json!(self.index(s)),
+            Value::Array(items) => items.iter_mut().for_each(|x| self.intern(x)),
+            _ => {}
+        }
+    }
+}
+
 /// Records as columns: `{fields: [name…], rows: [[value…]…]}` (the field names once instead of
 /// once per structure; the page rebuilds the objects).
-fn columns(records: Vec<Value>) -> Value {
+fn columns(records: Vec<Value>, strings: &mut Strings) -> Value {
     let mut fields: Vec<String> = Vec::new();
     let mut seen = std::collections::HashSet::new();
     for r in &records {
@@ -303,13 +366,21 @@ fn columns(records: Vec<Value>) -> Value {
             }
         }
     }
+    let interned: Vec<bool> = (fields.iter())
+        .map(|f| INTERNED_FIELDS.contains(&f.as_str()))
+        .collect();
     let rows: Vec<Value> = records
         .into_iter()
         .map(|mut r| {
             Value::Array(
-                fields
-                    .iter()
-                    .map(|f| r.get_mut(f).map(Value::take).unwrap_or(Value::Null))
+                (fields.iter().zip(&interned))
+                    .map(|(f, &intern)| {
+                        let mut v = r.get_mut(f).map(Value::take).unwrap_or(Value::Null);
+                        if intern {
+                            strings.intern(&mut v);
+                        }
+                        v
+                    })
                     .collect(),
             )
         })
@@ -341,9 +412,10 @@ fn structure_json(
         let compared = r
             .predicted_settlement_mm
             .is_some_and(|p| p >= crate::works::compare::MIN_PREDICTED_SETTLEMENT_MM);
-        let works = detail
-            .works
-            .map(|w| json!({"nearby": w.nearby, "comparison": w.comparison.filter(|_| compared)}));
+        let works = detail.works.map(|w| {
+            let nearby: Vec<Value> = w.nearby.iter().map(NearbyPart::json).collect();
+            json!({"nearby": nearby, "comparison": w.comparison.filter(|_| compared)})
+        });
         m.insert("works".into(), works.unwrap_or(Value::Null));
         let pdf = r
             .report_file
@@ -379,6 +451,7 @@ pub fn data(input: &ExplorerInput, dir: &Path) -> Result<Value> {
         )?);
     }
     let p = &input.results.portfolio;
+    let mut strings = Strings::default();
     Ok(json!({
         "format": DATA_FORMAT,
         "portfolio": {
@@ -398,7 +471,8 @@ pub fn data(input: &ExplorerInput, dir: &Path) -> Result<Value> {
         "dates": dates.dates.iter().map(|d| d.to_string()).collect::<Vec<_>>(),
         "date_sets": dates.sets,
         "works": input.works.map(|w| works_layer(w, o)),
-        "structures": columns(structures),
+        "structures": columns(structures, &mut strings),
+        "strings": strings.list,
     }))
 }
 
@@ -526,9 +600,28 @@ mod tests {
 
     #[test]
     fn columns_keep_every_field_of_every_record() {
-        let c = columns(vec![json!({"a": 1, "b": 2}), json!({"b": 3, "c": 4})]);
+        let mut st = Strings::default();
+        let c = columns(
+            vec![json!({"a": 1, "b": 2}), json!({"b": 3, "c": 4})],
+            &mut st,
+        );
         assert_eq!(c["fields"], json!(["a", "b", "c"]));
         assert_eq!(c["rows"], json!([[1, 2, null], [null, 3, 4]]));
+        assert!(st.list.is_empty());
+    }
+
+    #[test]
+    fn interned_fields_refer_to_one_table() {
+        let mut st = Strings::default();
+        let c = columns(
+            vec![
+                json!({"id": "a", "look_directions": ["east-looking", "west-looking"], "damage_route": "x"}),
+                json!({"id": "b", "look_directions": ["west-looking"], "damage_route": null}),
+            ],
+            &mut st,
+        );
+        assert_eq!(st.list, ["east-looking", "west-looking", "x"]);
+        assert_eq!(c["rows"], json!([["a", [0, 1], 2], ["b", [1], null]]));
     }
 
     #[test]
@@ -550,7 +643,7 @@ mod tests {
         };
         let mut t = DateTable::default();
         let j = series_json(&s, &mut t).unwrap();
-        assert_eq!(j["mm"], json!([0.0, null]), "a gap stays a gap");
+        assert_eq!(j["mm_tenths"], json!([0, null]), "a gap stays a gap");
         assert_eq!(j["dates"], 0);
         assert_eq!(t.sets, vec![vec![0, 1]]);
         assert_eq!(j["trend"]["from"], json!([0, 1.0]));

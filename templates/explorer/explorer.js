@@ -19,10 +19,18 @@
     for (let k = 0; k < LIGHT.length; k++) o[LIGHT[k]] = at[k] < 0 ? null : row[at[k]];
     return o;
   });
+  // Repeated texts arrive as indices into DATA.strings.
+  const INTERNED = new Set(["status_reasons", "evidence_grade_reasons", "damage_route", "look_directions", "datasets"]);
+  function unintern(v) {
+    if (typeof v === "number") return DATA.strings[v];
+    if (Array.isArray(v)) return v.map(unintern);
+    return v;
+  }
   function full(s) {
     const o = Object.assign({}, s);
     const row = ROWS[s._row];
-    for (let k = 0; k < FIELDS.length; k++) o[FIELDS[k]] = row[k];
+    for (let k = 0; k < FIELDS.length; k++) o[FIELDS[k]] = INTERNED.has(FIELDS[k]) ? unintern(row[k]) : row[k];
+    if (o.series) o.series = Object.assign({}, o.series, { mm: o.series.mm_tenths.map(v => (v === null ? null : v / 10)) });
     return o;
   }
   const P = DATA.portfolio;
@@ -224,7 +232,15 @@
         ctx.strokeStyle = "#333";
       }
       ctx.fill(groups[k].path, "evenodd");
-      ctx.lineWidth = px;
+      if (view.scale >= 0.6) {
+        ctx.lineWidth = px;
+      } else {
+        // City scale: a dark outline would hide the colours, and a building may be smaller than
+        // a pixel; a 2-pixel outline in the class colour keeps every one visible.
+        ctx.setLineDash([]);
+        ctx.strokeStyle = k === "insufficient" || k === "nocat" ? "#9a9a9a" : CAT_COLOURS[Number(k)];
+        ctx.lineWidth = 2 * px;
+      }
       ctx.stroke(groups[k].path);
     }
     ctx.setLineDash([]);
