@@ -494,26 +494,10 @@ pub fn script_safe_json(v: &Value) -> Result<String> {
     Ok(out)
 }
 
-/// Standard base64 (RFC 4648 §4, with padding) of `bytes`.
+/// Standard base64 (RFC 4648 §4, with padding) of `bytes`, the encoding a CSP hash source uses.
 fn base64(bytes: &[u8]) -> String {
-    const ABC: &[u8; 64] = b"ABCDEFGHIJKLMNOPQRSTUVWXYZabcdefghijklmnopqrstuvwxyz0123456789+/";
-    let mut out = String::with_capacity(bytes.len().div_ceil(3) * 4);
-    for chunk in bytes.chunks(3) {
-        let b = [
-            chunk[0],
-            *chunk.get(1).unwrap_or(&0),
-            *chunk.get(2).unwrap_or(&0),
-        ];
-        let n = (u32::from(b[0]) << 16) | (u32::from(b[1]) << 8) | u32::from(b[2]);
-        for k in 0..4 {
-            if k <= chunk.len() {
-                out.push(char::from(ABC[((n >> (18 - 6 * k)) & 63) as usize]));
-            } else {
-                out.push('=');
-            }
-        }
-    }
-    out
+    use base64::Engine;
+    base64::engine::general_purpose::STANDARD.encode(bytes)
 }
 
 /// The page's content security policy: nothing may be fetched (no network, no other file), and
