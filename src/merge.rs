@@ -359,7 +359,8 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
         for s in shards {
             copy_extra(s, d, Path::new(""), &mut copied)?;
         }
-        Ok(())
+        // Last: the page reads the merged detail files back.
+        write_explorer(d, &pf, &manifest, &portfolio_v, &records)
     })();
     match res {
         Ok(()) => staging.commit(),
@@ -368,6 +369,60 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
             Err(e)
         }
     }
+}
+
+/// explorer.html of the whole portfolio (output::explorer), from the merged results and detail
+/// files, the portfolio's footprints and works, and the first shard's window and inputs: the
+/// page a single run would write.
+fn write_explorer(
+    d: &Path,
+    pf: &crate::portfolio::Portfolio,
+    manifest: &Value,
+    portfolio_v: &Value,
+    records: &[Value],
+) -> Result<()> {
+    let results: crate::results::Results = serde_json::from_value(
+        serde_json::json!({"portfolio": portfolio_v, "structures": records}),
+    )
+    .context("the merged results do not read back as results.json")?;
+    let date = |key: &str| -> Result<chrono::NaiveDate> {
+        let text = manifest["window"][key].as_str().unwrap_or("");
+        chrono::NaiveDate::parse_from_str(text, "%Y-%m-%d")
+            .with_context(|| format!("the first shard's manifest.json has no window {key} date"))
+    };
+    let window = crate::assess::Window {
+        start: date("start")?,
+        end: date("end")?,
+    };
+    let mut warnings = crate::error::Warnings::default();
+    let (structures, crs, _) = crate::ingest::load_structures(pf, &mut warnings)?;
+    let works = match &pf.works {
+        Some(w) => Some(
+            crate::works::WorksGeometry::project(w, &crs, &pf.file)
+                .context("planned works for the explorer")?,
+        ),
+        None => None,
+    };
+    let by_id: HashMap<&str, &geo::MultiPolygon<f64>> = structures
+        .iter()
+        .map(|s| (s.raw.id.as_str(), &s.footprint))
+        .collect();
+    let empty = geo::MultiPolygon::<f64>(vec![]);
+    let no_reports = manifest
+        .pointer("/options/no_reports")
+        .and_then(Value::as_bool)
+        .unwrap_or(true);
+    let input = output::explorer::ExplorerInput {
+        results: &results,
+        footprints: (results.structures.iter())
+            .map(|r| by_id.get(r.id.as_str()).copied().unwrap_or(&empty))
+            .collect(),
+        works: works.as_ref(),
+        inputs: manifest["inputs"].clone(),
+        cautions: crate::report::pipeline::portfolio_cautions(pf, window)?,
+        reports: !no_reports,
+    };
+    output::explorer::write(d, &input)
 }
 
 /// Check the merge's output folder: never a shard, never the portfolio or (once it is read) any
@@ -520,7 +575,7 @@ fn copy_extra(src: &Path, dst: &Path, rel: &Path, copied: &mut BTreeSet<PathBuf>
     for e in entries {
         let name = e.file_name();
         let r = rel.join(&name);
-        // A shard's explorer page shows that shard only: not copied (the merged folder has none).
+        // A shard's explorer page shows that shard only: not copied (the merge writes its own).
         if rel.as_os_str().is_empty()
             && (MERGED_FILES.iter().any(|m| name == *m) || name == crate::output::explorer::FILE)
         {

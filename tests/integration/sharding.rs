@@ -99,6 +99,8 @@ fn merged_shards_equal_a_single_run() {
         "points.csv",
         "points.geojson",
         "results.gpkg",
+        // The merge writes the whole portfolio's page (a shard's page is not copied).
+        "explorer.html",
     ] {
         let a = std::fs::read(single.join(f)).unwrap();
         let b = std::fs::read(merged.join(f)).unwrap();
