@@ -40,6 +40,7 @@ fn dispatch(cli: &Cli) -> anyhow::Result<()> {
             previous,
             no_reports,
             shard,
+            no_points_geojson,
         } => {
             let opts = plinth::run::RunOptions {
                 out: Some(out.clone()),
@@ -48,6 +49,7 @@ fn dispatch(cli: &Cli) -> anyhow::Result<()> {
                 jobs: cli.jobs,
                 progress: plinth::cli::progress_allowed(cli.quiet),
                 shard: *shard,
+                no_points_geojson: *no_points_geojson,
             };
             let a = plinth::run::assess_into(portfolio, &opts, out)?;
             if !cli.quiet {

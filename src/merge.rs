@@ -155,6 +155,7 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
     let mut p_header = None;
     let mut p_rows: Vec<(PointKey, csv::StringRecord)> = Vec::new();
     let mut p_feats: Vec<(PointKey, Value)> = Vec::new();
+    let with_geojson = all_or_none(shards, "points.geojson")?;
     for d in shards {
         let (h, rows) = read_csv(&d.join("points.csv"))?;
         let col = |name: &str| {
@@ -180,6 +181,9 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
             p_rows.push((key, r));
         }
         p_header.get_or_insert(h);
+        if !with_geojson {
+            continue;
+        }
         let g = read_json(&d.join("points.geojson"))?;
         for f in g["features"].as_array().into_iter().flatten() {
             let pr = &f["properties"];
@@ -335,12 +339,14 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
         )?;
         let pr: Vec<csv::StringRecord> = p_rows.into_iter().map(|(_, r)| r).collect();
         output::write_file(d, "points.csv", &write_csv(&p_header, &pr)?)?;
-        let pfc = collection(p_feats.into_iter().map(|(_, f)| f).collect());
-        output::write_file(
-            d,
-            "points.geojson",
-            (serde_json::to_string(&pfc)? + "\n").as_bytes(),
-        )?;
+        if with_geojson {
+            let pfc = collection(p_feats.into_iter().map(|(_, f)| f).collect());
+            output::write_file(
+                d,
+                "points.geojson",
+                (serde_json::to_string(&pfc)? + "\n").as_bytes(),
+            )?;
+        }
         if let Some((structures, points)) = gpkg_layers {
             let date = portfolio_v["analysis_date"].as_str();
             let path = d.join(gpkg::FILE);
@@ -420,6 +426,23 @@ fn check_shard(dir: &Path) -> Result<()> {
     Ok(())
 }
 
+/// Whether every shard holds the output file `name` (true) or none does (false: shards written
+/// before the file existed, or, for points.geojson, with `--no-points-geojson`); an error when
+/// only some do.
+fn all_or_none(shards: &[PathBuf], name: &str) -> Result<bool> {
+    let with: Vec<&PathBuf> = shards.iter().filter(|d| d.join(name).is_file()).collect();
+    if with.is_empty() {
+        return Ok(false);
+    }
+    if let Some(d) = shards.iter().find(|d| !with.contains(d)) {
+        bail!(
+            "{} has no {name} while other shards do: merge the shards of one run only",
+            d.display()
+        );
+    }
+    Ok(true)
+}
+
 /// The features of the structures and points layers of results.gpkg.
 type GpkgLayers = (Vec<gpkg::Feature>, Vec<gpkg::Feature>);
 
@@ -430,19 +453,8 @@ fn merge_gpkg(
     idx: &dyn Fn(&str) -> Result<usize>,
     dataset_order: &HashMap<String, usize>,
 ) -> Result<Option<GpkgLayers>> {
-    let with: Vec<&PathBuf> = shards
-        .iter()
-        .filter(|d| d.join(gpkg::FILE).is_file())
-        .collect();
-    if with.is_empty() {
+    if !all_or_none(shards, gpkg::FILE)? {
         return Ok(None);
-    }
-    if let Some(d) = shards.iter().find(|d| !with.contains(d)) {
-        bail!(
-            "{} has no {} while other shards do: merge the shards of one run only",
-            d.display(),
-            gpkg::FILE
-        );
     }
     let text = |f: &gpkg::Feature, i: usize| match &f.values[i] {
         rusqlite::types::Value::Text(s) => s.clone(),

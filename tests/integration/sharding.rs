@@ -71,14 +71,50 @@ fn portfolio() -> (Fx, std::path::PathBuf) {
 
 #[test]
 fn merged_shards_equal_a_single_run() {
+    let (_fx, single, merged) = single_and_merged(&[]);
+    // The manifest lists the shards; apart from that it is the single run's.
+    let m: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(merged.join("manifest.json")).unwrap())
+            .unwrap();
+    let shards = m["shards"].as_array().unwrap();
+    assert_eq!(shards.len(), 3);
+    assert_eq!(shards[1]["shard"], "2/3");
+    let mut s: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(single.join("manifest.json")).unwrap())
+            .unwrap();
+    let mut m = m;
+    m.as_object_mut().unwrap().remove("shards");
+    // Warnings name per-shard counts (points outside every buffer), so they are not compared.
+    s.as_object_mut().unwrap().remove("warnings");
+    m.as_object_mut().unwrap().remove("warnings");
+    assert_eq!(m, s);
+}
+
+#[test]
+fn shards_without_points_geojson_merge_to_the_single_run_without_it() {
+    let (_fx, single, merged) = single_and_merged(&["--no-points-geojson"]);
+    assert!(!single.join("points.geojson").exists());
+    assert!(!merged.join("points.geojson").exists());
+    assert!(merged.join("points.csv").is_file());
+}
+
+/// A single run and the merge of its 3 shards, both with the options `extra`, after checking that
+/// every data file is byte-identical in the two (a file the single run did not write must not be
+/// in the merge either).
+fn single_and_merged(extra: &[&str]) -> (Fx, std::path::PathBuf, std::path::PathBuf) {
     let (fx, pf) = portfolio();
     let single = fx.path("single");
-    assess(&pf, &single, &["--no-reports"]);
+    let mut opts = vec!["--no-reports"];
+    opts.extend(extra);
+    assess(&pf, &single, &opts);
     let mut shard_dirs = Vec::new();
     let mut nonempty = 0;
     for k in 1..=3 {
         let d = fx.path(&format!("shard-{k}"));
-        let r = assess(&pf, &d, &["--no-reports", "--shard", &format!("{k}/3")]);
+        let shard = format!("{k}/3");
+        let mut args = opts.clone();
+        args.extend(["--shard", shard.as_str()]);
+        let r = assess(&pf, &d, &args);
         if !r["structures"].as_array().unwrap().is_empty() {
             nonempty += 1;
         }
@@ -100,6 +136,10 @@ fn merged_shards_equal_a_single_run() {
         "points.geojson",
         "results.gpkg",
     ] {
+        if !single.join(f).exists() {
+            assert!(!merged.join(f).exists(), "{f} is in the merge only");
+            continue;
+        }
         let a = std::fs::read(single.join(f)).unwrap();
         let b = std::fs::read(merged.join(f)).unwrap();
         if a != b {
@@ -113,22 +153,7 @@ fn merged_shards_equal_a_single_run() {
             panic!("{f} differs between the single run and the merged shards: {first:?}");
         }
     }
-    // The manifest lists the shards; apart from that it is the single run's.
-    let m: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(merged.join("manifest.json")).unwrap())
-            .unwrap();
-    let shards = m["shards"].as_array().unwrap();
-    assert_eq!(shards.len(), 3);
-    assert_eq!(shards[1]["shard"], "2/3");
-    let mut s: serde_json::Value =
-        serde_json::from_str(&std::fs::read_to_string(single.join("manifest.json")).unwrap())
-            .unwrap();
-    let mut m = m;
-    m.as_object_mut().unwrap().remove("shards");
-    // Warnings name per-shard counts (points outside every buffer), so they are not compared.
-    s.as_object_mut().unwrap().remove("warnings");
-    m.as_object_mut().unwrap().remove("warnings");
-    assert_eq!(m, s);
+    (fx, single, merged)
 }
 
 #[test]
