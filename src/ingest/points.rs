@@ -1453,6 +1453,7 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
         ignored_columns: ignored,
         max_rounding_mm: store.max_rounding_mm,
         reference: None,
+        row_groups: None,
     })
 }
 
