@@ -26,7 +26,8 @@ use parquet::file::reader::{FileReader, SerializedFileReader};
 use serde_json::Value;
 
 use super::gis::{Stated, settle_crs};
-use super::gis_points::{Naming, Sink, header};
+use super::gis_points::{Naming, Sink, header, rename_lines};
+use super::points::{ColumnMap, NumBlock, NumColumn};
 use crate::association::PointAssociation;
 use crate::coords::{Crs, Transformer};
 use crate::error::{InputError, Warnings};
@@ -244,6 +245,32 @@ fn group_may_reach(
     }
 }
 
+/// Count row group `g` in `groups` and say whether to read it (false: beyond `reach`, module
+/// doc); `xy` are the x and y columns when the positions come from them.
+fn take_group(
+    p: &ParquetPoints,
+    g: usize,
+    reach: Option<&Reach>,
+    xy: Option<(usize, usize)>,
+    groups: &mut RowGroupsRead,
+) -> bool {
+    let meta = p.reader.metadata().row_group(g);
+    let bytes = u64::try_from(meta.compressed_size()).unwrap_or(0);
+    let wanted = match (reach, xy) {
+        (Some(r), Some(cols)) => group_may_reach(meta, cols, r),
+        _ => true,
+    };
+    groups.total += 1;
+    groups.bytes_total += bytes;
+    if wanted {
+        groups.read += 1;
+        groups.bytes_read += bytes;
+    } else {
+        groups.rows_skipped += u64::try_from(meta.num_rows()).unwrap_or(0);
+    }
+    wanted
+}
+
 /// One decoded column of a row group.
 enum Col {
     Num(Vec<f64>),
@@ -340,6 +367,21 @@ fn wkb_point(b: &[u8]) -> Result<(f64, f64, bool), String> {
     Ok((x, y, t > 1000 || t & 0xC000_0000 != 0))
 }
 
+/// The x and y columns when the positions come from them (not from a geometry column).
+fn xy_columns(
+    p: &ParquetPoints,
+    names: &[String],
+    xy: &(String, String),
+) -> Option<(usize, usize)> {
+    match p.geometry {
+        None => names
+            .iter()
+            .position(|n| *n == xy.0)
+            .zip(names.iter().position(|n| *n == xy.1)),
+        Some(_) => None,
+    }
+}
+
 /// Stream the row groups as CSV rows (an empty line for each row of a group skipped as beyond
 /// `reach`), counting the groups in `groups`.
 fn produce(
@@ -368,26 +410,11 @@ fn produce(
     if !sink.row(&h) {
         return Ok(());
     }
-    let xy_cols = match p.geometry {
-        None => names
-            .iter()
-            .position(|n| *n == xy.0)
-            .zip(names.iter().position(|n| *n == xy.1)),
-        Some(_) => None,
-    };
+    let xy_cols = xy_columns(p, &names, xy);
     let mut row0 = 0usize;
     for g in 0..p.reader.num_row_groups() {
-        let meta = p.reader.metadata().row_group(g);
-        let bytes = u64::try_from(meta.compressed_size()).unwrap_or(0);
-        let wanted = match (reach, xy_cols) {
-            (Some(r), Some(cols)) => group_may_reach(meta, cols, r),
-            _ => true,
-        };
-        groups.total += 1;
-        groups.bytes_total += bytes;
-        if !wanted {
-            let n = usize::try_from(meta.num_rows()).unwrap_or(0);
-            groups.rows_skipped += n as u64;
+        if !take_group(p, g, reach, xy_cols, groups) {
+            let n = usize::try_from(p.reader.metadata().row_group(g).num_rows()).unwrap_or(0);
             for _ in 0..n {
                 if !sink.end() {
                     return Ok(());
@@ -396,8 +423,6 @@ fn produce(
             row0 += n;
             continue;
         }
-        groups.read += 1;
-        groups.bytes_read += bytes;
         let rg = p
             .reader
             .get_row_group(g)
@@ -468,6 +493,119 @@ fn produce(
     Ok(())
 }
 
+/// The column names of the file, in schema order.
+fn column_names(p: &ParquetPoints) -> Vec<String> {
+    let schema = p.reader.metadata().file_metadata().schema_descr();
+    schema.columns().iter().map(|c| c.path().string()).collect()
+}
+
+/// The column map for the numeric entry (`super::points::read_numeric`), or None when the file
+/// needs the text stream: positions from a geometry column, or a mapped or epoch column that is
+/// not numeric (or an id that is neither text nor a number). Its warnings are recorded only when
+/// the numeric entry is taken (the stream repeats them otherwise).
+fn numeric_map(
+    p: &ParquetPoints,
+    spec: &DatasetSpec,
+    warnings: &mut Warnings,
+) -> Result<Option<ColumnMap>, InputError> {
+    use parquet::basic::Type as T;
+    if p.geometry.is_some() {
+        return Ok(None);
+    }
+    let headers: Vec<String> = column_names(p)
+        .iter()
+        .map(|n| n.trim().to_string())
+        .collect();
+    let mut own = Warnings::default();
+    let map = super::points::column_map(headers, &spec.path, spec, &mut own)?;
+    let schema = p.reader.metadata().file_metadata().schema_descr();
+    let readable = schema.columns().iter().enumerate().all(|(k, c)| {
+        let num = matches!(
+            c.physical_type(),
+            T::DOUBLE | T::FLOAT | T::INT32 | T::INT64
+        );
+        if map.numeric(k) {
+            num
+        } else if k == map.id_col() {
+            num || c.physical_type() == T::BYTE_ARRAY
+        } else {
+            true
+        }
+    });
+    if !readable {
+        return Ok(None);
+    }
+    warnings.extend(own);
+    Ok(Some(map))
+}
+
+/// Which columns the numeric entry decodes: per column, whether it is read as a number or as the
+/// id.
+struct Wanted {
+    numeric: Vec<bool>,
+    id: usize,
+}
+
+impl Wanted {
+    fn of(map: &ColumnMap, n: usize) -> Wanted {
+        Wanted {
+            numeric: (0..n).map(|k| map.numeric(k)).collect(),
+            id: map.id_col(),
+        }
+    }
+}
+
+/// Decode the columns of row group `g` the numeric entry needs.
+fn decode_block(
+    p: &ParquetPoints,
+    g: usize,
+    wanted: &Wanted,
+    names: &[String],
+    first_line: u64,
+    file: &Path,
+) -> Result<NumBlock, InputError> {
+    let rg = p
+        .reader
+        .get_row_group(g)
+        .map_err(|e| damaged(file, format!("row group {g}"), e))?;
+    let n = usize::try_from(rg.metadata().num_rows()).unwrap_or(0);
+    let schema = p.reader.metadata().file_metadata().schema_descr();
+    let mut columns = Vec::with_capacity(names.len());
+    for (k, name) in names.iter().enumerate() {
+        if !wanted.numeric[k] && k != wanted.id {
+            columns.push(NumColumn::Skipped);
+            continue;
+        }
+        let bad = |e: parquet::errors::ParquetError| {
+            damaged(file, format!("row group {g}, column `{name}`"), e)
+        };
+        let r = rg.get_column_reader(k).map_err(bad)?;
+        let col = decode(r, n, schema.column(k).max_def_level()).map_err(bad)?;
+        columns.push(match col {
+            Col::Num(v) => NumColumn::Num(v),
+            Col::Int(v) if k == wanted.id => NumColumn::Text(
+                v.into_iter()
+                    .map(|i| i.map(|i| i.to_string().into_bytes()).unwrap_or_default())
+                    .collect(),
+            ),
+            Col::Int(v) => NumColumn::Num(
+                v.into_iter()
+                    .map(|i| i.map_or(f64::NAN, |i| i as f64))
+                    .collect(),
+            ),
+            Col::Bytes(v) => {
+                NumColumn::Text(v.into_iter().map(Option::unwrap_or_default).collect())
+            }
+            Col::Bool(_) | Col::Other => NumColumn::Skipped,
+        });
+    }
+    Ok(NumBlock {
+        first_line,
+        rows: n,
+        columns,
+    })
+}
+
 /// Read the Parquet points of dataset `spec` (see [`super::points::read_points`]), skipping the
 /// row groups beyond `reach` (module doc) when it is given.
 pub fn read(
@@ -487,6 +625,50 @@ pub fn read(
     let file = spec.path.clone();
     let geographic = p.crs.is_geographic();
     let mut groups = RowGroupsRead::default();
+    if let Some(map) = numeric_map(&p, spec, warnings).map_err(|e| rename_lines(e, &naming))? {
+        let columns = Wanted::of(
+            &map,
+            p.reader
+                .metadata()
+                .file_metadata()
+                .schema_descr()
+                .num_columns(),
+        );
+        let names = column_names(&p);
+        let xy_cols = xy_columns(&p, &names, &xy);
+        let (mut g, mut row0) = (0usize, 0u64);
+        let counts = &mut groups;
+        let p = &p;
+        let file = &file;
+        let mut next = move || -> Result<Option<NumBlock>, InputError> {
+            while g < p.reader.num_row_groups() {
+                let this = g;
+                let first_line = row0 + 2;
+                g += 1;
+                row0 += u64::try_from(p.reader.metadata().row_group(this).num_rows()).unwrap_or(0);
+                if take_group(p, this, reach, xy_cols, counts) {
+                    return decode_block(p, this, &columns, &names, first_line, file).map(Some);
+                }
+            }
+            Ok(None)
+        };
+        let mut ds = super::points::read_numeric(
+            map,
+            &spec.path,
+            spec,
+            to_analysis,
+            geographic,
+            associate,
+            &mut next,
+            warnings,
+        )
+        .map_err(|e| rename_lines(e, &naming))?;
+        drop(next);
+        ds.rows_read += groups.rows_skipped;
+        ds.rows_out_of_reach += groups.rows_skipped;
+        ds.row_groups = Some(groups);
+        return Ok(ds);
+    }
     let counts = &mut groups;
     let mut ds = super::gis_points::read_stream(
         spec,

@@ -71,7 +71,8 @@ fn portfolio() -> (Fx, std::path::PathBuf) {
 
 #[test]
 fn merged_shards_equal_a_single_run() {
-    let (_fx, single, merged) = single_and_merged(&[]);
+    let (fx, pf) = portfolio();
+    let (single, merged) = single_and_merged(&fx, &pf, &[]);
     // The manifest lists the shards; apart from that it is the single run's.
     let m: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(merged.join("manifest.json")).unwrap())
@@ -92,7 +93,8 @@ fn merged_shards_equal_a_single_run() {
 
 #[test]
 fn shards_without_points_geojson_merge_to_the_single_run_without_it() {
-    let (_fx, single, merged) = single_and_merged(&["--no-points-geojson"]);
+    let (fx, pf) = portfolio();
+    let (single, merged) = single_and_merged(&fx, &pf, &["--no-points-geojson"]);
     assert!(!single.join("points.geojson").exists());
     assert!(!merged.join("points.geojson").exists());
     assert!(merged.join("points.csv").is_file());
@@ -101,12 +103,15 @@ fn shards_without_points_geojson_merge_to_the_single_run_without_it() {
 /// A single run and the merge of its 3 shards, both with the options `extra`, after checking that
 /// every data file is byte-identical in the two (a file the single run did not write must not be
 /// in the merge either).
-fn single_and_merged(extra: &[&str]) -> (Fx, std::path::PathBuf, std::path::PathBuf) {
-    let (fx, pf) = portfolio();
+fn single_and_merged(
+    fx: &Fx,
+    pf: &std::path::Path,
+    extra: &[&str],
+) -> (std::path::PathBuf, std::path::PathBuf) {
     let single = fx.path("single");
     let mut opts = vec!["--no-reports"];
     opts.extend(extra);
-    assess(&pf, &single, &opts);
+    assess(pf, &single, &opts);
     let mut shard_dirs = Vec::new();
     let mut nonempty = 0;
     for k in 1..=3 {
@@ -114,7 +119,7 @@ fn single_and_merged(extra: &[&str]) -> (Fx, std::path::PathBuf, std::path::Path
         let shard = format!("{k}/3");
         let mut args = opts.clone();
         args.extend(["--shard", shard.as_str()]);
-        let r = assess(&pf, &d, &args);
+        let r = assess(pf, &d, &args);
         if !r["structures"].as_array().unwrap().is_empty() {
             nonempty += 1;
         }
@@ -153,7 +158,142 @@ fn single_and_merged(extra: &[&str]) -> (Fx, std::path::PathBuf, std::path::Path
             panic!("{f} differs between the single run and the merged shards: {first:?}");
         }
     }
-    (fx, single, merged)
+    (single, merged)
+}
+
+/// The fixture's points as Parquet files (`points-<name>.parquet`, one row group per structure's
+/// 15 points: the file is in spatial order) named by a second portfolio, which is returned.
+fn parquet_portfolio(fx: &Fx) -> std::path::PathBuf {
+    let mut toml = std::fs::read_to_string(fx.path("portfolio.toml")).unwrap();
+    for name in ["asc", "desc"] {
+        let csv = format!("points-{name}.csv");
+        let pq = format!("points-{name}.parquet");
+        write_parquet(&fx.path(&csv), &fx.path(&pq), 15);
+        toml = toml.replace(&format!("\"{csv}\""), &format!("\"{pq}\""));
+    }
+    let p = fx.path("portfolio-parquet.toml");
+    std::fs::write(&p, toml).unwrap();
+    p
+}
+
+/// Write a points CSV (text id, then numbers; empty = null) as Parquet with row groups of
+/// `group` rows and the writer's default min/max statistics.
+fn write_parquet(csv_path: &std::path::Path, out: &std::path::Path, group: usize) {
+    use parquet::basic::{LogicalType, Repetition, Type as Physical};
+    use parquet::data_type::{ByteArray, ByteArrayType, DoubleType};
+    use parquet::schema::types::Type;
+    use std::sync::Arc;
+    let mut r = csv::Reader::from_path(csv_path).unwrap();
+    let header: Vec<String> = r.headers().unwrap().iter().map(String::from).collect();
+    let rows: Vec<csv::StringRecord> = r.records().map(Result::unwrap).collect();
+    let mut fields = vec![Arc::new(
+        Type::primitive_type_builder(&header[0], Physical::BYTE_ARRAY)
+            .with_repetition(Repetition::REQUIRED)
+            .with_logical_type(Some(LogicalType::String))
+            .build()
+            .unwrap(),
+    )];
+    for h in &header[1..] {
+        fields.push(Arc::new(
+            Type::primitive_type_builder(h, Physical::DOUBLE)
+                .with_repetition(Repetition::OPTIONAL)
+                .build()
+                .unwrap(),
+        ));
+    }
+    let schema = Arc::new(
+        Type::group_type_builder("points")
+            .with_fields(fields)
+            .build()
+            .unwrap(),
+    );
+    let file = std::fs::File::create(out).unwrap();
+    let props = Arc::new(parquet::file::properties::WriterProperties::builder().build());
+    let mut w = parquet::file::writer::SerializedFileWriter::new(file, schema, props).unwrap();
+    for chunk in rows.chunks(group) {
+        let mut rg = w.next_row_group().unwrap();
+        let mut k = 0;
+        while let Some(mut col) = rg.next_column().unwrap() {
+            if k == 0 {
+                let ids: Vec<ByteArray> = chunk.iter().map(|r| ByteArray::from(&r[0])).collect();
+                col.typed::<ByteArrayType>()
+                    .write_batch(&ids, None, None)
+                    .unwrap();
+            } else {
+                let cells: Vec<Option<f64>> = chunk.iter().map(|r| r[k].parse().ok()).collect();
+                let values: Vec<f64> = cells.iter().flatten().copied().collect();
+                let defs: Vec<i16> = cells.iter().map(|c| i16::from(c.is_some())).collect();
+                col.typed::<DoubleType>()
+                    .write_batch(&values, Some(&defs), None)
+                    .unwrap();
+            }
+            col.close().unwrap();
+            k += 1;
+        }
+        rg.close().unwrap();
+    }
+    w.close().unwrap();
+}
+
+/// `(read, total)` of the row-group line `assess` prints for dataset `name`.
+fn row_groups_read(stderr: &str, name: &str) -> (usize, usize) {
+    let prefix = format!("points {name}: read ");
+    let line = stderr
+        .lines()
+        .find_map(|l| l.strip_prefix(&prefix))
+        .unwrap_or_else(|| panic!("no row-group line for {name} in:\n{stderr}"));
+    let words: Vec<&str> = line.split_whitespace().collect();
+    (words[0].parse().unwrap(), words[2].parse().unwrap())
+}
+
+#[test]
+fn shards_of_a_spatially_ordered_parquet_file_skip_row_groups_and_merge_to_the_single_run() {
+    let (fx, _) = portfolio();
+    let pf = parquet_portfolio(&fx);
+    // The Parquet runs equal the CSV run, and their shards merge to it.
+    let csv_run = fx.path("csv-run");
+    assess(&fx.path("portfolio.toml"), &csv_run, &["--no-reports"]);
+    let (single, _) = single_and_merged(&fx, &pf, &[]);
+    for f in ["results.json", "points.csv"] {
+        let a = std::fs::read(csv_run.join(f)).unwrap();
+        assert!(a == std::fs::read(single.join(f)).unwrap(), "{f}");
+    }
+    let run = |args: &[&str], out: &str| {
+        let out = fx.path(out);
+        let mut argv = vec![
+            "assess",
+            pf.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+        ];
+        argv.extend(args);
+        let o = plinth(&argv);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        String::from_utf8_lossy(&o.stderr).into_owned()
+    };
+    let all = run(&["--no-reports"], "single-logged");
+    for name in ["asc", "desc"] {
+        assert_eq!(
+            row_groups_read(&all, name),
+            (10, 10),
+            "every block has a structure"
+        );
+    }
+    let mut read = 0;
+    for k in 1..=3 {
+        let log = run(
+            &["--no-reports", "--shard", &format!("{k}/3")],
+            &format!("s{k}"),
+        );
+        let (r, t) = row_groups_read(&log, "asc");
+        assert_eq!(t, 10);
+        assert!(r < t, "shard {k} read {r} of {t} row groups");
+        read += r;
+    }
+    assert_eq!(
+        read, 10,
+        "each block's group is read by the one shard holding its structure"
+    );
 }
 
 #[test]
