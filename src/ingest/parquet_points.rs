@@ -660,6 +660,7 @@ pub fn read(
             geographic,
             associate,
             &mut next,
+            u64::try_from(p.reader.metadata().file_metadata().num_rows()).unwrap_or(0),
             warnings,
         )
         .map_err(|e| rename_lines(e, &naming))?;

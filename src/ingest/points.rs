@@ -1256,22 +1256,46 @@ pub(crate) struct NumBlock {
     pub(crate) columns: Vec<NumColumn>,
 }
 
-/// Digits after the point in the shortest decimal that reads back as `v` (the text Rust's `{}`
-/// writes, trailing zeros never written), when at most `limit`; None beyond (or for |v| ≥ 10¹¹).
-///
-/// The shortest text has k digits after the point exactly when k is the least count for which
-/// some decimal m·10⁻ᵏ reads back as v (it lies in v's rounding interval). For |v| < 10¹¹ and
-/// k ≤ 15 that decimal is unique and m = round(v·10ᵏ) (the product is within 10⁻⁴ of m), and
-/// m / 10ᵏ with m and 10ᵏ exact in `f64` is one correctly rounded division: the reading of the
-/// text.
+/// Digits after the point in the shortest text of `v` when at most `limit` (see
+/// [`reads_back_with`]); None beyond. The tests' reference for [`max_text_decimals`].
+#[cfg(test)]
 fn text_decimals(v: f64, limit: u32) -> Option<u32> {
-    if !(v.abs() < 1e11) {
-        return None;
+    (0..=limit).find(|&k| reads_back_with(v, k))
+}
+
+/// Whether some decimal with `k` digits after the point reads back as `v`: for |v| < 10¹¹ and
+/// |v|·10ᵏ < 2⁵³ (else false).
+///
+/// The shortest text of v (what Rust's `{}` writes, trailing zeros never written) has k digits
+/// after the point exactly when k is the least count for which some decimal m·10⁻ᵏ reads back as
+/// v (lies in v's rounding interval). Within these bounds that decimal is unique, m is the
+/// integer nearest v·10ᵏ (the product is within 10⁻⁴ of m), and m / 10ᵏ, with m and 10ᵏ exact in
+/// `f64`, is one correctly rounded division: the reading of the text.
+#[inline]
+fn reads_back_with(v: f64, k: u32) -> bool {
+    if k > 15 || !(v.abs() < 1e11) {
+        return false;
     }
-    (0..=limit.min(15)).find(|&k| {
-        let p = super::decimal::pow10(k);
-        (v * p).round() / p == v
-    })
+    let p = super::decimal::pow10(k);
+    let t = v * p;
+    if !(t.abs() < 9_007_199_254_740_992.0) {
+        return false;
+    }
+    // Nearest integer by a cast (no call into libm); exact below 2⁵³.
+    let m = (t + 0.5f64.copysign(t)) as i64;
+    m as f64 / p == v
+}
+
+/// The largest count of digits after the point in the shortest texts of `values` (non-finite ones skipped), when every one is at most
+/// `limit`. Each value is first tried at the largest count so far (one test for most values).
+fn max_text_decimals(values: impl Iterator<Item = f64>, limit: u32) -> Option<u32> {
+    let mut d = 0u32;
+    for v in values.filter(|v| v.is_finite()) {
+        if !reads_back_with(v, d) {
+            d = (d + 1..=limit).find(|&k| reads_back_with(v, k))?;
+        }
+    }
+    Some(d)
 }
 
 /// Read points from blocks of decoded columns (the Parquet reader's numeric entry): `next` gives
@@ -1279,7 +1303,7 @@ fn text_decimals(v: f64, limit: u32) -> Option<u32> {
 /// order and with its messages (`line N` as in a CSV export), applied to the numbers; a kept
 /// row is stored as the CSV reader stores the shortest decimal text of its values
 /// ([`text_decimals`]: the same decimal-exact codes), so a file gives the results of its CSV
-/// export. The next block is decoded while the current one is checked in parallel pieces: memory
+/// export. `rows` (the file's row count) sizes the store once. The next block is decoded while the current one is checked in parallel pieces: memory
 /// holds two blocks, never the file.
 #[allow(clippy::too_many_arguments)]
 pub(crate) fn read_numeric(
@@ -1290,9 +1314,12 @@ pub(crate) fn read_numeric(
     geographic: bool,
     associate: &(dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
     next: &mut (dyn FnMut() -> Result<Option<NumBlock>, InputError> + Send),
+    rows: u64,
     warnings: &mut Warnings,
 ) -> Result<Dataset, InputError> {
     let mut total = Acc::default();
+    // Room for every row, taken once (untouched room costs address space, not memory).
+    total.store.reserve_rows(rows, map.epoch_cols.len(), 16);
     {
         let rp = map.row_parser(file, spec, b',', geographic, to_analysis, associate);
         let mut cur = next()?;
@@ -1320,8 +1347,28 @@ impl RowParser<'_> {
     /// Rows `rows` of a decoded block.
     fn num_piece(&self, b: &NumBlock, rows: std::ops::Range<usize>) -> Piece {
         let mut acc = Acc::default();
+        // The epoch columns (all numbers, see `ColumnMap::numeric`).
+        let epochs: Vec<&[f64]> = self
+            .epoch_cols
+            .iter()
+            .map(|&c| match &b.columns[c] {
+                NumColumn::Num(v) => v.as_slice(),
+                _ => &[],
+            })
+            .collect();
+        if epochs.iter().any(|c| c.len() < b.rows) {
+            return Piece {
+                acc,
+                end: PieceEnd::Error(InputError::new(
+                    self.file,
+                    format!("line {}", b.first_line + rows.start as u64),
+                    "an epoch column was not decoded as numbers",
+                    "write the displacements as float or double columns",
+                )),
+            };
+        }
         for r in rows {
-            if let Err(e) = self.num_row(b, r, &mut acc) {
+            if let Err(e) = self.num_row(b, &epochs, r, &mut acc) {
                 return Piece {
                     acc,
                     end: PieceEnd::Error(e),
@@ -1335,7 +1382,13 @@ impl RowParser<'_> {
     }
 
     /// Row `r` of a decoded block: the checks of [`Self::row`] in its order, on numbers.
-    fn num_row(&self, b: &NumBlock, r: usize, acc: &mut Acc) -> Result<(), InputError> {
+    fn num_row(
+        &self,
+        b: &NumBlock,
+        epochs: &[&[f64]],
+        r: usize,
+        acc: &mut Acc,
+    ) -> Result<(), InputError> {
         let line = b.first_line + r as u64;
         let loc = || format!("line {line}");
         acc.rows += 1;
@@ -1373,8 +1426,8 @@ impl RowParser<'_> {
         let mut values = std::mem::take(&mut acc.scratch);
         values.clear();
         let mut row_max_abs_mm = 0.0f64;
-        for &col in &self.epoch_cols {
-            let mm = match cell(col) {
+        for (&col, c) in self.epoch_cols.iter().zip(epochs) {
+            let mm = match Some(c[r]).filter(|v| v.is_finite()) {
                 Some(v) => {
                     let mm = v * self.factor;
                     if mm.abs() > MAX_ABS_DISPLACEMENT_MM {
@@ -1395,14 +1448,9 @@ impl RowParser<'_> {
         };
         // Decimals of the values' shortest texts after the unit conversion; beyond the store's
         // exact range the exact figure does not matter (the row is stored scaled either way).
-        let limit = 4 + self.decimal_shift;
-        let decimals = self
-            .epoch_cols
-            .iter()
-            .filter_map(|&c| cell(c))
-            .try_fold(0u32, |d, v| {
-                text_decimals(v, limit).map(|k| d.max(k.saturating_sub(self.decimal_shift)))
-            });
+        let shift = self.decimal_shift;
+        let decimals = max_text_decimals(epochs.iter().map(|c| c[r]), 4 + shift)
+            .map(|d| d.saturating_sub(shift));
         let id = String::from_utf8_lossy(id_raw);
         let meta = self.meta(&id, line, xy, association, &h);
         let pushed = acc.store.push(meta, &values, decimals, row_max_abs_mm);
@@ -2297,6 +2345,46 @@ mod tests {
                 assert_eq!(a.max_rounding_mm, b.max_rounding_mm);
             }
         }
+    }
+
+    /// Digits after the point in Rust's shortest text of `v`.
+    fn written_decimals(v: f64) -> u32 {
+        let t = format!("{v}");
+        t.split_once('.').map_or(0, |(_, f)| f.len() as u32)
+    }
+
+    #[test]
+    fn text_decimals_counts_the_digits_of_the_shortest_text() {
+        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
+        let mut next = || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            seed
+        };
+        for i in 0..200_000 {
+            let v = match i % 4 {
+                // Short decimals of every sign and size the files hold.
+                0 => (next() % 2_000_001) as f64 / 10f64.powi((next() % 8) as i32) - 1000.0,
+                1 => -((next() % 100_000) as f64) / 1e3,
+                // Values from 32-bit floats (long texts) and arbitrary doubles.
+                2 => f64::from(f32::from_bits((next() as u32 & 0x3fff_ffff) | 0x3000_0000)),
+                _ => f64::from_bits((next() & 0x000f_ffff_ffff_ffff) | 0x4000_0000_0000_0000),
+            };
+            let w = written_decimals(v);
+            for limit in [0, 3, 4, 7] {
+                let want = (w <= limit).then_some(w);
+                assert_eq!(text_decimals(v, limit), want, "{v} (`{v}`), limit {limit}");
+            }
+        }
+        assert_eq!(text_decimals(-0.0, 4), Some(0));
+        assert_eq!(text_decimals(f64::NAN, 4), None);
+        assert_eq!(text_decimals(0.1 + 0.2, 7), None);
+        let d = |v: &[f64]| max_text_decimals(v.iter().copied(), 4);
+        assert_eq!(d(&[1.5, 2.0, f64::NAN, -0.25, 3.1]), Some(2));
+        assert_eq!(d(&[]), Some(0));
+        assert_eq!(d(&[1.5, 0.1 + 0.2]), None);
+        assert_eq!(d(&[0.00001]), None);
     }
 
     #[test]
