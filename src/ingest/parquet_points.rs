@@ -336,6 +336,56 @@ fn decode(reader: ColumnReader, n: usize, max_def: i16) -> parquet::errors::Resu
     })
 }
 
+/// Every value of a numeric column chunk as `f64` (NaN where null), in one vector of exactly `n`
+/// values (the numeric entry holds two row groups of these); None for a column that is not
+/// numeric.
+fn decode_numbers(
+    reader: ColumnReader,
+    n: usize,
+    max_def: i16,
+) -> parquet::errors::Result<Option<Vec<f64>>> {
+    fn numbers<T: DataType>(
+        r: &mut ColumnReaderImpl<T>,
+        n: usize,
+        max_def: i16,
+        to_f64: impl Fn(&T::T) -> f64,
+    ) -> parquet::errors::Result<Vec<f64>> {
+        let mut values = Vec::with_capacity(n);
+        let mut defs = Vec::with_capacity(if max_def > 0 { n } else { 0 });
+        let mut records = 0;
+        while records < n {
+            let defs = (max_def > 0).then_some(&mut defs);
+            let (read, _, _) = r.read_records(n - records, defs, None, &mut values)?;
+            if read == 0 {
+                break;
+            }
+            records += read;
+        }
+        if max_def == 0 {
+            return Ok(values.iter().map(to_f64).collect());
+        }
+        let mut it = values.iter();
+        Ok(defs
+            .iter()
+            .map(|&d| {
+                if d == max_def {
+                    it.next().map_or(f64::NAN, &to_f64)
+                } else {
+                    f64::NAN
+                }
+            })
+            .collect())
+    }
+    Ok(Some(match reader {
+        ColumnReader::DoubleColumnReader(mut r) => numbers(&mut r, n, max_def, |v| *v)?,
+        ColumnReader::FloatColumnReader(mut r) => numbers(&mut r, n, max_def, |v| f64::from(*v))?,
+        ColumnReader::Int32ColumnReader(mut r) => numbers(&mut r, n, max_def, |v| f64::from(*v))?,
+        // Beyond 2⁵³ rounded, as the text of the number would be read.
+        ColumnReader::Int64ColumnReader(mut r) => numbers(&mut r, n, max_def, |v| *v as f64)?,
+        _ => return Ok(None),
+    }))
+}
+
 /// x, y of an ISO WKB point (Z/M ignored; the flag says whether there were any).
 fn wkb_point(b: &[u8]) -> Result<(f64, f64, bool), String> {
     let le = match b.first() {
@@ -580,8 +630,13 @@ fn decode_block(
             damaged(file, format!("row group {g}, column `{name}`"), e)
         };
         let r = rg.get_column_reader(k).map_err(bad)?;
-        let col = decode(r, n, schema.column(k).max_def_level()).map_err(bad)?;
-        columns.push(match col {
+        let max_def = schema.column(k).max_def_level();
+        if wanted.numeric[k] {
+            let v = decode_numbers(r, n, max_def).map_err(bad)?;
+            columns.push(v.map_or(NumColumn::Skipped, NumColumn::Num));
+            continue;
+        }
+        columns.push(match decode(r, n, max_def).map_err(bad)? {
             Col::Num(v) => NumColumn::Num(v),
             Col::Int(v) if k == wanted.id => NumColumn::Text(
                 v.into_iter()

@@ -312,3 +312,40 @@ fn merge_refuses_overlapping_shards() {
     assert!(!o.status.success());
     assert!(!out.exists(), "a failed merge writes nothing");
 }
+
+/// A bad row of a Parquet file gets the error its CSV export gets, naming the row (its CSV line
+/// − 2) and the attribute instead of the line and the column.
+#[test]
+fn parquet_rows_get_the_errors_of_their_csv_export() {
+    let (fx, pf_csv) = portfolio();
+    let original = std::fs::read_to_string(fx.path("points-asc.csv")).unwrap();
+    // Data row 6 is CSV line 8; column 1 is `lon`, column 6 an epoch.
+    for (col, value, what) in [
+        (1, "", "x coordinate is missing"),
+        (6, "20000", "implausible"),
+    ] {
+        let mut lines: Vec<String> = original.lines().map(String::from).collect();
+        let mut cells: Vec<&str> = lines[7].split(',').collect();
+        cells[col] = value;
+        lines[7] = cells.join(",");
+        std::fs::write(fx.path("points-asc.csv"), lines.join("\n") + "\n").unwrap();
+        let pf_pq = parquet_portfolio(&fx);
+        let err = |pf: &std::path::Path| {
+            let o = plinth(&["check", pf.to_str().unwrap()]);
+            assert!(!o.status.success(), "{what}: the check passed");
+            let e = String::from_utf8_lossy(&o.stderr).into_owned();
+            e.lines()
+                .find(|l| l.starts_with("error:"))
+                .unwrap_or_else(|| panic!("no error line in {e}"))
+                .to_string()
+        };
+        let from_csv = err(&pf_csv);
+        let from_pq = err(&pf_pq);
+        assert!(from_csv.contains(what), "{from_csv}");
+        assert!(from_pq.contains("row 6, attribute"), "{from_pq}");
+        let expected = from_csv
+            .replace("points-asc.csv", "points-asc.parquet")
+            .replace("line 8, column", "row 6, attribute");
+        assert_eq!(from_pq, expected);
+    }
+}
