@@ -404,6 +404,9 @@ struct Piece {
 /// (`what` is e.g. "x coordinate").
 type NumField<'f> = dyn Fn(usize, &str) -> Result<Option<f64>, InputError> + 'f;
 
+/// A kept point's analysis-CRS position (m) and association.
+type Placed = ((f64, f64), PointAssociation);
+
 /// The checked values of a row besides its epochs (see [`RowParser::row_head`]).
 struct RowHead {
     x: f64,
@@ -880,7 +883,7 @@ impl RowParser<'_> {
         x: f64,
         y: f64,
         acc: &mut Acc,
-    ) -> Result<Option<((f64, f64), PointAssociation)>, InputError> {
+    ) -> Result<Option<Placed>, InputError> {
         let file = self.file;
         let loc = || format!("line {line}");
         let (ax, ay) = self.to_analysis.apply(x, y).map_err(|e| {
@@ -1273,12 +1276,13 @@ fn text_decimals(v: f64, limit: u32) -> Option<u32> {
 /// `f64`, is one correctly rounded division: the reading of the text.
 #[inline]
 fn reads_back_with(v: f64, k: u32) -> bool {
-    if k > 15 || !(v.abs() < 1e11) {
+    // Infinities fail the first test, NaN the second.
+    if k > 15 || v.abs() >= 1e11 || v.is_nan() {
         return false;
     }
     let p = super::decimal::pow10(k);
     let t = v * p;
-    if !(t.abs() < 9_007_199_254_740_992.0) {
+    if t.abs() >= 9_007_199_254_740_992.0 {
         return false;
     }
     // Nearest integer by a cast (no call into libm); exact below 2⁵³.
