@@ -1276,7 +1276,7 @@ fn text_decimals(v: f64, limit: u32) -> Option<u32> {
 /// `f64`, is one correctly rounded division: the reading of the text.
 #[inline]
 fn reads_back_with(v: f64, k: u32) -> bool {
-    // Infinities fail the first test, NaN the second.
+    // Infinities fail the size test, NaN its own.
     if k > 15 || v.abs() >= 1e11 || v.is_nan() {
         return false;
     }
