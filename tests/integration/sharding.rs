@@ -349,3 +349,31 @@ fn parquet_rows_get_the_errors_of_their_csv_export() {
         assert_eq!(from_pq, expected);
     }
 }
+
+/// Shards of which only some wrote points.geojson are not from one run: the merge refuses them.
+#[test]
+fn merge_refuses_shards_with_and_without_points_geojson() {
+    let (fx, pf) = portfolio();
+    let (a, b) = (fx.path("a"), fx.path("b"));
+    assess(&pf, &a, &["--no-reports", "--shard", "1/2"]);
+    assess(
+        &pf,
+        &b,
+        &["--no-reports", "--shard", "2/2", "--no-points-geojson"],
+    );
+    let out = fx.path("merged");
+    let o = plinth(&[
+        "merge",
+        a.to_str().unwrap(),
+        b.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+    ]);
+    assert!(!o.status.success());
+    let e = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        e.contains("has no points.geojson while other shards do"),
+        "{e}"
+    );
+    assert!(!out.exists(), "a failed merge writes nothing");
+}
