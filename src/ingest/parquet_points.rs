@@ -10,7 +10,7 @@
 //!
 //! Row groups beyond reach are not read: when the positions come from the `columns.x` /
 //! `columns.y` columns and the file records their min/max per row group (pyarrow and GDAL do),
-//! a group whose box, carried into the analysis CRS with a margin ([`box_in_analysis`]), meets
+//! a group whose box, carried into the analysis CRS with a margin (`box_in_analysis`), meets
 //! no structure's reach (nor the `[reference]` area) is skipped. Its rows count as read and out
 //! of reach, as a full read would find them, and keep their row numbers (the CSV stream gets one
 //! empty line per skipped row); they are not validated, so a bad value there is not reported.

@@ -1304,11 +1304,14 @@ fn max_text_decimals(values: impl Iterator<Item = f64>, limit: u32) -> Option<u3
 
 /// Read points from blocks of decoded columns (the Parquet reader's numeric entry): `next` gives
 /// the blocks in file order (None after the last). Every row gets the CSV reader's checks, in its
-/// order and with its messages (`line N` as in a CSV export), applied to the numbers; a kept
-/// row is stored as the CSV reader stores the shortest decimal text of its values
-/// ([`text_decimals`]: the same decimal-exact codes), so a file gives the results of its CSV
-/// export. `rows` (the file's row count) sizes the store once. The next block is decoded while the current one is checked in parallel pieces: memory
-/// holds two blocks, never the file.
+/// order and with its messages (`line N` as in a CSV export), applied to the numbers; a kept row
+/// is stored as the CSV reader stores the shortest decimal text of its values
+/// ([`max_text_decimals`]: the same decimal-exact codes), so a file gives the results of its CSV
+/// export. Limit: a row that needs the scaled store (more than 4 decimals in mm) is scaled from
+/// `value · unit factor`, where the CSV reader's fast path forms `mantissa · 10⁻ᵏ · factor`; the two
+/// agree to an ulp or two, which changes a 16-bit code only when the scaled value lies that close
+/// to a half. `rows` (the file's row count) sizes the store once. The next block is decoded while
+/// the current one is checked in parallel pieces: memory holds two blocks, never the file.
 #[allow(clippy::too_many_arguments)]
 pub(crate) fn read_numeric(
     map: ColumnMap,
