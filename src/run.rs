@@ -161,6 +161,20 @@ fn to_series_look(l: LookSide) -> crate::series::los::LookSide {
     }
 }
 
+/// Points of dataset `d` out of reach of every structure: the rows read minus the points listed
+/// in points.csv (with an owner, a surroundings ring or as a tie). The reader's own count
+/// (`rows_out_of_reach`) leaves out the points it kept because they lie inside a structure's
+/// envelope but beyond its reach, and reference-area points; counting them here gives the figure
+/// a merge of shards recomputes from the listed points.
+fn out_of_reach(d: &ingest::Dataset) -> u64 {
+    let listed = d
+        .association
+        .iter()
+        .filter(|l| l.tie() || l.structure().is_some())
+        .count();
+    d.rows_read.saturating_sub(listed as u64)
+}
+
 /// Decide the assessment window from the portfolio and the data.
 ///
 /// Default start = the first common epoch (the latest first date among datasets); default end =
@@ -877,7 +891,7 @@ fn tally(
     };
     for d in &p.inputs.datasets {
         coverage.points_read.insert(d.name.clone(), d.rows_read);
-        coverage.points_out_of_reach += d.rows_out_of_reach;
+        coverage.points_out_of_reach += out_of_reach(d);
     }
     if association.ties > 0 {
         coverage
@@ -1017,7 +1031,7 @@ pub fn check(portfolio_path: &Path) -> Result<CheckSummary> {
     };
     for d in datasets {
         coverage.points_read.insert(d.name.clone(), d.rows_read);
-        coverage.points_out_of_reach += d.rows_out_of_reach;
+        coverage.points_out_of_reach += out_of_reach(d);
         for l in &d.association {
             if l.tie() {
                 coverage.ties += 1;
