@@ -5,6 +5,20 @@ use crate::fixture::*;
 /// Ten invented blocks on a 300 m grid (far beyond the surroundings distance, so no point is
 /// within reach of two structures), two geometries, settling at different rates.
 fn portfolio() -> (Fx, std::path::PathBuf) {
+    // Input order deliberately not sorted by id, so the merge must use the footprint order.
+    let ids = ["K7", "B2", "Z1", "A9", "M4", "C3", "Q8", "D5", "X6", "E0"];
+    let blocks: Vec<(&str, f64, f64)> = ids
+        .iter()
+        .enumerate()
+        .map(|(s, id)| (*id, (s % 4) as f64 * 300.0, (s / 4) as f64 * 300.0))
+        .collect();
+    blocks_portfolio(&blocks)
+}
+
+/// Blocks (id, centre east, centre north; 20 × 10 m footprints), each with 12 points inside,
+/// 2 in the buffer and 1 ground point 25 m north, in two geometries; block s settles at
+/// 1 + 0.7·s mm/yr.
+fn blocks_portfolio(blocks: &[(&str, f64, f64)]) -> (Fx, std::path::PathBuf) {
     let geoms = [
         ("asc", "ascending", 38.0, -12.0),
         ("desc", "descending", 41.0, 192.0),
@@ -13,13 +27,10 @@ fn portfolio() -> (Fx, std::path::PathBuf) {
     let t = years(&ds);
     let mut structures = Vec::new();
     let mut datasets = Vec::new();
-    // Input order deliberately not sorted by id, so the merge must use the footprint order.
-    let ids = ["K7", "B2", "Z1", "A9", "M4", "C3", "Q8", "D5", "X6", "E0"];
     for (g, (name, pass, inc, head)) in geoms.iter().enumerate() {
         let u = unit(*inc, *head);
         let mut points = Vec::new();
-        for (s, id) in ids.iter().enumerate() {
-            let (cx, cy) = ((s % 4) as f64 * 300.0, (s / 4) as f64 * 300.0);
+        for (s, &(id, cx, cy)) in blocks.iter().enumerate() {
             let v_up = -1.0 - s as f64 * 0.7;
             // 12 points inside, 2 in the buffer, 1 ground point in the surroundings.
             let mut spots: Vec<(f64, f64)> = (0..12)
@@ -52,10 +63,9 @@ fn portfolio() -> (Fx, std::path::PathBuf) {
             points,
         });
         if g == 0 {
-            for (s, id) in ids.iter().enumerate() {
-                let (cx, cy) = ((s % 4) as f64 * 300.0, (s / 4) as f64 * 300.0);
+            for &(id, cx, cy) in blocks {
                 structures.push(FxStructure {
-                    id: (*id).into(),
+                    id: id.into(),
                     name: format!("Block {id}"),
                     height_m: Some(9.0),
                     structure: Some("masonry".into()),
@@ -376,4 +386,32 @@ fn merge_refuses_shards_with_and_without_points_geojson() {
         "{e}"
     );
     assert!(!out.exists(), "a failed merge writes nothing");
+}
+
+/// Two blocks 40 m apart (20 m between the footprints), one per shard: every point of one block
+/// lies in the other's surroundings ring, and each ground point (25 m north of its block) is only
+/// in rings, both blocks'. Each shard lists those points with its own structure; the merge lists
+/// them as the single run does.
+#[test]
+fn points_near_the_border_between_shards_are_listed_as_by_a_single_run() {
+    let (fx, pf) = blocks_portfolio(&[("W1", 0.0, 0.0), ("E2", 40.0, 0.0)]);
+    let (single, merged) = single_and_merged(&fx, &pf, &[]);
+    let text = std::fs::read_to_string(merged.join("points.csv")).unwrap();
+    // E2's ground point: in both rings, listed once with the nearer structure (E2, 20 m).
+    let rows: Vec<&str> = text.lines().filter(|l| l.contains("-E2-14,")).collect();
+    assert_eq!(rows.len(), 2, "one row per dataset: {rows:?}");
+    for r in rows {
+        assert!(r.contains(",E2,surroundings,") && r.ends_with(",2"), "{r}");
+    }
+    // A point inside W1: its owner's row, in one more ring (E2's).
+    let rows: Vec<&str> = text.lines().filter(|l| l.contains("-W1-0,")).collect();
+    assert_eq!(rows.len(), 2, "{rows:?}");
+    assert!(
+        rows.iter()
+            .all(|r| r.contains(",W1,structure,") && r.ends_with(",1"))
+    );
+    let r: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(single.join("results.json")).unwrap())
+            .unwrap();
+    assert_eq!(r["portfolio"]["coverage"]["points_surroundings_only"], 4);
 }
