@@ -24,6 +24,7 @@ pub mod report;
 pub mod results;
 pub mod run;
 pub mod series;
+pub mod shard;
 pub mod synth;
 pub mod text;
 pub mod triggers;

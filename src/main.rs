@@ -40,6 +40,7 @@ fn dispatch(cli: &Cli) -> anyhow::Result<()> {
             previous,
             no_reports,
             shard,
+            no_points_geojson,
         } => {
             let opts = plinth::run::RunOptions {
                 out: Some(out.clone()),
@@ -48,10 +49,12 @@ fn dispatch(cli: &Cli) -> anyhow::Result<()> {
                 jobs: cli.jobs,
                 progress: plinth::cli::progress_allowed(cli.quiet),
                 shard: *shard,
+                no_points_geojson: *no_points_geojson,
             };
             let a = plinth::run::assess_into(portfolio, &opts, out)?;
             if !cli.quiet {
                 print_summary(&a.results.portfolio, &a.warnings);
+                print_row_groups(&a.inputs.datasets);
                 eprintln!("results written to {}", out.display());
             }
             Ok(())
@@ -172,11 +175,33 @@ fn print_check(c: &plinth::run::CheckSummary) {
         eprintln!("  insufficient_data: 0");
     }
     print_points(cov);
+    print_row_groups(&p.inputs.datasets);
     eprintln!(
         "not checked here: unwrapping jumps, the time-series checks, metrics and damage (`plinth assess` decides them; it can find more structures insufficient)"
     );
     for line in p.warnings.summary(3) {
         eprintln!("{line}");
+    }
+}
+
+/// One line per Parquet points file: the row groups and bytes read (the others lie beyond the
+/// structures' reach).
+fn print_row_groups(datasets: &[plinth::ingest::Dataset]) {
+    for d in datasets {
+        let Some(g) = d.row_groups else { continue };
+        let pct = if g.bytes_total > 0 {
+            100.0 * g.bytes_read as f64 / g.bytes_total as f64
+        } else {
+            100.0
+        };
+        eprintln!(
+            "points {}: read {} of {} Parquet row groups, {:.1} of {:.1} MB ({pct:.0} % of the point bytes)",
+            d.name,
+            g.read,
+            g.total,
+            g.bytes_read as f64 / 1e6,
+            g.bytes_total as f64 / 1e6
+        );
     }
 }
 

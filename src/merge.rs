@@ -9,10 +9,11 @@
 //!
 //! The record files are merged at the level of their parsed values and written with the same
 //! serialisers as a single run, so a merge of shards equals a single run byte for byte when every
-//! structure's result is independent of the other shards' structures. Limitation (documented in
-//! docs/performance.md): a point within reach of structures in two different shards is associated
-//! in each shard without the other shard's structures, so its tie/owner decision can differ from
-//! a single run's.
+//! structure's result is independent of the other shards' structures. A point listed by several
+//! shards (near the border between their areas) is reduced to the row a single run writes (see
+//! `one_row_per_point`). Limitation (documented in docs/performance.md): such a point is
+//! associated in each shard without the other shard's structures, so a tie between structures of
+//! two shards is not seen (each shard counts the point as its structure's).
 //!
 //! It does not analyse anything and never reads the points files.
 
@@ -155,6 +156,7 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
     let mut p_header = None;
     let mut p_rows: Vec<(PointKey, csv::StringRecord)> = Vec::new();
     let mut p_feats: Vec<(PointKey, Value)> = Vec::new();
+    let with_geojson = all_or_none(shards, "points.geojson")?;
     for d in shards {
         let (h, rows) = read_csv(&d.join("points.csv"))?;
         let col = |name: &str| {
@@ -180,6 +182,9 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
             p_rows.push((key, r));
         }
         p_header.get_or_insert(h);
+        if !with_geojson {
+            continue;
+        }
         let g = read_json(&d.join("points.geojson"))?;
         for f in g["features"].as_array().into_iter().flatten() {
             let pr = &f["properties"];
@@ -197,6 +202,39 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
     p_rows.sort_by_key(|(k, _)| *k);
     p_feats.sort_by_key(|(k, _)| *k);
     let p_header = p_header.context("no points.csv")?;
+    let csv_col = |n: &str| p_header.iter().position(|c| c == n);
+    let (Some(c_role), Some(c_dist), Some(c_rings)) = (
+        csv_col("role"),
+        csv_col("distance_m"),
+        csv_col("surroundings_of"),
+    ) else {
+        bail!("points.csv lacks role, distance_m or surroundings_of: merge shards of this version");
+    };
+    let p_rows = one_row_per_point(
+        p_rows,
+        |r| RowView {
+            role: r[c_role].to_string(),
+            distance_m: r[c_dist].parse().unwrap_or(f64::INFINITY),
+            rings: r[c_rings].parse().unwrap_or(0),
+        },
+        |r, n| {
+            let mut fields: Vec<String> = r.iter().map(String::from).collect();
+            fields[c_rings] = n.to_string();
+            *r = csv::StringRecord::from(fields);
+        },
+    );
+    let p_feats = one_row_per_point(
+        p_feats,
+        |f| {
+            let pr = &f["properties"];
+            RowView {
+                role: pr["role"].as_str().unwrap_or("").to_string(),
+                distance_m: pr["distance_m"].as_f64().unwrap_or(f64::INFINITY),
+                rings: pr["surroundings_of"].as_u64().unwrap_or(0),
+            }
+        },
+        |f, n| f["properties"]["surroundings_of"] = Value::from(n),
+    );
 
     // results.json.
     let mut structures: Vec<(usize, Value)> = Vec::new();
@@ -335,12 +373,14 @@ pub fn merge(shards: &[PathBuf], out: &Path, portfolio: Option<&Path>) -> Result
         )?;
         let pr: Vec<csv::StringRecord> = p_rows.into_iter().map(|(_, r)| r).collect();
         output::write_file(d, "points.csv", &write_csv(&p_header, &pr)?)?;
-        let pfc = collection(p_feats.into_iter().map(|(_, f)| f).collect());
-        output::write_file(
-            d,
-            "points.geojson",
-            (serde_json::to_string(&pfc)? + "\n").as_bytes(),
-        )?;
+        if with_geojson {
+            let pfc = collection(p_feats.into_iter().map(|(_, f)| f).collect());
+            output::write_file(
+                d,
+                "points.geojson",
+                (serde_json::to_string(&pfc)? + "\n").as_bytes(),
+            )?;
+        }
         if let Some((structures, points)) = gpkg_layers {
             let date = portfolio_v["analysis_date"].as_str();
             let path = d.join(gpkg::FILE);
@@ -475,6 +515,23 @@ fn check_shard(dir: &Path) -> Result<()> {
     Ok(())
 }
 
+/// Whether every shard holds the output file `name` (true) or none does (false: shards written
+/// before the file existed, or, for points.geojson, with `--no-points-geojson`); an error when
+/// only some do.
+fn all_or_none(shards: &[PathBuf], name: &str) -> Result<bool> {
+    let with: Vec<&PathBuf> = shards.iter().filter(|d| d.join(name).is_file()).collect();
+    if with.is_empty() {
+        return Ok(false);
+    }
+    if let Some(d) = shards.iter().find(|d| !with.contains(d)) {
+        bail!(
+            "{} has no {name} while other shards do: merge the shards of one run only",
+            d.display()
+        );
+    }
+    Ok(true)
+}
+
 /// The features of the structures and points layers of results.gpkg.
 type GpkgLayers = (Vec<gpkg::Feature>, Vec<gpkg::Feature>);
 
@@ -485,19 +542,8 @@ fn merge_gpkg(
     idx: &dyn Fn(&str) -> Result<usize>,
     dataset_order: &HashMap<String, usize>,
 ) -> Result<Option<GpkgLayers>> {
-    let with: Vec<&PathBuf> = shards
-        .iter()
-        .filter(|d| d.join(gpkg::FILE).is_file())
-        .collect();
-    if with.is_empty() {
+    if !all_or_none(shards, gpkg::FILE)? {
         return Ok(None);
-    }
-    if let Some(d) = shards.iter().find(|d| !with.contains(d)) {
-        bail!(
-            "{} has no {} while other shards do: merge the shards of one run only",
-            d.display(),
-            gpkg::FILE
-        );
     }
     let text = |f: &gpkg::Feature, i: usize| match &f.values[i] {
         rusqlite::types::Value::Text(s) => s.clone(),
@@ -540,10 +586,94 @@ fn merge_gpkg(
     }
     structures.sort_by_key(|(i, _)| *i);
     points.sort_by_key(|(k, _)| *k);
+    let (c_dist, c_rings) = (col("distance_m"), col("surroundings_of"));
+    let points = one_row_per_point(
+        points,
+        |f| RowView {
+            role: text(f, c_role),
+            distance_m: match f.values[c_dist] {
+                rusqlite::types::Value::Real(d) => d,
+                _ => f64::INFINITY,
+            },
+            rings: match f.values[c_rings] {
+                rusqlite::types::Value::Integer(n) => u64::try_from(n).unwrap_or(0),
+                _ => 0,
+            },
+        },
+        |f, n| f.values[c_rings] = rusqlite::types::Value::Integer(n as i64),
+    );
     Ok(Some((
         structures.into_iter().map(|(_, f)| f).collect(),
         points.into_iter().map(|(_, f)| f).collect(),
     )))
+}
+
+/// What [`one_row_per_point`] reads of a point row.
+struct RowView {
+    role: String,
+    distance_m: f64,
+    rings: u64,
+}
+
+/// A point near the border between shards is listed by every shard holding a structure whose
+/// footprint, buffer or ring holds it, each shard seeing only its own structures. A single run
+/// lists it once: with its owner when it has one, else with the nearest structure whose ring
+/// holds it (the lower input order among equal distances), `surroundings_of` counting the rings
+/// of all structures. The rows of one point (same dataset and line, consecutive in `rows`) are
+/// reduced to that row; a point with a tie row, or owned in two shards (which a single run may
+/// call a tie), keeps its rows.
+fn one_row_per_point<T>(
+    rows: Vec<(PointKey, T)>,
+    view: impl Fn(&T) -> RowView,
+    set_rings: impl Fn(&mut T, u64),
+) -> Vec<(PointKey, T)> {
+    let mut out = Vec::with_capacity(rows.len());
+    let mut group: Vec<(PointKey, T)> = Vec::new();
+    for row in rows {
+        if group
+            .last()
+            .is_some_and(|g| (g.0.0, g.0.1) != (row.0.0, row.0.1))
+        {
+            out.extend(reduce_point(std::mem::take(&mut group), &view, &set_rings));
+        }
+        group.push(row);
+    }
+    out.extend(reduce_point(group, &view, &set_rings));
+    out
+}
+
+/// The rows of one point reduced as [`one_row_per_point`] says.
+fn reduce_point<T>(
+    mut group: Vec<(PointKey, T)>,
+    view: &impl Fn(&T) -> RowView,
+    set_rings: &impl Fn(&mut T, u64),
+) -> Vec<(PointKey, T)> {
+    if group.len() < 2 {
+        return group;
+    }
+    let views: Vec<RowView> = group.iter().map(|(_, t)| view(t)).collect();
+    if views.iter().any(|v| v.role == "tie") {
+        return group;
+    }
+    let owners: Vec<usize> = (0..views.len())
+        .filter(|&i| views[i].role == "structure")
+        .collect();
+    let chosen = match owners.as_slice() {
+        [one] => *one,
+        [] => (0..views.len())
+            .min_by(|&a, &b| {
+                views[a]
+                    .distance_m
+                    .total_cmp(&views[b].distance_m)
+                    .then(group[a].0.3.cmp(&group[b].0.3))
+            })
+            .unwrap_or(0),
+        _ => return group,
+    };
+    let rings = views.iter().map(|v| v.rings).sum();
+    let mut row = group.swap_remove(chosen);
+    set_rings(&mut row.1, rings);
+    vec![row]
 }
 
 fn point_key(
@@ -593,4 +723,70 @@ fn copy_extra(src: &Path, dst: &Path, rel: &Path, copied: &mut BTreeSet<PathBuf>
         }
     }
     Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Rows as (key, (role, distance, rings)).
+    fn rows(r: &[(u64, usize, &str, f64, u64)]) -> Vec<(PointKey, (String, f64, u64))> {
+        r.iter()
+            .map(|&(line, s, role, d, n)| {
+                let tie = u8::from(role != "tie");
+                ((0, line, tie, s), (role.to_string(), d, n))
+            })
+            .collect()
+    }
+
+    fn reduce(r: &[(u64, usize, &str, f64, u64)]) -> Vec<(u64, usize, u64)> {
+        one_row_per_point(
+            rows(r),
+            |t| RowView {
+                role: t.0.clone(),
+                distance_m: t.1,
+                rings: t.2,
+            },
+            |t, n| t.2 = n,
+        )
+        .into_iter()
+        .map(|(k, t)| (k.1, k.3, t.2))
+        .collect()
+    }
+
+    #[test]
+    fn border_points_keep_the_owner_or_the_nearest_ring_with_every_ring_counted() {
+        // Line 2: owned in one shard, in a ring in another: the owner's row, rings summed.
+        // Line 3: rings in two shards: the nearer structure (7 at 26 m), 1 + 2 rings.
+        // Line 4: equal distances: the structure first in input order.
+        // Line 5: one row: unchanged. Line 6: owned in two shards: both rows kept.
+        let got = reduce(&[
+            (2, 3, "surroundings", 46.5, 1),
+            (2, 9, "structure", 0.0, 0),
+            (3, 1, "surroundings", 49.1, 1),
+            (3, 7, "surroundings", 26.2, 2),
+            (4, 2, "surroundings", 30.0, 1),
+            (4, 5, "surroundings", 30.0, 1),
+            (5, 4, "surroundings", 12.0, 3),
+            (6, 1, "structure", 1.0, 0),
+            (6, 8, "structure", 1.2, 0),
+        ]);
+        assert_eq!(
+            got,
+            [
+                (2, 9, 1),
+                (3, 7, 3),
+                (4, 2, 2),
+                (5, 4, 3),
+                (6, 1, 0),
+                (6, 8, 0)
+            ]
+        );
+    }
+
+    #[test]
+    fn a_point_with_a_tie_row_keeps_its_rows() {
+        let got = reduce(&[(2, 0, "tie", 0.0, 2), (2, 4, "surroundings", 40.0, 1)]);
+        assert_eq!(got, [(2, 0, 2), (2, 4, 1)]);
+    }
 }

@@ -301,7 +301,8 @@ pub struct Coverage {
     pub points_rejected: BTreeMap<String, usize>,
     /// Points within reach but neither on a structure nor a tie (surroundings only).
     pub points_surroundings_only: usize,
-    /// Points outside every structure's reach (not kept).
+    /// Points read that are in no structure's footprint, buffer or surroundings ring (the rows
+    /// read minus the points listed in points.csv).
     pub points_out_of_reach: u64,
     /// Points excluded as ties between structures.
     pub ties: usize,

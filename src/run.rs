@@ -39,6 +39,8 @@ pub struct RunOptions {
     pub progress: bool,
     /// `(k, n)`: run only shard k of n (1-based).
     pub shard: Option<(usize, usize)>,
+    /// Leave points.geojson out (points.csv and results.gpkg hold the same rows).
+    pub no_points_geojson: bool,
 }
 
 /// Everything a run produced in memory (the per-structure detail is in the output folder).
@@ -164,6 +166,20 @@ fn to_series_look(l: LookSide) -> crate::series::los::LookSide {
     }
 }
 
+/// Points of dataset `d` out of reach of every structure: the rows read minus the points listed
+/// in points.csv (with an owner, a surroundings ring or as a tie). The reader's own count
+/// (`rows_out_of_reach`) leaves out the points it kept because they lie inside a structure's
+/// envelope but beyond its reach, and reference-area points; counting them here gives the figure
+/// a merge of shards recomputes from the listed points.
+fn out_of_reach(d: &ingest::Dataset) -> u64 {
+    let listed = d
+        .association
+        .iter()
+        .filter(|l| l.tie() || l.structure().is_some())
+        .count();
+    d.rows_read.saturating_sub(listed as u64)
+}
+
 /// Decide the assessment window from the portfolio and the data.
 ///
 /// Default start = the first common epoch (the latest first date among datasets); default end =
@@ -267,16 +283,6 @@ pub fn window_for(
         );
     }
     Ok(Window { start, end })
-}
-
-/// Stable assignment of a structure id to shard k of n (1-based): FNV-1a hash of the id.
-pub fn shard_of(id: &str, n: usize) -> usize {
-    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
-    for b in id.as_bytes() {
-        h ^= u64::from(*b);
-        h = h.wrapping_mul(0x0100_0000_01b3);
-    }
-    (h % n as u64) as usize + 1
 }
 
 /// The context every structure's assessment shares: window epochs, scene LOS vectors, criteria,
@@ -498,7 +504,18 @@ fn load_shard(
     let Some((k, n)) = shard else {
         return Ok((structures, analysis_crs, index));
     };
-    structures.retain(|s| shard_of(&s.raw.id, n) == k);
+    let centroids: Vec<(f64, f64)> = structures
+        .iter()
+        .map(|s| {
+            use geo::Centroid;
+            s.footprint
+                .centroid()
+                .map_or((f64::NAN, f64::NAN), |c| (c.x(), c.y()))
+        })
+        .collect();
+    let mine = crate::shard::members(&centroids, k, n);
+    let mut flags = mine.iter();
+    structures.retain(|_| flags.next().copied().unwrap_or(false));
     // Re-index after sharding so that each shard reads only points near its own structures.
     for (i, s) in structures.iter_mut().enumerate() {
         s.index = i;
@@ -879,7 +896,7 @@ fn tally(
     };
     for d in &p.inputs.datasets {
         coverage.points_read.insert(d.name.clone(), d.rows_read);
-        coverage.points_out_of_reach += d.rows_out_of_reach;
+        coverage.points_out_of_reach += out_of_reach(d);
     }
     if association.ties > 0 {
         coverage
@@ -1019,7 +1036,7 @@ pub fn check(portfolio_path: &Path) -> Result<CheckSummary> {
     };
     for d in datasets {
         coverage.points_read.insert(d.name.clone(), d.rows_read);
-        coverage.points_out_of_reach += d.rows_out_of_reach;
+        coverage.points_out_of_reach += out_of_reach(d);
         for l in &d.association {
             if l.tie() {
                 coverage.ties += 1;
@@ -1256,6 +1273,7 @@ pub fn manifest(
             "previous": opts.previous.as_ref().map(|p| p.display().to_string()),
             "no_reports": opts.no_reports,
             "shard": opts.shard.map(|(k, n)| format!("{k}/{n}")),
+            "no_points_geojson": opts.no_points_geojson,
         },
         "warnings": a.warnings.items,
     }))
@@ -1301,7 +1319,7 @@ fn write_outputs(
     digests: std::thread::JoinHandle<Result<Vec<InputDigest>>>,
 ) -> Result<()> {
     let (points, (results, gpkg)) = rayon::join(
-        || write_points(a, d),
+        || write_points(a, d, !opts.no_points_geojson),
         || rayon::join(|| write_results(a, d), || write_gpkg(a, d)),
     );
     points?;
@@ -1403,9 +1421,11 @@ fn write_results(a: &Analysis, d: &Path) -> Result<()> {
     })
 }
 
-/// points.csv and points.geojson, written together: pieces of a few thousand points are
-/// formatted in parallel, a few per worker at a time (bounded memory), and written in order.
-fn write_points(a: &Analysis, d: &Path) -> Result<()> {
+/// points.csv and points.geojson (unless `geojson` is false), written together: pieces of a few
+/// thousand points are formatted in parallel, a few per worker at a time (bounded memory), and
+/// written in order.
+fn write_points(a: &Analysis, d: &Path, geojson: bool) -> Result<()> {
+    use std::io::Write;
     const PIECE: usize = 1 << 14;
     let to_wgs =
         crate::coords::Transformer::new(&a.inputs.analysis_crs, &crate::coords::Crs::wgs84());
@@ -1420,45 +1440,54 @@ fn write_points(a: &Analysis, d: &Path) -> Result<()> {
                 .map(move |s| (di, s..(s + PIECE).min(ds.len())))
         })
         .collect();
-    output::write_with(d, "points.csv", |csv| {
-        output::write_with(d, "points.geojson", |geojson| {
-            let mut head = Vec::new();
-            output::points_csv_header(&mut head)?;
-            csv.write_all(&head)?;
-            geojson.write_all(output::POINTS_GEOJSON_HEAD)?;
-            let mut first = true;
-            for wave in pieces.chunks(4 * rayon::current_num_threads()) {
-                let texts: Vec<Result<(Vec<u8>, Vec<u8>)>> = wave
-                    .par_iter()
-                    .map(|(di, range)| {
-                        let (mut c, mut g) = (Vec::new(), Vec::new());
-                        output::points_csv_rows(
-                            a.point_rows_of(*di, range.clone(), &to_wgs),
-                            &mut c,
-                        )?;
+    let write_both = |csv: &mut dyn Write, mut geo: Option<&mut dyn Write>| -> Result<()> {
+        let mut head = Vec::new();
+        output::points_csv_header(&mut head)?;
+        csv.write_all(&head)?;
+        if let Some(g) = geo.as_mut() {
+            g.write_all(output::POINTS_GEOJSON_HEAD)?;
+        }
+        let mut first = true;
+        for wave in pieces.chunks(4 * rayon::current_num_threads()) {
+            let texts: Vec<Result<(Vec<u8>, Vec<u8>)>> = wave
+                .par_iter()
+                .map(|(di, range)| {
+                    let (mut c, mut g) = (Vec::new(), Vec::new());
+                    output::points_csv_rows(a.point_rows_of(*di, range.clone(), &to_wgs), &mut c)?;
+                    if geojson {
                         output::points_geojson_features(
                             a.point_rows_of(*di, range.clone(), &to_wgs),
                             &mut g,
                         )?;
-                        Ok((c, g))
-                    })
-                    .collect();
-                for t in texts {
-                    let (c, g) = t?;
-                    csv.write_all(&c)?;
-                    // Each feature comes with a leading comma; the file's first one goes without.
-                    let g = if first && !g.is_empty() {
-                        first = false;
-                        &g[1..]
-                    } else {
-                        &g[..]
-                    };
-                    geojson.write_all(g)?;
-                }
+                    }
+                    Ok((c, g))
+                })
+                .collect();
+            for t in texts {
+                let (c, g) = t?;
+                csv.write_all(&c)?;
+                let Some(geo) = geo.as_mut() else { continue };
+                // Each feature comes with a leading comma; the file's first one goes without.
+                let g = if first && !g.is_empty() {
+                    first = false;
+                    &g[1..]
+                } else {
+                    &g[..]
+                };
+                geo.write_all(g)?;
             }
-            geojson.write_all(output::POINTS_GEOJSON_TAIL)?;
-            Ok(())
-        })
+        }
+        if let Some(g) = geo.as_mut() {
+            g.write_all(output::POINTS_GEOJSON_TAIL)?;
+        }
+        Ok(())
+    };
+    output::write_with(d, "points.csv", |csv| {
+        if geojson {
+            output::write_with(d, "points.geojson", |g| write_both(csv, Some(g)))
+        } else {
+            write_both(csv, None)
+        }
     })
 }
 

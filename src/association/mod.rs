@@ -270,6 +270,17 @@ impl SpatialIndex {
             .is_some()
     }
 
+    /// True when the box `lo`–`hi` (analysis CRS, m) meets some structure's expanded envelope
+    /// (its footprint's bounding box grown by the larger of the buffer and surroundings
+    /// distances): only then can a point inside the box be within reach. Used to skip whole
+    /// blocks of a points file (Parquet row groups) without reading them.
+    pub fn reaches_box(&self, lo: [f64; 2], hi: [f64; 2]) -> bool {
+        self.tree
+            .locate_in_envelope_intersecting(&AABB::from_corners(lo, hi))
+            .next()
+            .is_some()
+    }
+
     /// The compact association of one point (analysis CRS) — the same value as
     /// `associate(x, y).summary()` — without allocating; `None` when the point is out of reach
     /// (outside every expanded envelope, the points reader's keep test). Used by the points

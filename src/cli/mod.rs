@@ -49,9 +49,14 @@ pub enum Command {
         /// Skip PDF rendering (analysis only).
         #[arg(long)]
         no_reports: bool,
-        /// Run only shard K of N (structures split deterministically by id), e.g. 2/8.
+        /// Run only shard K of N (structures in Hilbert-curve order of their centroids, cut into
+        /// N runs of equal count), e.g. 2/8.
         #[arg(long, value_name = "K/N", value_parser = parse_shard)]
         shard: Option<(usize, usize)>,
+        /// Do not write points.geojson (the largest output; points.csv and results.gpkg hold the
+        /// same rows).
+        #[arg(long)]
+        no_points_geojson: bool,
     },
     /// Validate a portfolio and its data and print a coverage summary; writes nothing.
     Check {

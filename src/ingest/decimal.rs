@@ -15,6 +15,12 @@ const POW10: [f64; 16] = [
     1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
 ];
 
+/// 10ᵏ, exact (k ≤ 15).
+#[inline]
+pub fn pow10(k: u32) -> f64 {
+    POW10[k as usize]
+}
+
 /// Parse `[+-]?digits[.digits]` (at least one digit, at most 15 digits in all) to the correctly
 /// rounded `f64`; `None` for any other text (the caller falls back to the general parser).
 #[inline]

@@ -378,7 +378,7 @@ pub(crate) fn read_stream(
 /// Locations `line N` of the CSV stream become `{noun} N-offset` (a GeoPackage feature counts
 /// from 1 in fid order: its fid when the fids are 1, 2, ...; Shapefile features and Parquet rows
 /// count from 0, as GIS software numbers them); `line 1 (header)` becomes the attribute names.
-fn rename_lines(mut e: InputError, n: &Naming) -> InputError {
+pub(crate) fn rename_lines(mut e: InputError, n: &Naming) -> InputError {
     let prefix = if n.label.is_empty() {
         String::new()
     } else {

@@ -228,9 +228,23 @@ pub fn read_datasets(
                     .map(|_| crate::association::PointAssociation::default())
             })
         };
+        // A box may hold a kept point when it meets a structure's reach or the reference area.
+        let may_keep = |lo: [f64; 2], hi: [f64; 2]| {
+            index.reaches_box(lo, hi)
+                || area.is_some_and(|a| {
+                    lo[0] <= a.x + a.radius_m
+                        && hi[0] >= a.x - a.radius_m
+                        && lo[1] <= a.y + a.radius_m
+                        && hi[1] >= a.y - a.radius_m
+                })
+        };
+        let skip = parquet_points::Reach {
+            to_analysis: &to_a,
+            may_keep: &may_keep,
+        };
         let mut ds = match source {
             Some(PointSource::Parquet(p)) => {
-                parquet_points::read(p, spec, &to_a, &reach, warnings)?
+                parquet_points::read(p, spec, &to_a, &reach, Some(&skip), warnings)?
             }
             Some(PointSource::Gis(l)) => gis_points::read(l, spec, &to_a, &reach, warnings)?,
             None => points::read_points(spec, &to_a, dcrs.is_geographic(), &reach, warnings)?,

@@ -7,6 +7,15 @@
 //! reader through the stream of `ingest::gis_points`, so the column map, `date_format`, units,
 //! sign, validation and screening are the CSV's. Rows are named in messages by their 0-based
 //! position in the file (`row N`); a row's `line` in points.csv is that position + 2.
+//!
+//! Row groups beyond reach are not read: when the positions come from the `columns.x` /
+//! `columns.y` columns and the file records their min/max per row group (pyarrow and GDAL do),
+//! a group whose box, carried into the analysis CRS with a margin (`box_in_analysis`), meets
+//! no structure's reach (nor the `[reference]` area) is skipped. Its rows count as read and out
+//! of reach, as a full read would find them, and keep their row numbers (the CSV stream gets one
+//! empty line per skipped row); they are not validated, so a bad value there is not reported.
+//! A file in spatial order (e.g. sorted along a Hilbert curve of x, y) makes the boxes small;
+//! in another order every group may span the whole area and is then read.
 //! It does not associate or screen points itself.
 
 use std::path::Path;
@@ -17,7 +26,8 @@ use parquet::file::reader::{FileReader, SerializedFileReader};
 use serde_json::Value;
 
 use super::gis::{Stated, settle_crs};
-use super::gis_points::{Naming, Sink, header};
+use super::gis_points::{Naming, Sink, header, rename_lines};
+use super::points::{ColumnMap, NumBlock, NumColumn};
 use crate::association::PointAssociation;
 use crate::coords::{Crs, Transformer};
 use crate::error::{InputError, Warnings};
@@ -155,6 +165,112 @@ pub fn open(
     })
 }
 
+/// The row groups of one Parquet points file: how many there are and how many were read, with
+/// their compressed bytes (all columns of the group).
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct RowGroupsRead {
+    /// Row groups in the file.
+    pub total: usize,
+    /// Row groups read.
+    pub read: usize,
+    /// Compressed bytes of every row group.
+    pub bytes_total: u64,
+    /// Compressed bytes of the row groups read.
+    pub bytes_read: u64,
+    /// Rows of the row groups not read.
+    pub rows_skipped: u64,
+}
+
+/// What may be skipped: the transform to the analysis CRS and the keep test on analysis-CRS boxes
+/// (true when a point in the box `lo`–`hi` may be kept).
+pub struct Reach<'a> {
+    /// Points' CRS to the analysis CRS.
+    pub to_analysis: &'a Transformer,
+    /// True when a point in the box may be kept.
+    pub may_keep: &'a (dyn Fn([f64; 2], [f64; 2]) -> bool + Sync),
+}
+
+/// The min and max a row group's statistics give for a numeric column; None without them.
+fn column_range(c: &parquet::file::metadata::ColumnChunkMetaData) -> Option<(f64, f64)> {
+    use parquet::file::statistics::Statistics as S;
+    let (lo, hi) = match c.statistics()? {
+        S::Double(s) => (*s.min_opt()?, *s.max_opt()?),
+        S::Float(s) => (f64::from(*s.min_opt()?), f64::from(*s.max_opt()?)),
+        S::Int32(s) => (f64::from(*s.min_opt()?), f64::from(*s.max_opt()?)),
+        // Beyond 2⁵³ the float may round inward; such coordinates are not plausible anyway.
+        S::Int64(s) => (*s.min_opt()? as f64, *s.max_opt()? as f64),
+        _ => return None,
+    };
+    (lo <= hi).then_some((lo, hi))
+}
+
+/// Sample points per box edge in [`box_in_analysis`].
+const EDGE_SAMPLES: usize = 8;
+
+/// A box of the analysis CRS holding the image of the box `x` × `y` (min, max) of the points'
+/// CRS: the bounding box of the images of 4 × (EDGE_SAMPLES + 1) points along the edges, grown
+/// by 1 m plus 1 % of its larger side. The margin covers the bending of the edges between
+/// samples: for a transverse Mercator image of a 1 000 km box the bend between samples
+/// 125 km apart is about a third of a kilometre (sagitta L²/8R with R ≈ 6 400 km), against a
+/// 10 km margin; a row group of a spatially ordered file spans a few hundred metres. None when a
+/// sample does not transform (the group is then read).
+fn box_in_analysis(t: &Transformer, x: (f64, f64), y: (f64, f64)) -> Option<([f64; 2], [f64; 2])> {
+    let (mut lo, mut hi) = ([f64::MAX; 2], [f64::MIN; 2]);
+    for i in 0..=EDGE_SAMPLES {
+        let f = i as f64 / EDGE_SAMPLES as f64;
+        let (xs, ys) = (x.0 + (x.1 - x.0) * f, y.0 + (y.1 - y.0) * f);
+        for (px, py) in [(xs, y.0), (xs, y.1), (x.0, ys), (x.1, ys)] {
+            let (ax, ay) = t.apply(px, py).ok()?;
+            lo = [lo[0].min(ax), lo[1].min(ay)];
+            hi = [hi[0].max(ax), hi[1].max(ay)];
+        }
+    }
+    let pad = 1.0 + 0.01 * (hi[0] - lo[0]).max(hi[1] - lo[1]);
+    Some(([lo[0] - pad, lo[1] - pad], [hi[0] + pad, hi[1] + pad]))
+}
+
+/// Whether row group `rg` may hold a point to keep: true unless the statistics of the x and y
+/// columns (`xy`) place every point beyond reach.
+fn group_may_reach(
+    rg: &parquet::file::metadata::RowGroupMetaData,
+    xy: (usize, usize),
+    reach: &Reach,
+) -> bool {
+    let (Some(x), Some(y)) = (column_range(rg.column(xy.0)), column_range(rg.column(xy.1))) else {
+        return true;
+    };
+    match box_in_analysis(reach.to_analysis, x, y) {
+        Some((lo, hi)) => (reach.may_keep)(lo, hi),
+        None => true,
+    }
+}
+
+/// Count row group `g` in `groups` and say whether to read it (false: beyond `reach`, module
+/// doc); `xy` are the x and y columns when the positions come from them.
+fn take_group(
+    p: &ParquetPoints,
+    g: usize,
+    reach: Option<&Reach>,
+    xy: Option<(usize, usize)>,
+    groups: &mut RowGroupsRead,
+) -> bool {
+    let meta = p.reader.metadata().row_group(g);
+    let bytes = u64::try_from(meta.compressed_size()).unwrap_or(0);
+    let wanted = match (reach, xy) {
+        (Some(r), Some(cols)) => group_may_reach(meta, cols, r),
+        _ => true,
+    };
+    groups.total += 1;
+    groups.bytes_total += bytes;
+    if wanted {
+        groups.read += 1;
+        groups.bytes_read += bytes;
+    } else {
+        groups.rows_skipped += u64::try_from(meta.num_rows()).unwrap_or(0);
+    }
+    wanted
+}
+
 /// One decoded column of a row group.
 enum Col {
     Num(Vec<f64>),
@@ -220,6 +336,56 @@ fn decode(reader: ColumnReader, n: usize, max_def: i16) -> parquet::errors::Resu
     })
 }
 
+/// Every value of a numeric column chunk as `f64` (NaN where null), in one vector of exactly `n`
+/// values (the numeric entry holds two row groups of these); None for a column that is not
+/// numeric.
+fn decode_numbers(
+    reader: ColumnReader,
+    n: usize,
+    max_def: i16,
+) -> parquet::errors::Result<Option<Vec<f64>>> {
+    fn numbers<T: DataType>(
+        r: &mut ColumnReaderImpl<T>,
+        n: usize,
+        max_def: i16,
+        to_f64: impl Fn(&T::T) -> f64,
+    ) -> parquet::errors::Result<Vec<f64>> {
+        let mut values = Vec::with_capacity(n);
+        let mut defs = Vec::with_capacity(if max_def > 0 { n } else { 0 });
+        let mut records = 0;
+        while records < n {
+            let defs = (max_def > 0).then_some(&mut defs);
+            let (read, _, _) = r.read_records(n - records, defs, None, &mut values)?;
+            if read == 0 {
+                break;
+            }
+            records += read;
+        }
+        if max_def == 0 {
+            return Ok(values.iter().map(to_f64).collect());
+        }
+        let mut it = values.iter();
+        Ok(defs
+            .iter()
+            .map(|&d| {
+                if d == max_def {
+                    it.next().map_or(f64::NAN, &to_f64)
+                } else {
+                    f64::NAN
+                }
+            })
+            .collect())
+    }
+    Ok(Some(match reader {
+        ColumnReader::DoubleColumnReader(mut r) => numbers(&mut r, n, max_def, |v| *v)?,
+        ColumnReader::FloatColumnReader(mut r) => numbers(&mut r, n, max_def, |v| f64::from(*v))?,
+        ColumnReader::Int32ColumnReader(mut r) => numbers(&mut r, n, max_def, |v| f64::from(*v))?,
+        // Beyond 2⁵³ rounded, as the text of the number would be read.
+        ColumnReader::Int64ColumnReader(mut r) => numbers(&mut r, n, max_def, |v| *v as f64)?,
+        _ => return Ok(None),
+    }))
+}
+
 /// x, y of an ISO WKB point (Z/M ignored; the flag says whether there were any).
 fn wkb_point(b: &[u8]) -> Result<(f64, f64, bool), String> {
     let le = match b.first() {
@@ -251,11 +417,28 @@ fn wkb_point(b: &[u8]) -> Result<(f64, f64, bool), String> {
     Ok((x, y, t > 1000 || t & 0xC000_0000 != 0))
 }
 
-/// Stream the row groups as CSV rows.
+/// The x and y columns when the positions come from them (not from a geometry column).
+fn xy_columns(
+    p: &ParquetPoints,
+    names: &[String],
+    xy: &(String, String),
+) -> Option<(usize, usize)> {
+    match p.geometry {
+        None => names
+            .iter()
+            .position(|n| *n == xy.0)
+            .zip(names.iter().position(|n| *n == xy.1)),
+        Some(_) => None,
+    }
+}
+
+/// Stream the row groups as CSV rows (an empty line for each row of a group skipped as beyond
+/// `reach`), counting the groups in `groups`.
 fn produce(
     p: &ParquetPoints,
     xy: &(String, String),
     file: &Path,
+    (reach, groups): (Option<&Reach>, &mut RowGroupsRead),
     sink: &mut Sink,
     zm: &std::sync::atomic::AtomicBool,
 ) -> Result<(), InputError> {
@@ -277,8 +460,19 @@ fn produce(
     if !sink.row(&h) {
         return Ok(());
     }
+    let xy_cols = xy_columns(p, &names, xy);
     let mut row0 = 0usize;
     for g in 0..p.reader.num_row_groups() {
+        if !take_group(p, g, reach, xy_cols, groups) {
+            let n = usize::try_from(p.reader.metadata().row_group(g).num_rows()).unwrap_or(0);
+            for _ in 0..n {
+                if !sink.end() {
+                    return Ok(());
+                }
+            }
+            row0 += n;
+            continue;
+        }
         let rg = p
             .reader
             .get_row_group(g)
@@ -349,12 +543,132 @@ fn produce(
     Ok(())
 }
 
-/// Read the Parquet points of dataset `spec` (see [`super::points::read_points`]).
+/// The column names of the file, in schema order.
+fn column_names(p: &ParquetPoints) -> Vec<String> {
+    let schema = p.reader.metadata().file_metadata().schema_descr();
+    schema.columns().iter().map(|c| c.path().string()).collect()
+}
+
+/// The column map for the numeric entry (`super::points::read_numeric`), or None when the file
+/// needs the text stream: positions from a geometry column, or a mapped or epoch column that is
+/// not numeric (or an id that is neither text nor a number). Its warnings are recorded only when
+/// the numeric entry is taken (the stream repeats them otherwise).
+fn numeric_map(
+    p: &ParquetPoints,
+    spec: &DatasetSpec,
+    warnings: &mut Warnings,
+) -> Result<Option<ColumnMap>, InputError> {
+    use parquet::basic::Type as T;
+    if p.geometry.is_some() {
+        return Ok(None);
+    }
+    let headers: Vec<String> = column_names(p)
+        .iter()
+        .map(|n| n.trim().to_string())
+        .collect();
+    let mut own = Warnings::default();
+    let map = super::points::column_map(headers, &spec.path, spec, &mut own)?;
+    let schema = p.reader.metadata().file_metadata().schema_descr();
+    let readable = schema.columns().iter().enumerate().all(|(k, c)| {
+        let num = matches!(
+            c.physical_type(),
+            T::DOUBLE | T::FLOAT | T::INT32 | T::INT64
+        );
+        if map.numeric(k) {
+            num
+        } else if k == map.id_col() {
+            num || c.physical_type() == T::BYTE_ARRAY
+        } else {
+            true
+        }
+    });
+    if !readable {
+        return Ok(None);
+    }
+    warnings.extend(own);
+    Ok(Some(map))
+}
+
+/// Which columns the numeric entry decodes: per column, whether it is read as a number or as the
+/// id.
+struct Wanted {
+    numeric: Vec<bool>,
+    id: usize,
+}
+
+impl Wanted {
+    fn of(map: &ColumnMap, n: usize) -> Wanted {
+        Wanted {
+            numeric: (0..n).map(|k| map.numeric(k)).collect(),
+            id: map.id_col(),
+        }
+    }
+}
+
+/// Decode the columns of row group `g` the numeric entry needs.
+fn decode_block(
+    p: &ParquetPoints,
+    g: usize,
+    wanted: &Wanted,
+    names: &[String],
+    first_line: u64,
+    file: &Path,
+) -> Result<NumBlock, InputError> {
+    let rg = p
+        .reader
+        .get_row_group(g)
+        .map_err(|e| damaged(file, format!("row group {g}"), e))?;
+    let n = usize::try_from(rg.metadata().num_rows()).unwrap_or(0);
+    let schema = p.reader.metadata().file_metadata().schema_descr();
+    let mut columns = Vec::with_capacity(names.len());
+    for (k, name) in names.iter().enumerate() {
+        if !wanted.numeric[k] && k != wanted.id {
+            columns.push(NumColumn::Skipped);
+            continue;
+        }
+        let bad = |e: parquet::errors::ParquetError| {
+            damaged(file, format!("row group {g}, column `{name}`"), e)
+        };
+        let r = rg.get_column_reader(k).map_err(bad)?;
+        let max_def = schema.column(k).max_def_level();
+        if wanted.numeric[k] {
+            let v = decode_numbers(r, n, max_def).map_err(bad)?;
+            columns.push(v.map_or(NumColumn::Skipped, NumColumn::Num));
+            continue;
+        }
+        columns.push(match decode(r, n, max_def).map_err(bad)? {
+            Col::Num(v) => NumColumn::Num(v),
+            Col::Int(v) if k == wanted.id => NumColumn::Text(
+                v.into_iter()
+                    .map(|i| i.map(|i| i.to_string().into_bytes()).unwrap_or_default())
+                    .collect(),
+            ),
+            Col::Int(v) => NumColumn::Num(
+                v.into_iter()
+                    .map(|i| i.map_or(f64::NAN, |i| i as f64))
+                    .collect(),
+            ),
+            Col::Bytes(v) => {
+                NumColumn::Text(v.into_iter().map(Option::unwrap_or_default).collect())
+            }
+            Col::Bool(_) | Col::Other => NumColumn::Skipped,
+        });
+    }
+    Ok(NumBlock {
+        first_line,
+        rows: n,
+        columns,
+    })
+}
+
+/// Read the Parquet points of dataset `spec` (see [`super::points::read_points`]), skipping the
+/// row groups beyond `reach` (module doc) when it is given.
 pub fn read(
     p: ParquetPoints,
     spec: &DatasetSpec,
     to_analysis: &Transformer,
     associate: &(dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
+    reach: Option<&Reach>,
     warnings: &mut Warnings,
 ) -> Result<super::points::Dataset, InputError> {
     let naming = Naming {
@@ -365,15 +679,66 @@ pub fn read(
     let xy = (spec.columns.x.clone(), spec.columns.y.clone());
     let file = spec.path.clone();
     let geographic = p.crs.is_geographic();
-    super::gis_points::read_stream(
+    let mut groups = RowGroupsRead::default();
+    if let Some(map) = numeric_map(&p, spec, warnings).map_err(|e| rename_lines(e, &naming))? {
+        let columns = Wanted::of(
+            &map,
+            p.reader
+                .metadata()
+                .file_metadata()
+                .schema_descr()
+                .num_columns(),
+        );
+        let names = column_names(&p);
+        let xy_cols = xy_columns(&p, &names, &xy);
+        let (mut g, mut row0) = (0usize, 0u64);
+        let counts = &mut groups;
+        let p = &p;
+        let file = &file;
+        let mut next = move || -> Result<Option<NumBlock>, InputError> {
+            while g < p.reader.num_row_groups() {
+                let this = g;
+                let first_line = row0 + 2;
+                g += 1;
+                row0 += u64::try_from(p.reader.metadata().row_group(this).num_rows()).unwrap_or(0);
+                if take_group(p, this, reach, xy_cols, counts) {
+                    return decode_block(p, this, &columns, &names, first_line, file).map(Some);
+                }
+            }
+            Ok(None)
+        };
+        let mut ds = super::points::read_numeric(
+            map,
+            &spec.path,
+            spec,
+            to_analysis,
+            geographic,
+            associate,
+            &mut next,
+            u64::try_from(p.reader.metadata().file_metadata().num_rows()).unwrap_or(0),
+            warnings,
+        )
+        .map_err(|e| rename_lines(e, &naming))?;
+        drop(next);
+        ds.rows_read += groups.rows_skipped;
+        ds.rows_out_of_reach += groups.rows_skipped;
+        ds.row_groups = Some(groups);
+        return Ok(ds);
+    }
+    let counts = &mut groups;
+    let mut ds = super::gis_points::read_stream(
         spec,
         geographic,
         &naming,
         to_analysis,
         associate,
         warnings,
-        move |sink, zm| produce(&p, &xy, &file, sink, zm),
-    )
+        move |sink, zm| produce(&p, &xy, &file, (reach, counts), sink, zm),
+    )?;
+    ds.rows_read += groups.rows_skipped;
+    ds.rows_out_of_reach += groups.rows_skipped;
+    ds.row_groups = Some(groups);
+    Ok(ds)
 }
 
 #[cfg(test)]

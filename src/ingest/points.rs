@@ -400,6 +400,23 @@ struct Piece {
     end: PieceEnd,
 }
 
+/// A number cell of a row by column: `Ok(None)` for an empty cell; the error names the cell
+/// (`what` is e.g. "x coordinate").
+type NumField<'f> = dyn Fn(usize, &str) -> Result<Option<f64>, InputError> + 'f;
+
+/// A kept point's analysis-CRS position (m) and association.
+type Placed = ((f64, f64), PointAssociation);
+
+/// The checked values of a row besides its epochs (see [`RowParser::row_head`]).
+struct RowHead {
+    x: f64,
+    y: f64,
+    coherence: Option<f32>,
+    incidence_deg: f64,
+    heading_deg: f64,
+    height_m: Option<f32>,
+}
+
 /// Everything needed to turn one row into a point (shared read-only by the parallel pieces).
 struct RowParser<'a> {
     file: &'a Path,
@@ -754,31 +771,15 @@ impl RowParser<'_> {
         }
     }
 
-    /// The numeric part of [`Self::row`]: values, transform, reach; pushes a kept point.
-    fn row_values(
-        &self,
-        buf: &[u8],
-        ranges: &[std::ops::Range<usize>],
-        line: u64,
-        id_raw: &[u8],
-        acc: &mut Acc,
-        pre: Option<FastRow>,
-    ) -> Result<(), InputError> {
+    /// The checks of a row before its epochs, in the order of [`Self::row`] (x, y, geographic
+    /// plausibility, coherence, incidence, heading, the per-point geometry, height), on numbers
+    /// given by `num(column, what)` (None: empty cell); per-point angles out of the usual range are
+    /// counted in `acc`.
+    fn row_head(&self, line: u64, num: &NumField, acc: &mut Acc) -> Result<RowHead, InputError> {
         let file = self.file;
         let headers = self.headers;
         let spec = self.spec;
-        let field = |i: usize| &buf[ranges[i].clone()];
         let loc = || format!("line {line}");
-        let num = |col: usize, what: &str| -> Result<Option<f64>, InputError> {
-            parse_cell(field(col)).map_err(|m| {
-                InputError::new(
-                    file,
-                    format!("{}, column `{}`", loc(), headers[col]),
-                    m,
-                    format!("{what} must be a number (decimal point `.`)"),
-                )
-            })
-        };
         let req = |col: usize, what: &str| -> Result<f64, InputError> {
             num(col, what)?.ok_or_else(|| {
                 InputError::new(
@@ -864,6 +865,95 @@ impl RowParser<'_> {
             Some(col) => num(col, "height")?.map(|v| v as f32),
             None => None,
         };
+        Ok(RowHead {
+            x,
+            y,
+            coherence,
+            incidence_deg,
+            heading_deg,
+            height_m,
+        })
+    }
+
+    /// The analysis-CRS position of (x, y) and its association; None (counted in `acc`) when
+    /// the point is out of reach.
+    fn place(
+        &self,
+        line: u64,
+        x: f64,
+        y: f64,
+        acc: &mut Acc,
+    ) -> Result<Option<Placed>, InputError> {
+        let file = self.file;
+        let loc = || format!("line {line}");
+        let (ax, ay) = self.to_analysis.apply(x, y).map_err(|e| {
+            InputError::new(
+                file,
+                loc(),
+                e.to_string(),
+                "check the dataset's crs and the x/y column mapping",
+            )
+        })?;
+        let Some(association) = (self.associate)(ax, ay) else {
+            acc.out_of_reach += 1;
+            if self.geographic {
+                if let Ok((sx, sy)) = self.to_analysis.apply(y, x) {
+                    if (self.associate)(sx, sy).is_some() {
+                        acc.swapped_in_reach += 1;
+                    }
+                }
+            }
+            return Ok(None);
+        };
+        Ok(Some(((ax, ay), association)))
+    }
+
+    /// What a kept row stores besides its values.
+    fn meta<'r>(
+        &self,
+        id: &'r str,
+        line: u64,
+        xy: (f64, f64),
+        association: PointAssociation,
+        h: &RowHead,
+    ) -> RowMeta<'r> {
+        RowMeta {
+            id,
+            line,
+            xy,
+            association,
+            coherence: h.coherence,
+            incidence_deg: self.inc_col.map(|_| h.incidence_deg as f32),
+            heading_deg: self.head_col.map(|_| h.heading_deg as f32),
+            height_m: self.h_col.map(|_| h.height_m.unwrap_or(f32::NAN)),
+        }
+    }
+
+    /// The numeric part of [`Self::row`]: values, transform, reach; pushes a kept point.
+    fn row_values(
+        &self,
+        buf: &[u8],
+        ranges: &[std::ops::Range<usize>],
+        line: u64,
+        id_raw: &[u8],
+        acc: &mut Acc,
+        pre: Option<FastRow>,
+    ) -> Result<(), InputError> {
+        let file = self.file;
+        let headers = self.headers;
+        let field = |i: usize| &buf[ranges[i].clone()];
+        let loc = || format!("line {line}");
+        let num = |col: usize, what: &str| -> Result<Option<f64>, InputError> {
+            parse_cell(field(col)).map_err(|m| {
+                InputError::new(
+                    file,
+                    format!("{}, column `{}`", loc(), headers[col]),
+                    m,
+                    format!("{what} must be a number (decimal point `.`)"),
+                )
+            })
+        };
+        let h = self.row_head(line, &num, acc)?;
         let mut values = std::mem::take(&mut acc.scratch);
         let mut max_abs_mm = acc.max_abs_mm;
         let mut row_max_abs_mm = 0.0f64;
@@ -897,19 +987,7 @@ impl RowParser<'_> {
                 Some(v) => {
                     let mm = v * self.factor;
                     if mm.abs() > MAX_ABS_DISPLACEMENT_MM {
-                        return Err(InputError::new(
-                            file,
-                            format!("{}, column `{}`", loc(), headers[col]),
-                            format!(
-                                "displacement {v} {} = {mm:.0} mm is implausible (more than {MAX_ABS_DISPLACEMENT_MM} mm)",
-                                if spec.unit == crate::portfolio::Unit::M {
-                                    "m"
-                                } else {
-                                    "mm"
-                                }
-                            ),
-                            "check the dataset's unit (\"mm\" or \"m\") and the column mapping",
-                        ));
+                        return Err(self.implausible(line, col, v, mm));
                     }
                     row_max_abs_mm = row_max_abs_mm.max(mm.abs());
                     n_values += 1;
@@ -922,37 +1000,12 @@ impl RowParser<'_> {
         max_abs_mm = max_abs_mm.max(row_max_abs_mm);
         acc.max_abs_mm = max_abs_mm;
         acc.n_values += n_values;
-        let (ax, ay) = self.to_analysis.apply(x, y).map_err(|e| {
-            InputError::new(
-                file,
-                loc(),
-                e.to_string(),
-                "check the dataset's crs and the x/y column mapping",
-            )
-        })?;
-        let Some(association) = (self.associate)(ax, ay) else {
-            acc.out_of_reach += 1;
-            if self.geographic {
-                if let Ok((sx, sy)) = self.to_analysis.apply(y, x) {
-                    if (self.associate)(sx, sy).is_some() {
-                        acc.swapped_in_reach += 1;
-                    }
-                }
-            }
+        let Some((xy, association)) = self.place(line, h.x, h.y, acc)? else {
             acc.scratch = values;
             return Ok(());
         };
         let id = String::from_utf8_lossy(id_raw);
-        let meta = RowMeta {
-            id: &id,
-            line,
-            xy: (ax, ay),
-            association,
-            coherence,
-            incidence_deg: self.inc_col.map(|_| incidence_deg as f32),
-            heading_deg: self.head_col.map(|_| heading_deg as f32),
-            height_m: self.h_col.map(|_| height_m.unwrap_or(f32::NAN)),
-        };
+        let meta = self.meta(&id, line, xy, association, &h);
         let pushed = match pre.and_then(|fr| fr.uniform_digits) {
             Some(k) => {
                 // Mantissas with k digits after the point each: the exact codes straight from
@@ -1096,6 +1149,365 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
             s
         })
         .collect();
+    let map = column_map(headers, file, spec, warnings)?;
+    let rp = map.row_parser(file, spec, delimiter, geographic, to_analysis, associate);
+    let mut total = Acc::default();
+    let mut next_line = line_no + 1;
+    // Double buffering: while the pieces of one block are parsed on the thread pool, the next
+    // block is read (rayon::join), so reading the file overlaps parsing it.
+    let mut carry: Vec<u8> = Vec::new();
+    let mut eof = false;
+    let mut cur = read_block(&mut reader, &mut carry, &mut eof, Vec::new())
+        .map_err(|e| io_err(e, next_line))?;
+    if let Some(total_bytes) = expected_bytes {
+        // Room for every row, estimated from the first block, taken once: the big arrays then
+        // never move while growing (untouched room costs address space, not memory).
+        let rows_in_block = memchr::memchr_iter(b'\n', &cur).count().max(1) as u64;
+        let per_row = (cur.len() as u64 / rows_in_block).max(1);
+        let rows = total_bytes / per_row + total_bytes / per_row / 20 + 16;
+        total
+            .store
+            .reserve_rows(rows, map.epoch_cols.len(), per_row.min(32));
+        if let Ok(r) = usize::try_from(rows) {
+            let _ = total.ids.try_reserve_exact(r);
+        }
+    }
+    let mut spare: Vec<u8> = Vec::new();
+    let slow_from: Option<(Vec<u8>, u64)> = loop {
+        if cur.is_empty() && eof {
+            break None;
+        }
+        let was_eof = eof;
+        let (next, parsed) = rayon::join(
+            || {
+                if was_eof {
+                    Ok(Vec::new())
+                } else {
+                    read_block(
+                        &mut reader,
+                        &mut carry,
+                        &mut eof,
+                        std::mem::take(&mut spare),
+                    )
+                }
+            },
+            || {
+                let (pieces, end_line) = split_pieces(&cur, next_line);
+                let parsed: Vec<Piece> = pieces
+                    .par_iter()
+                    .map(|&(lo, hi, first_line)| rp.parse_piece(&cur[lo..hi], lo, first_line))
+                    .collect();
+                (parsed, end_line - next_line)
+            },
+        );
+        let (parsed, lines) = parsed;
+        let mut switch = None;
+        for p in parsed {
+            total.absorb(p.acc, file)?;
+            match p.end {
+                PieceEnd::Done => {}
+                PieceEnd::Error(e) => return Err(first_error(file, &mut total, e)),
+                PieceEnd::Slow { offset, line } => {
+                    switch = Some((offset, line));
+                    break;
+                }
+            }
+        }
+        let next = next.map_err(|e| io_err(e, next_line + lines))?;
+        if let Some((offset, line)) = switch {
+            // The rest of the file, in order: this block from the row, the block read ahead, the
+            // partial line carried over; the reader continues after them.
+            let mut rest = cur.split_off(offset);
+            rest.extend_from_slice(&next);
+            rest.extend_from_slice(&carry);
+            break Some((rest, line));
+        }
+        next_line += lines;
+        cur.clear();
+        spare = std::mem::replace(&mut cur, next);
+    };
+    if let Some((rest, first_line)) = slow_from {
+        let chained = std::io::Cursor::new(rest).chain(reader);
+        if let Err(e) = rp.read_slow(chained, first_line, &mut total) {
+            return Err(first_error(file, &mut total, e));
+        }
+    }
+    finish(total, map, file, spec, warnings)
+}
+
+/// Rows a piece of a decoded block holds (pieces are checked in parallel).
+const NUM_PIECE_ROWS: usize = 4096;
+
+/// One column of a block of decoded rows (see [`read_numeric`]).
+pub(crate) enum NumColumn {
+    /// Numbers; a non-finite value (a null) is an empty cell.
+    Num(Vec<f64>),
+    /// Text (ids).
+    Text(Vec<Vec<u8>>),
+    /// Not decoded: a column that is neither mapped nor an epoch.
+    Skipped,
+}
+
+/// Rows decoded column by column (a Parquet row group).
+pub(crate) struct NumBlock {
+    /// Line of the first row, counted as in a CSV export (the header is line 1).
+    pub(crate) first_line: u64,
+    /// Number of rows.
+    pub(crate) rows: usize,
+    /// One per header column: `Num` for every column [`ColumnMap::numeric`] names, `Num` or
+    /// `Text` for the id.
+    pub(crate) columns: Vec<NumColumn>,
+}
+
+/// Digits after the point in the shortest text of `v` when at most `limit` (see
+/// [`reads_back_with`]); None beyond. The tests' reference for [`max_text_decimals`].
+#[cfg(test)]
+fn text_decimals(v: f64, limit: u32) -> Option<u32> {
+    (0..=limit).find(|&k| reads_back_with(v, k))
+}
+
+/// Whether some decimal with `k` digits after the point reads back as `v`: for |v| < 10¹¹ and
+/// |v|·10ᵏ < 2⁵³ (else false).
+///
+/// The shortest text of v (what Rust's `{}` writes, trailing zeros never written) has k digits
+/// after the point exactly when k is the least count for which some decimal m·10⁻ᵏ reads back as
+/// v (lies in v's rounding interval). Within these bounds that decimal is unique, m is the
+/// integer nearest v·10ᵏ (the product is within 10⁻⁴ of m), and m / 10ᵏ, with m and 10ᵏ exact in
+/// `f64`, is one correctly rounded division: the reading of the text.
+#[inline]
+fn reads_back_with(v: f64, k: u32) -> bool {
+    // Infinities fail the size test, NaN its own.
+    if k > 15 || v.abs() >= 1e11 || v.is_nan() {
+        return false;
+    }
+    let p = super::decimal::pow10(k);
+    let t = v * p;
+    if t.abs() >= 9_007_199_254_740_992.0 {
+        return false;
+    }
+    // Nearest integer by a cast (no call into libm); exact below 2⁵³.
+    let m = (t + 0.5f64.copysign(t)) as i64;
+    m as f64 / p == v
+}
+
+/// The largest count of digits after the point in the shortest texts of `values` (non-finite ones skipped), when every one is at most
+/// `limit`. Each value is first tried at the largest count so far (one test for most values).
+fn max_text_decimals(values: impl Iterator<Item = f64>, limit: u32) -> Option<u32> {
+    let mut d = 0u32;
+    for v in values.filter(|v| v.is_finite()) {
+        if !reads_back_with(v, d) {
+            d = (d + 1..=limit).find(|&k| reads_back_with(v, k))?;
+        }
+    }
+    Some(d)
+}
+
+/// Read points from blocks of decoded columns (the Parquet reader's numeric entry): `next` gives
+/// the blocks in file order (None after the last). Every row gets the CSV reader's checks, in its
+/// order and with its messages (`line N` as in a CSV export), applied to the numbers; a kept row
+/// is stored as the CSV reader stores the shortest decimal text of its values
+/// ([`max_text_decimals`]: the same decimal-exact codes), so a file gives the results of its CSV
+/// export. Limit: a row that needs the scaled store (more than 4 decimals in mm) is scaled from
+/// `value · unit factor`, where the CSV reader's fast path forms `mantissa · 10⁻ᵏ · factor`; the two
+/// agree to an ulp or two, which changes a 16-bit code only when the scaled value lies that close
+/// to a half. `rows` (the file's row count) sizes the store once. The next block is decoded while
+/// the current one is checked in parallel pieces: memory holds two blocks, never the file.
+#[allow(clippy::too_many_arguments)]
+pub(crate) fn read_numeric(
+    map: ColumnMap,
+    file: &Path,
+    spec: &DatasetSpec,
+    to_analysis: &Transformer,
+    geographic: bool,
+    associate: &(dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
+    next: &mut (dyn FnMut() -> Result<Option<NumBlock>, InputError> + Send),
+    rows: u64,
+    warnings: &mut Warnings,
+) -> Result<Dataset, InputError> {
+    let mut total = Acc::default();
+    // Room for every row, taken once (untouched room costs address space, not memory).
+    total.store.reserve_rows(rows, map.epoch_cols.len(), 16);
+    {
+        let rp = map.row_parser(file, spec, b',', geographic, to_analysis, associate);
+        let mut cur = next()?;
+        while let Some(block) = cur.take() {
+            let starts: Vec<usize> = (0..block.rows).step_by(NUM_PIECE_ROWS).collect();
+            let (following, pieces) = rayon::join(&mut *next, || {
+                starts
+                    .par_iter()
+                    .map(|&lo| rp.num_piece(&block, lo..(lo + NUM_PIECE_ROWS).min(block.rows)))
+                    .collect::<Vec<Piece>>()
+            });
+            for p in pieces {
+                total.absorb(p.acc, file)?;
+                if let PieceEnd::Error(e) = p.end {
+                    return Err(first_error(file, &mut total, e));
+                }
+            }
+            cur = following?;
+        }
+    }
+    finish(total, map, file, spec, warnings)
+}
+
+impl RowParser<'_> {
+    /// Rows `rows` of a decoded block.
+    fn num_piece(&self, b: &NumBlock, rows: std::ops::Range<usize>) -> Piece {
+        let mut acc = Acc::default();
+        // The epoch columns (all numbers, see `ColumnMap::numeric`).
+        let epochs: Vec<&[f64]> = self
+            .epoch_cols
+            .iter()
+            .map(|&c| match &b.columns[c] {
+                NumColumn::Num(v) => v.as_slice(),
+                _ => &[],
+            })
+            .collect();
+        if epochs.iter().any(|c| c.len() < b.rows) {
+            return Piece {
+                acc,
+                end: PieceEnd::Error(InputError::new(
+                    self.file,
+                    format!("line {}", b.first_line + rows.start as u64),
+                    "an epoch column was not decoded as numbers",
+                    "write the displacements as float or double columns",
+                )),
+            };
+        }
+        for r in rows {
+            if let Err(e) = self.num_row(b, &epochs, r, &mut acc) {
+                return Piece {
+                    acc,
+                    end: PieceEnd::Error(e),
+                };
+            }
+        }
+        Piece {
+            acc,
+            end: PieceEnd::Done,
+        }
+    }
+
+    /// Row `r` of a decoded block: the checks of [`Self::row`] in its order, on numbers.
+    fn num_row(
+        &self,
+        b: &NumBlock,
+        epochs: &[&[f64]],
+        r: usize,
+        acc: &mut Acc,
+    ) -> Result<(), InputError> {
+        let line = b.first_line + r as u64;
+        let loc = || format!("line {line}");
+        acc.rows += 1;
+        let id_text;
+        let id_raw: &[u8] = match &b.columns[self.id_col] {
+            NumColumn::Text(v) => trim(&v[r]),
+            NumColumn::Num(v) => {
+                id_text = super::gis_points::num_text(v[r]);
+                trim(id_text.as_bytes())
+            }
+            NumColumn::Skipped => b"",
+        };
+        if id_raw.is_empty() {
+            return Err(InputError::new(
+                self.file,
+                loc(),
+                "empty point id",
+                "every point needs an id",
+            ));
+        }
+        let seen = IdSeen::new(id_hash(id_raw), line).ok_or_else(|| {
+            InputError::new(
+                self.file,
+                loc(),
+                "the file has more than 4 294 967 295 lines",
+                "split it into several datasets",
+            )
+        })?;
+        acc.ids.push(seen);
+        let cell = |col: usize| match &b.columns[col] {
+            NumColumn::Num(v) if v[r].is_finite() => Some(v[r]),
+            _ => None,
+        };
+        let h = self.row_head(line, &|col, _| Ok(cell(col)), acc)?;
+        let mut values = std::mem::take(&mut acc.scratch);
+        values.clear();
+        let mut row_max_abs_mm = 0.0f64;
+        for (&col, c) in self.epoch_cols.iter().zip(epochs) {
+            let mm = match Some(c[r]).filter(|v| v.is_finite()) {
+                Some(v) => {
+                    let mm = v * self.factor;
+                    if mm.abs() > MAX_ABS_DISPLACEMENT_MM {
+                        return Err(self.implausible(line, col, v, mm));
+                    }
+                    row_max_abs_mm = row_max_abs_mm.max(mm.abs());
+                    acc.n_values += 1;
+                    mm
+                }
+                None => f64::NAN,
+            };
+            values.push(mm);
+        }
+        acc.max_abs_mm = acc.max_abs_mm.max(row_max_abs_mm);
+        let Some((xy, association)) = self.place(line, h.x, h.y, acc)? else {
+            acc.scratch = values;
+            return Ok(());
+        };
+        // Decimals of the values' shortest texts after the unit conversion; beyond the store's
+        // exact range the exact figure does not matter (the row is stored scaled either way).
+        let shift = self.decimal_shift;
+        let decimals = max_text_decimals(epochs.iter().map(|c| c[r]), 4 + shift)
+            .map(|d| d.saturating_sub(shift));
+        let id = String::from_utf8_lossy(id_raw);
+        let meta = self.meta(&id, line, xy, association, &h);
+        let pushed = acc.store.push(meta, &values, decimals, row_max_abs_mm);
+        acc.scratch = values;
+        pushed.map_err(|e| InputError::new(self.file, loc(), e.0, "split the points file"))
+    }
+
+    /// The error for a displacement beyond [`MAX_ABS_DISPLACEMENT_MM`] (`v` as written, `mm`
+    /// converted).
+    fn implausible(&self, line: u64, col: usize, v: f64, mm: f64) -> InputError {
+        InputError::new(
+            self.file,
+            format!("line {line}, column `{}`", self.headers[col]),
+            format!(
+                "displacement {v} {} = {mm:.0} mm is implausible (more than {MAX_ABS_DISPLACEMENT_MM} mm)",
+                if self.spec.unit == crate::portfolio::Unit::M {
+                    "m"
+                } else {
+                    "mm"
+                }
+            ),
+            "check the dataset's unit (\"mm\" or \"m\") and the column mapping",
+        )
+    }
+}
+
+/// The column map of a points header: the mapped columns, the epoch columns with their dates
+/// and the ignored ones (also used by the numeric entry, see [`read_numeric`]).
+pub(crate) struct ColumnMap {
+    /// Header names, trimmed.
+    pub(crate) headers: Vec<String>,
+    id_col: usize,
+    x_col: usize,
+    y_col: usize,
+    coh_col: Option<usize>,
+    inc_col: Option<usize>,
+    head_col: Option<usize>,
+    h_col: Option<usize>,
+    epoch_cols: Vec<(usize, NaiveDate)>,
+    ignored: Vec<String>,
+}
+
+/// Resolve the header against the dataset's column map and `date_format` (errors name
+/// `line 1 (header)`); warns of ignored columns and of a missing coherence column.
+pub(crate) fn column_map(
+    headers: Vec<String>,
+    file: &Path,
+    spec: &DatasetSpec,
+    warnings: &mut Warnings,
+) -> Result<ColumnMap, InputError> {
     let find = |name: &str| headers.iter().position(|h| h == name);
     let require = |name: &str, key: &str| {
         find(name).ok_or_else(|| {
@@ -1226,18 +1638,8 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
             ),
         );
     }
-    let n_cols = headers.len();
-    let factor = spec.unit.to_mm()
-        * match spec.positive {
-            LosSign::Towards => 1.0,
-            LosSign::Away => -1.0,
-        };
-    let rp = RowParser {
-        file,
-        spec,
-        headers: &headers,
-        delimiter,
-        n_cols,
+    Ok(ColumnMap {
+        headers,
         id_col,
         x_col,
         y_col,
@@ -1245,102 +1647,98 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
         inc_col,
         head_col,
         h_col,
-        epoch_cols: epoch_cols.iter().map(|(c, _)| *c).collect(),
-        is_epoch: (0..n_cols)
-            .map(|i| epoch_cols.iter().any(|(c, _)| *c == i))
-            .collect(),
-        factor,
-        decimal_shift: if spec.unit == crate::portfolio::Unit::M {
-            3
-        } else {
-            0
-        },
-        geographic,
-        to_analysis,
-        associate,
-    };
+        epoch_cols,
+        ignored,
+    })
+}
 
-    let mut total = Acc::default();
-    let mut next_line = line_no + 1;
-    // Double buffering: while the pieces of one block are parsed on the thread pool, the next
-    // block is read (rayon::join), so reading the file overlaps parsing it.
-    let mut carry: Vec<u8> = Vec::new();
-    let mut eof = false;
-    let mut cur = read_block(&mut reader, &mut carry, &mut eof, Vec::new())
-        .map_err(|e| io_err(e, next_line))?;
-    if let Some(total_bytes) = expected_bytes {
-        // Room for every row, estimated from the first block, taken once: the big arrays then
-        // never move while growing (untouched room costs address space, not memory).
-        let rows_in_block = memchr::memchr_iter(b'\n', &cur).count().max(1) as u64;
-        let per_row = (cur.len() as u64 / rows_in_block).max(1);
-        let rows = total_bytes / per_row + total_bytes / per_row / 20 + 16;
-        total
-            .store
-            .reserve_rows(rows, epoch_cols.len(), per_row.min(32));
-        if let Ok(r) = usize::try_from(rows) {
-            let _ = total.ids.try_reserve_exact(r);
+impl ColumnMap {
+    /// The id column.
+    pub(crate) fn id_col(&self) -> usize {
+        self.id_col
+    }
+
+    /// Whether column `i` is read as a number: a mapped column other than the id, or an epoch.
+    pub(crate) fn numeric(&self, i: usize) -> bool {
+        [
+            Some(self.x_col),
+            Some(self.y_col),
+            self.coh_col,
+            self.inc_col,
+            self.head_col,
+            self.h_col,
+        ]
+        .contains(&Some(i))
+            || self.epoch_cols.iter().any(|(c, _)| *c == i)
+    }
+
+    #[allow(clippy::too_many_arguments)]
+    fn row_parser<'a>(
+        &'a self,
+        file: &'a Path,
+        spec: &'a DatasetSpec,
+        delimiter: u8,
+        geographic: bool,
+        to_analysis: &'a Transformer,
+        associate: &'a (dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
+    ) -> RowParser<'a> {
+        let headers = &self.headers;
+        let (id_col, x_col, y_col) = (self.id_col, self.x_col, self.y_col);
+        let (coh_col, inc_col, head_col, h_col) =
+            (self.coh_col, self.inc_col, self.head_col, self.h_col);
+        let epoch_cols = &self.epoch_cols;
+        let n_cols = headers.len();
+        let factor = spec.unit.to_mm()
+            * match spec.positive {
+                LosSign::Towards => 1.0,
+                LosSign::Away => -1.0,
+            };
+        RowParser {
+            file,
+            spec,
+            headers,
+            delimiter,
+            n_cols,
+            id_col,
+            x_col,
+            y_col,
+            coh_col,
+            inc_col,
+            head_col,
+            h_col,
+            epoch_cols: epoch_cols.iter().map(|(c, _)| *c).collect(),
+            is_epoch: (0..n_cols)
+                .map(|i| epoch_cols.iter().any(|(c, _)| *c == i))
+                .collect(),
+            factor,
+            decimal_shift: if spec.unit == crate::portfolio::Unit::M {
+                3
+            } else {
+                0
+            },
+            geographic,
+            to_analysis,
+            associate,
         }
     }
-    let mut spare: Vec<u8> = Vec::new();
-    let slow_from: Option<(Vec<u8>, u64)> = loop {
-        if cur.is_empty() && eof {
-            break None;
-        }
-        let was_eof = eof;
-        let (next, parsed) = rayon::join(
-            || {
-                if was_eof {
-                    Ok(Vec::new())
-                } else {
-                    read_block(
-                        &mut reader,
-                        &mut carry,
-                        &mut eof,
-                        std::mem::take(&mut spare),
-                    )
-                }
-            },
-            || {
-                let (pieces, end_line) = split_pieces(&cur, next_line);
-                let parsed: Vec<Piece> = pieces
-                    .par_iter()
-                    .map(|&(lo, hi, first_line)| rp.parse_piece(&cur[lo..hi], lo, first_line))
-                    .collect();
-                (parsed, end_line - next_line)
-            },
-        );
-        let (parsed, lines) = parsed;
-        let mut switch = None;
-        for p in parsed {
-            total.absorb(p.acc, file)?;
-            match p.end {
-                PieceEnd::Done => {}
-                PieceEnd::Error(e) => return Err(first_error(file, &mut total, e)),
-                PieceEnd::Slow { offset, line } => {
-                    switch = Some((offset, line));
-                    break;
-                }
-            }
-        }
-        let next = next.map_err(|e| io_err(e, next_line + lines))?;
-        if let Some((offset, line)) = switch {
-            // The rest of the file, in order: this block from the row, the block read ahead, the
-            // partial line carried over; the reader continues after them.
-            let mut rest = cur.split_off(offset);
-            rest.extend_from_slice(&next);
-            rest.extend_from_slice(&carry);
-            break Some((rest, line));
-        }
-        next_line += lines;
-        cur.clear();
-        spare = std::mem::replace(&mut cur, next);
-    };
-    if let Some((rest, first_line)) = slow_from {
-        let chained = std::io::Cursor::new(rest).chain(reader);
-        if let Err(e) = rp.read_slow(chained, first_line, &mut total) {
-            return Err(first_error(file, &mut total, e));
-        }
-    }
+}
+
+/// The dataset from everything read: the duplicate-id check, the dataset-level warnings.
+fn finish(
+    mut total: Acc,
+    map: ColumnMap,
+    file: &Path,
+    spec: &DatasetSpec,
+    warnings: &mut Warnings,
+) -> Result<Dataset, InputError> {
+    let ColumnMap {
+        coh_col,
+        inc_col,
+        head_col,
+        epoch_cols,
+        ignored,
+        ..
+    } = map;
     if let Some((first, repeat)) = first_duplicate(&mut total.ids) {
         return Err(duplicate_error(file, &total.store, first, repeat));
     }
@@ -1453,6 +1851,7 @@ pub fn read_points_from<R: std::io::BufRead + Send>(
         ignored_columns: ignored,
         max_rounding_mm: store.max_rounding_mm,
         reference: None,
+        row_groups: None,
     })
 }
 
@@ -1953,6 +2352,46 @@ mod tests {
                 assert_eq!(a.max_rounding_mm, b.max_rounding_mm);
             }
         }
+    }
+
+    /// Digits after the point in Rust's shortest text of `v`.
+    fn written_decimals(v: f64) -> u32 {
+        let t = format!("{v}");
+        t.split_once('.').map_or(0, |(_, f)| f.len() as u32)
+    }
+
+    #[test]
+    fn text_decimals_counts_the_digits_of_the_shortest_text() {
+        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
+        let mut next = || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            seed
+        };
+        for i in 0..200_000 {
+            let v = match i % 4 {
+                // Short decimals of every sign and size the files hold.
+                0 => (next() % 2_000_001) as f64 / 10f64.powi((next() % 8) as i32) - 1000.0,
+                1 => -((next() % 100_000) as f64) / 1e3,
+                // Values from 32-bit floats (long texts) and arbitrary doubles.
+                2 => f64::from(f32::from_bits((next() as u32 & 0x3fff_ffff) | 0x3000_0000)),
+                _ => f64::from_bits((next() & 0x000f_ffff_ffff_ffff) | 0x4000_0000_0000_0000),
+            };
+            let w = written_decimals(v);
+            for limit in [0, 3, 4, 7] {
+                let want = (w <= limit).then_some(w);
+                assert_eq!(text_decimals(v, limit), want, "{v} (`{v}`), limit {limit}");
+            }
+        }
+        assert_eq!(text_decimals(-0.0, 4), Some(0));
+        assert_eq!(text_decimals(f64::NAN, 4), None);
+        assert_eq!(text_decimals(0.1 + 0.2, 7), None);
+        let d = |v: &[f64]| max_text_decimals(v.iter().copied(), 4);
+        assert_eq!(d(&[1.5, 2.0, f64::NAN, -0.25, 3.1]), Some(2));
+        assert_eq!(d(&[]), Some(0));
+        assert_eq!(d(&[1.5, 0.1 + 0.2]), None);
+        assert_eq!(d(&[0.00001]), None);
     }
 
     #[test]

@@ -228,6 +228,8 @@ pub struct Dataset {
     pub max_rounding_mm: f64,
     /// What re-referencing to the common area did (`[reference]`); `None` without it.
     pub reference: Option<super::reference::DatasetReference>,
+    /// Row groups read and skipped (Parquet points files only).
+    pub row_groups: Option<super::parquet_points::RowGroupsRead>,
 }
 
 impl Dataset {
@@ -648,6 +650,7 @@ mod tests {
             ignored_columns: vec![],
             max_rounding_mm: a.max_rounding_mm,
             reference: None,
+            row_groups: None,
         };
         assert_eq!(ds.point(0).id(), "P1");
         assert_eq!(ds.point(1).id(), "Q22");
@@ -692,6 +695,7 @@ mod tests {
             ignored_columns: vec![],
             max_rounding_mm: 0.0,
             reference: None,
+            row_groups: None,
         };
         ds.subtract_per_epoch(&[0.0, 1.0, 1.0, 0.333]);
         let v = ds.point(0).series().unwrap().to_vec();
@@ -748,6 +752,7 @@ mod tests {
             ignored_columns: vec![],
             max_rounding_mm: 0.0,
             reference: None,
+            row_groups: None,
         };
         ds.drop_series(|p| p.coherence().is_some_and(|c| c >= 0.5));
         assert_eq!(ds.codes.len(), 6, "two series of three epochs remain");
