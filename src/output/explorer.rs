@@ -354,38 +354,39 @@ impl Strings {
     }
 }
 
-/// Records as columns: `{fields: [name…], rows: [[value…]…]}` (the field names once instead of
-/// once per structure; the page rebuilds the objects).
-fn columns(records: Vec<Value>, strings: &mut Strings) -> Value {
+/// The entries' field names in first-seen order: the page receives the structures as columns,
+/// `{fields: [name…], rows: [[value…]…]}` (the field names once instead of once per structure;
+/// the page rebuilds the objects). Found from entries without details, which have every key an
+/// entry has.
+fn entry_fields(input: &ExplorerInput, o: [f64; 2]) -> Result<Vec<String>> {
     let mut fields: Vec<String> = Vec::new();
     let mut seen = std::collections::HashSet::new();
-    for r in &records {
-        for k in r.as_object().into_iter().flat_map(|m| m.keys()) {
-            if seen.insert(k.as_str()) {
+    let mut dates = DateTable::default();
+    for (r, fp) in input.results.structures.iter().zip(&input.footprints) {
+        let v = structure_json(r, fp, o, DetailPart::default(), &mut dates, input.reports)?;
+        for k in v.as_object().into_iter().flat_map(|m| m.keys()) {
+            if seen.insert(k.clone()) {
                 fields.push(k.clone());
             }
         }
     }
-    let interned: Vec<bool> = (fields.iter())
-        .map(|f| INTERNED_FIELDS.contains(&f.as_str()))
-        .collect();
-    let rows: Vec<Value> = records
-        .into_iter()
-        .map(|mut r| {
-            Value::Array(
-                (fields.iter().zip(&interned))
-                    .map(|(f, &intern)| {
-                        let mut v = r.get_mut(f).map(Value::take).unwrap_or(Value::Null);
-                        if intern {
-                            strings.intern(&mut v);
-                        }
-                        v
-                    })
-                    .collect(),
-            )
-        })
-        .collect();
-    json!({"fields": fields, "rows": rows})
+    Ok(fields)
+}
+
+/// One entry as its row of values in `fields` order, the [`INTERNED_FIELDS`] interned.
+fn row(mut entry: Value, fields: &[String], strings: &mut Strings) -> Value {
+    Value::Array(
+        fields
+            .iter()
+            .map(|f| {
+                let mut v = entry.get_mut(f).map(Value::take).unwrap_or(Value::Null);
+                if INTERNED_FIELDS.contains(&f.as_str()) {
+                    strings.intern(&mut v);
+                }
+                v
+            })
+            .collect(),
+    )
 }
 
 /// One structure's entry: its compact record as written to results.json, plus its footprint,
@@ -427,32 +428,37 @@ fn structure_json(
     Ok(v)
 }
 
-/// The page's data document.
-pub fn data(input: &ExplorerInput, dir: &Path) -> Result<Value> {
+/// The page's data document as script-safe JSON text ([`script_safe`]). The detail files are
+/// read and parsed in parallel (most of the work) a block at a time, and each structure's row is
+/// serialised as soon as it is built, so only one block's details and entries are held at once
+/// (a document of `serde_json::Value`s would hold about 30 KB per structure).
+pub fn data_text(input: &ExplorerInput, dir: &Path) -> Result<String> {
+    const BLOCK: usize = 256;
     let o = origin(&input.footprints);
+    let fields = entry_fields(input, o)?;
     let mut dates = DateTable::default();
-    // The detail files are read and parsed in parallel (most of the work), the entries built in
-    // order (the date table is shared).
-    let details: Vec<Result<DetailPart>> = (input.results.structures.par_iter())
-        .map(|r| read_detail(dir, r.detail_file.as_deref()))
-        .collect();
-    let mut structures = Vec::with_capacity(input.results.structures.len());
-    for ((r, fp), detail) in (input.results.structures.iter())
-        .zip(&input.footprints)
-        .zip(details)
+    let mut strings = Strings::default();
+    let mut rows = String::new();
+    for (records, footprints) in
+        (input.results.structures.chunks(BLOCK)).zip(input.footprints.chunks(BLOCK))
     {
-        structures.push(structure_json(
-            r,
-            fp,
-            o,
-            detail?,
-            &mut dates,
-            input.reports,
-        )?);
+        let details: Vec<Result<DetailPart>> = (records.par_iter())
+            .map(|r| read_detail(dir, r.detail_file.as_deref()))
+            .collect();
+        for ((r, fp), detail) in records.iter().zip(footprints).zip(details) {
+            let entry = structure_json(r, fp, o, detail?, &mut dates, input.reports)?;
+            if !rows.is_empty() {
+                rows.push(',');
+            }
+            rows.push_str(&script_safe(&serde_json::to_string(&row(
+                entry,
+                &fields,
+                &mut strings,
+            ))?));
+        }
     }
     let p = &input.results.portfolio;
-    let mut strings = Strings::default();
-    Ok(json!({
+    let head = json!({
         "format": DATA_FORMAT,
         "portfolio": {
             "name": p.name,
@@ -471,17 +477,29 @@ pub fn data(input: &ExplorerInput, dir: &Path) -> Result<Value> {
         "dates": dates.dates.iter().map(|d| d.to_string()).collect::<Vec<_>>(),
         "date_sets": dates.sets,
         "works": input.works.map(|w| works_layer(w, o)),
-        "structures": columns(structures, &mut strings),
-        "strings": strings.list,
-    }))
+    });
+    // `{…head…,"structures":{"fields":[…],"rows":[…]},"strings":[…]}`
+    let mut text = script_safe(&serde_json::to_string(&head)?);
+    text.pop();
+    for part in [
+        ",\"structures\":{\"fields\":",
+        &script_safe(&serde_json::to_string(&fields)?),
+        ",\"rows\":[",
+        &rows,
+        "]},\"strings\":",
+        &script_safe(&serde_json::to_string(&strings.list)?),
+        "}",
+    ] {
+        text.push_str(part);
+    }
+    Ok(text)
 }
 
 /// JSON made safe inside a `<script>` element: `<`, `>` and `&` (which JSON allows only inside
 /// strings) become `\u003c`, `\u003e` and `\u0026`, and U+2028/U+2029 are escaped too.
-pub fn script_safe_json(v: &Value) -> Result<String> {
-    let s = serde_json::to_string(v)?;
-    let mut out = String::with_capacity(s.len() + s.len() / 64);
-    for ch in s.chars() {
+pub fn script_safe(json: &str) -> String {
+    let mut out = String::with_capacity(json.len() + json.len() / 64);
+    for ch in json.chars() {
         match ch {
             '<' => out.push_str("\\u003c"),
             '>' => out.push_str("\\u003e"),
@@ -491,7 +509,7 @@ pub fn script_safe_json(v: &Value) -> Result<String> {
             c => out.push(c),
         }
     }
-    Ok(out)
+    out
 }
 
 /// Standard base64 (RFC 4648 §4, with padding) of `bytes`, the encoding a CSP hash source uses.
@@ -532,8 +550,7 @@ pub fn page(data_json: &str) -> String {
 
 /// Write `explorer.html` into the output folder `dir` (whose detail files are already written).
 pub fn write(dir: &Path, input: &ExplorerInput) -> Result<()> {
-    let d = data(input, dir)?;
-    let html = page(&script_safe_json(&d)?);
+    let html = page(&data_text(input, dir)?);
     super::write_file(dir, FILE, html.as_bytes())
 }
 
@@ -544,7 +561,7 @@ mod tests {
     #[test]
     fn script_safe_json_cannot_close_the_script_element() {
         let name = "</script><img src=x onerror=alert(1)> & \u{2028}";
-        let s = script_safe_json(&json!({"name": name})).unwrap();
+        let s = script_safe(&serde_json::to_string(&json!({"name": name})).unwrap());
         assert!(
             !s.contains('<') && !s.contains('>') && !s.contains('&'),
             "{s}"
@@ -583,29 +600,28 @@ mod tests {
     }
 
     #[test]
-    fn columns_keep_every_field_of_every_record() {
+    fn rows_follow_the_fields_and_miss_nothing() {
         let mut st = Strings::default();
-        let c = columns(
-            vec![json!({"a": 1, "b": 2}), json!({"b": 3, "c": 4})],
-            &mut st,
-        );
-        assert_eq!(c["fields"], json!(["a", "b", "c"]));
-        assert_eq!(c["rows"], json!([[1, 2, null], [null, 3, 4]]));
+        let fields: Vec<String> = ["a", "b", "c"].map(String::from).to_vec();
+        let rows =
+            [json!({"a": 1, "b": 2}), json!({"b": 3, "c": 4})].map(|e| row(e, &fields, &mut st));
+        assert_eq!(rows, [json!([1, 2, null]), json!([null, 3, 4])]);
         assert!(st.list.is_empty());
     }
 
     #[test]
     fn interned_fields_refer_to_one_table() {
         let mut st = Strings::default();
-        let c = columns(
-            vec![
-                json!({"id": "a", "look_directions": ["east-looking", "west-looking"], "damage_route": "x"}),
-                json!({"id": "b", "look_directions": ["west-looking"], "damage_route": null}),
-            ],
-            &mut st,
-        );
+        let fields: Vec<String> = ["id", "look_directions", "damage_route"]
+            .map(String::from)
+            .to_vec();
+        let rows = [
+            json!({"id": "a", "look_directions": ["east-looking", "west-looking"], "damage_route": "x"}),
+            json!({"id": "b", "look_directions": ["west-looking"], "damage_route": null}),
+        ]
+        .map(|e| row(e, &fields, &mut st));
         assert_eq!(st.list, ["east-looking", "west-looking", "x"]);
-        assert_eq!(c["rows"], json!([["a", [0, 1], 2], ["b", [1], null]]));
+        assert_eq!(rows, [json!(["a", [0, 1], 2]), json!(["b", [1], null])]);
     }
 
     #[test]
