@@ -40,7 +40,12 @@ fn main() -> anyhow::Result<()> {
         let y = 55.0 + (s / 100) as f64 * 1e-3 + (j * 3.1 % 10.0) * 1e-5;
         let f = point_blob(x, y);
         let fid = i as i64 + 1;
-        rows.execute(rusqlite::params![fid, f.geom, format!("P{i}"), format!("S{s}")])?;
+        rows.execute(rusqlite::params![
+            fid,
+            f.geom,
+            format!("P{i}"),
+            format!("S{s}")
+        ])?;
         boxes.push((fid, [x, x, y, y]));
     }
     drop(rows);
