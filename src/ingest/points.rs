@@ -421,16 +421,11 @@ struct RowHead {
 struct RowParser<'a> {
     file: &'a Path,
     spec: &'a DatasetSpec,
-    headers: &'a [String],
+    /// The header's column map (mapped columns and their names).
+    cols: &'a ColumnMap,
     delimiter: u8,
     n_cols: usize,
-    id_col: usize,
-    x_col: usize,
-    y_col: usize,
-    coh_col: Option<usize>,
-    inc_col: Option<usize>,
-    head_col: Option<usize>,
-    h_col: Option<usize>,
+    /// The epoch columns in order (from `cols`, without their dates).
     epoch_cols: Vec<usize>,
     factor: f64,
     /// Per header column: true for an epoch column (parsed by the fast path).
@@ -699,7 +694,7 @@ impl RowParser<'_> {
                 },
             ));
         }
-        let id_raw = trim(field(self.id_col));
+        let id_raw = trim(field(self.cols.id_col));
         if id_raw.is_empty() {
             return Err(InputError::new(
                 file,
@@ -742,25 +737,25 @@ impl RowParser<'_> {
             crate::portfolio::Pass::Ascending => los::Pass::Ascending,
             crate::portfolio::Pass::Descending => los::Pass::Descending,
         };
-        let Some(col) = self.head_col.or(self.inc_col) else {
+        let Some(col) = self.cols.head_col.or(self.cols.inc_col) else {
             return Ok(());
         };
         match los::los_from_angles(incidence_deg, heading_deg, look, pass) {
             Ok(g) => {
-                if self.inc_col.is_some() && !g.warnings.is_empty() {
+                if self.cols.inc_col.is_some() && !g.warnings.is_empty() {
                     acc.unusual_incidence += 1;
                 }
                 Ok(())
             }
             Err(e) => {
-                let value = if Some(col) == self.head_col {
+                let value = if Some(col) == self.cols.head_col {
                     heading_deg
                 } else {
                     incidence_deg
                 };
                 Err(InputError::new(
                     self.file,
-                    format!("line {line}, column `{}`", self.headers[col]),
+                    format!("line {line}, column `{}`", self.cols.headers[col]),
                     format!(
                         "value {value}° gives a line of sight that is not valid for this {} dataset: {e}",
                         pass.label()
@@ -777,7 +772,7 @@ impl RowParser<'_> {
     /// counted in `acc`.
     fn row_head(&self, line: u64, num: &NumField, acc: &mut Acc) -> Result<RowHead, InputError> {
         let file = self.file;
-        let headers = self.headers;
+        let headers = &self.cols.headers;
         let spec = self.spec;
         let loc = || format!("line {line}");
         let req = |col: usize, what: &str| -> Result<f64, InputError> {
@@ -790,8 +785,8 @@ impl RowParser<'_> {
                 )
             })
         };
-        let x = req(self.x_col, "x coordinate")?;
-        let y = req(self.y_col, "y coordinate")?;
+        let x = req(self.cols.x_col, "x coordinate")?;
+        let y = req(self.cols.y_col, "y coordinate")?;
         if self.geographic {
             match check_geographic(x, y) {
                 GeographicCheck::Plausible => {}
@@ -813,7 +808,7 @@ impl RowParser<'_> {
                 }
             }
         }
-        let coherence = match self.coh_col {
+        let coherence = match self.cols.coh_col {
             Some(col) => {
                 let v = num(col, "coherence")?;
                 if let Some(v) = v {
@@ -830,7 +825,7 @@ impl RowParser<'_> {
             }
             None => None,
         };
-        let incidence_deg = match self.inc_col {
+        let incidence_deg = match self.cols.inc_col {
             Some(col) => {
                 let v = req(col, "incidence angle")?;
                 if !(v > 0.0 && v < 90.0) {
@@ -845,7 +840,7 @@ impl RowParser<'_> {
             }
             None => spec.incidence_deg.unwrap_or(f64::NAN),
         };
-        let heading_deg = match self.head_col {
+        let heading_deg = match self.cols.head_col {
             Some(col) => {
                 let v = req(col, "heading")?;
                 if !(-360.0..=360.0).contains(&v) {
@@ -861,7 +856,7 @@ impl RowParser<'_> {
             None => spec.heading_deg.unwrap_or(f64::NAN),
         };
         self.check_point_geometry(line, incidence_deg, heading_deg, acc)?;
-        let height_m = match self.h_col {
+        let height_m = match self.cols.h_col {
             Some(col) => num(col, "height")?.map(|v| v as f32),
             None => None,
         };
@@ -923,9 +918,9 @@ impl RowParser<'_> {
             xy,
             association,
             coherence: h.coherence,
-            incidence_deg: self.inc_col.map(|_| h.incidence_deg as f32),
-            heading_deg: self.head_col.map(|_| h.heading_deg as f32),
-            height_m: self.h_col.map(|_| h.height_m.unwrap_or(f32::NAN)),
+            incidence_deg: self.cols.inc_col.map(|_| h.incidence_deg as f32),
+            heading_deg: self.cols.head_col.map(|_| h.heading_deg as f32),
+            height_m: self.cols.h_col.map(|_| h.height_m.unwrap_or(f32::NAN)),
         }
     }
 
@@ -940,7 +935,7 @@ impl RowParser<'_> {
         pre: Option<FastRow>,
     ) -> Result<(), InputError> {
         let file = self.file;
-        let headers = self.headers;
+        let headers = &self.cols.headers;
         let field = |i: usize| &buf[ranges[i].clone()];
         let loc = || format!("line {line}");
         let num = |col: usize, what: &str| -> Result<Option<f64>, InputError> {
@@ -1400,7 +1395,7 @@ impl RowParser<'_> {
         let loc = || format!("line {line}");
         acc.rows += 1;
         let id_text;
-        let id_raw: &[u8] = match &b.columns[self.id_col] {
+        let id_raw: &[u8] = match &b.columns[self.cols.id_col] {
             NumColumn::Text(v) => trim(&v[r]),
             NumColumn::Num(v) => {
                 id_text = super::gis_points::num_text(v[r]);
@@ -1470,7 +1465,7 @@ impl RowParser<'_> {
     fn implausible(&self, line: u64, col: usize, v: f64, mm: f64) -> InputError {
         InputError::new(
             self.file,
-            format!("line {line}, column `{}`", self.headers[col]),
+            format!("line {line}, column `{}`", self.cols.headers[col]),
             format!(
                 "displacement {v} {} = {mm:.0} mm is implausible (more than {MAX_ABS_DISPLACEMENT_MM} mm)",
                 if self.spec.unit == crate::portfolio::Unit::M {
@@ -1682,12 +1677,8 @@ impl ColumnMap {
         to_analysis: &'a Transformer,
         associate: &'a (dyn Fn(f64, f64) -> Option<PointAssociation> + Sync),
     ) -> RowParser<'a> {
-        let headers = &self.headers;
-        let (id_col, x_col, y_col) = (self.id_col, self.x_col, self.y_col);
-        let (coh_col, inc_col, head_col, h_col) =
-            (self.coh_col, self.inc_col, self.head_col, self.h_col);
         let epoch_cols = &self.epoch_cols;
-        let n_cols = headers.len();
+        let n_cols = self.headers.len();
         let factor = spec.unit.to_mm()
             * match spec.positive {
                 LosSign::Towards => 1.0,
@@ -1696,16 +1687,9 @@ impl ColumnMap {
         RowParser {
             file,
             spec,
-            headers,
+            cols: self,
             delimiter,
             n_cols,
-            id_col,
-            x_col,
-            y_col,
-            coh_col,
-            inc_col,
-            head_col,
-            h_col,
             epoch_cols: epoch_cols.iter().map(|(c, _)| *c).collect(),
             is_epoch: (0..n_cols)
                 .map(|i| epoch_cols.iter().any(|(c, _)| *c == i))
