@@ -826,17 +826,20 @@ pub(crate) mod shp {
         Ok(())
     }
 
-    pub(super) fn read(
-        spec: &StructuresSpec,
-        defaults: &FootprintDefaults,
-        warnings: &mut Warnings,
-    ) -> Result<(Vec<RawStructure>, Crs), InputError> {
-        let file = spec.path.as_path();
-        let open_err = |e: shapefile::Error| match e {
+    /// The reader of the Shapefile `file`, its length checked against its header; a missing
+    /// .dbf is named as such, `dbf_holds` saying what it would have held.
+    pub(crate) fn open(
+        file: &Path,
+        dbf_holds: &str,
+    ) -> Result<
+        shapefile::Reader<std::io::BufReader<std::fs::File>, std::io::BufReader<std::fs::File>>,
+        InputError,
+    > {
+        let reader = shapefile::Reader::from_path(file).map_err(|e| match e {
             shapefile::Error::MissingDbf => InputError::new(
                 &file.with_extension("dbf"),
                 "",
-                "the Shapefile's .dbf (its attribute table) is missing",
+                format!("the Shapefile's .dbf ({dbf_holds}) is missing"),
                 "copy the .dbf that came with the .shp beside it (same name)",
             ),
             e => InputError::new(
@@ -845,9 +848,18 @@ pub(crate) mod shp {
                 format!("cannot read the Shapefile: {e}"),
                 "check the file opens in a GIS; export it again if it is damaged",
             ),
-        };
-        let mut reader = shapefile::Reader::from_path(file).map_err(open_err)?;
+        })?;
         check_length(file, reader.header().file_length)?;
+        Ok(reader)
+    }
+
+    pub(super) fn read(
+        spec: &StructuresSpec,
+        defaults: &FootprintDefaults,
+        warnings: &mut Warnings,
+    ) -> Result<(Vec<RawStructure>, Crs), InputError> {
+        let file = spec.path.as_path();
+        let mut reader = open(file, "its attribute table")?;
         let stated = Stated::structures(spec);
         let declared = prj_epsg(&stated, file, warnings)?;
         let crs = settle_crs(&stated, file, "", declared, warnings)?;

@@ -97,21 +97,7 @@ pub fn open(spec: &DatasetSpec, i: usize, warnings: &mut Warnings) -> Result<Lay
             "convert the points, e.g. `ogr2ogr -f GPKG points.gpkg points.fgb`",
         )),
         Format::Shapefile => {
-            let reader = shapefile::Reader::from_path(file).map_err(|e| match e {
-                shapefile::Error::MissingDbf => InputError::new(
-                    &file.with_extension("dbf"),
-                    "",
-                    "the Shapefile's .dbf (its attribute table, with the dates) is missing",
-                    "copy the .dbf that came with the .shp beside it (same name)",
-                ),
-                e => InputError::new(
-                    file,
-                    "",
-                    format!("cannot read the Shapefile: {e}"),
-                    "check the file opens in a GIS; export it again if it is damaged",
-                ),
-            })?;
-            shp::check_length(file, reader.header().file_length)?;
+            let reader = shp::open(file, "its attribute table, with the dates")?;
             // Field names in file order (the records are maps).
             let dbf = file.with_extension("dbf");
             let names = shapefile::dbase::Reader::from_path(&dbf)
