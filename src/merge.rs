@@ -436,33 +436,20 @@ fn write_explorer(
     };
     let mut warnings = crate::error::Warnings::default();
     let (structures, crs, _) = crate::ingest::load_structures(pf, &mut warnings)?;
-    let works = match &pf.works {
-        Some(w) => Some(
-            crate::works::WorksGeometry::project(w, &crs, &pf.file)
-                .context("planned works for the explorer")?,
-        ),
-        None => None,
-    };
-    let by_id: HashMap<&str, &geo::MultiPolygon<f64>> = structures
-        .iter()
-        .map(|s| (s.raw.id.as_str(), &s.footprint))
-        .collect();
-    let empty = geo::MultiPolygon::<f64>(vec![]);
     let no_reports = manifest
         .pointer("/options/no_reports")
         .and_then(Value::as_bool)
         .unwrap_or(true);
-    let input = output::explorer::ExplorerInput {
+    let page = crate::run::ExplorerPage {
+        portfolio: pf,
         results: &results,
-        footprints: (results.structures.iter())
-            .map(|r| by_id.get(r.id.as_str()).copied().unwrap_or(&empty))
-            .collect(),
-        works: works.as_ref(),
-        inputs: manifest["inputs"].clone(),
-        cautions: crate::report::pipeline::portfolio_cautions(pf, window)?,
+        structures: &structures,
+        analysis_crs: &crs,
+        window,
+        inputs: &manifest["inputs"],
         reports: !no_reports,
     };
-    output::explorer::write(d, &input)
+    page.write(d)
 }
 
 /// Check the merge's output folder: never a shard, never the portfolio or (once it is read) any

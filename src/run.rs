@@ -1350,51 +1350,87 @@ fn write_outputs(
     write_explorer(a, opts, d, &m["inputs"])
 }
 
-/// explorer.html (output::explorer): results, footprints, works, cautions and the manifest's
-/// inputs; reads the series back from the detail files in `d`.
+/// explorer.html (output::explorer) of this run; reads the series back from the detail files
+/// in `d`.
 fn write_explorer(
     a: &Analysis,
     opts: &RunOptions,
     d: &Path,
     inputs: &serde_json::Value,
 ) -> Result<()> {
-    let works = match &a.portfolio.works {
-        Some(w) => Some(
-            crate::works::WorksGeometry::project(w, &a.inputs.analysis_crs, &a.portfolio.file)
-                .context("planned works for the explorer")?,
-        ),
-        None => None,
-    };
-    let by_id: std::collections::HashMap<&str, &geo::MultiPolygon<f64>> = a
-        .inputs
-        .structures
-        .iter()
-        .map(|s| (s.raw.id.as_str(), &s.footprint))
-        .collect();
-    let empty = geo::MultiPolygon::<f64>(vec![]);
-    let input = output::explorer::ExplorerInput {
+    let page = ExplorerPage {
+        portfolio: &a.portfolio,
         results: &a.results,
-        footprints: (a.results.structures.iter())
-            .map(|r| by_id.get(r.id.as_str()).copied().unwrap_or(&empty))
-            .collect(),
-        works: works.as_ref(),
-        inputs: inputs.clone(),
-        cautions: crate::report::pipeline::portfolio_cautions(&a.portfolio, a.window)?,
+        structures: &a.inputs.structures,
+        analysis_crs: &a.inputs.analysis_crs,
+        window: a.window,
+        inputs,
         reports: !opts.no_reports,
     };
-    output::explorer::write(d, &input)
+    page.write(d)
+}
+
+/// What explorer.html is built from, for a run and for `merge` alike.
+pub struct ExplorerPage<'a> {
+    /// The portfolio (works, report text, template folder).
+    pub portfolio: &'a Portfolio,
+    /// The results document.
+    pub results: &'a Results,
+    /// The structures with their footprints in the analysis CRS (any order).
+    pub structures: &'a [ingest::Structure],
+    /// The analysis CRS.
+    pub analysis_crs: &'a crate::coords::Crs,
+    /// The assessment window.
+    pub window: Window,
+    /// The manifest's `inputs` list.
+    pub inputs: &'a serde_json::Value,
+    /// True when the folder holds the PDF reports.
+    pub reports: bool,
+}
+
+impl ExplorerPage<'_> {
+    /// Write explorer.html into `d` (whose detail files are written): the footprints in results
+    /// order, the works projected into the analysis CRS, the cautions for the window.
+    pub fn write(&self, d: &Path) -> Result<()> {
+        let pf = self.portfolio;
+        let works = match &pf.works {
+            Some(w) => Some(
+                crate::works::WorksGeometry::project(w, self.analysis_crs, &pf.file)
+                    .context("planned works for the explorer")?,
+            ),
+            None => None,
+        };
+        let by_id: std::collections::HashMap<&str, &geo::MultiPolygon<f64>> = (self.structures)
+            .iter()
+            .map(|s| (s.raw.id.as_str(), &s.footprint))
+            .collect();
+        let empty = geo::MultiPolygon::<f64>(vec![]);
+        let input = output::explorer::ExplorerInput {
+            results: self.results,
+            footprints: (self.results.structures.iter())
+                .map(|r| by_id.get(r.id.as_str()).copied().unwrap_or(&empty))
+                .collect(),
+            works: works.as_ref(),
+            inputs: self.inputs.clone(),
+            cautions: crate::report::pipeline::portfolio_cautions(pf, self.window)?,
+            reports: self.reports,
+        };
+        output::explorer::write(d, &input)
+    }
+}
+
+/// The structures' WGS84 footprints in input (= results) order, for the GIS outputs.
+fn footprints_wgs84(a: &Analysis) -> Vec<&geo::MultiPolygon<f64>> {
+    (a.inputs.structures.iter())
+        .map(|s| &s.footprint_wgs84)
+        .collect()
 }
 
 /// results.gpkg: the structures and points layers (output::gpkg).
 fn write_gpkg(a: &Analysis, d: &Path) -> Result<()> {
     let to_wgs =
         crate::coords::Transformer::new(&a.inputs.analysis_crs, &crate::coords::Crs::wgs84());
-    let fps: Vec<&geo::MultiPolygon<f64>> = a
-        .inputs
-        .structures
-        .iter()
-        .map(|s| &s.footprint_wgs84)
-        .collect();
+    let fps = footprints_wgs84(a);
     output::gpkg::write_results(
         d,
         &a.results.structures,
@@ -1410,12 +1446,7 @@ fn write_results(a: &Analysis, d: &Path) -> Result<()> {
         output::results_json_to(&a.results, w)
     })?;
     output::write_with(d, "results.csv", |w| output::results_csv_to(&a.results, w))?;
-    let fps: Vec<&geo::MultiPolygon<f64>> = a
-        .inputs
-        .structures
-        .iter()
-        .map(|s| &s.footprint_wgs84)
-        .collect();
+    let fps = footprints_wgs84(a);
     output::write_with(d, "results.geojson", |w| {
         output::results_geojson_to(&a.results, &fps, w)
     })
