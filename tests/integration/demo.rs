@@ -17,8 +17,8 @@ fn truth_of<'a>(t: &'a serde_json::Value, id: &str) -> &'a serde_json::Value {
         .unwrap()
 }
 
-#[test]
-fn demo_headline_results_match_planted_truth() {
+/// The bundled demo assessed without reports into `out` of a new fixture folder.
+fn assess_demo() -> (Fx, serde_json::Value) {
     let fx = Fx::new();
     let portfolio = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-portfolio/portfolio.toml");
     let r = assess(
@@ -26,6 +26,12 @@ fn demo_headline_results_match_planted_truth() {
         &fx.path("out"),
         &["--no-reports"],
     );
+    (fx, r)
+}
+
+#[test]
+fn demo_headline_results_match_planted_truth() {
+    let (fx, r) = assess_demo();
     let t = truth();
     // The results layout: one compact record per line of results.json, at most 5 KB each (the
     // detail is in details/<stem>.json, joined in by `assess` above).
@@ -99,13 +105,7 @@ fn demo_headline_results_match_planted_truth() {
 /// near it a prediction to compare with.
 #[test]
 fn demo_reports_each_designed_observability_situation_and_the_works() {
-    let fx = Fx::new();
-    let portfolio = concat!(env!("CARGO_MANIFEST_DIR"), "/demo-portfolio/portfolio.toml");
-    let r = assess(
-        std::path::Path::new(portfolio),
-        &fx.path("out"),
-        &["--no-reports"],
-    );
+    let (_fx, r) = assess_demo(); // the folder lives to the end of the test
     let t = truth();
     let designed: Vec<(&str, &str)> = t["structures"]
         .as_array()
