@@ -1310,30 +1310,34 @@ pub fn assess_into(portfolio_path: &Path, opts: &RunOptions, out: &Path) -> Resu
 }
 
 /// Write the portfolio outputs and the reports into the staging folder `d` (the detail files
-/// are already there): the points files and the results files at the same time, then the
-/// manifest once the inputs' digests are ready.
+/// are already there). Two branches run at the same time: the points, results and GeoPackage
+/// files (the GeoPackage is one SQLite writer, the longest of them), and the manifest (once the
+/// inputs' digests are ready) followed by explorer.html, which reads the detail files back. The
+/// reports come last, on every worker.
 fn write_outputs(
     a: &Analysis,
     opts: &RunOptions,
     d: &Path,
     digests: std::thread::JoinHandle<Result<Vec<InputDigest>>>,
 ) -> Result<()> {
-    let (points, (results, gpkg)) = rayon::join(
-        || write_points(a, d, !opts.no_points_geojson),
-        || rayon::join(|| write_results(a, d), || write_gpkg(a, d)),
+    let (tables, page) = rayon::join(
+        || write_tables(a, opts, d),
+        || -> Result<Vec<InputDigest>> {
+            let digests = digests
+                .join()
+                .map_err(|_| anyhow::anyhow!("hashing the inputs failed (the thread stopped)"))??;
+            let m = manifest(a, opts, &digests)?;
+            output::write_file(
+                d,
+                "manifest.json",
+                (serde_json::to_string_pretty(&m)? + "\n").as_bytes(),
+            )?;
+            write_explorer(a, opts, d, &m["inputs"])?;
+            Ok(digests)
+        },
     );
-    points?;
-    results?;
-    gpkg?;
-    let digests = digests
-        .join()
-        .map_err(|_| anyhow::anyhow!("hashing the inputs failed (the thread stopped)"))??;
-    let m = manifest(a, opts, &digests)?;
-    output::write_file(
-        d,
-        "manifest.json",
-        (serde_json::to_string_pretty(&m)? + "\n").as_bytes(),
-    )?;
+    tables?;
+    let digests = page?;
     // PDF reports (report::pipeline) read the detail files back from `d`.
     if !opts.no_reports {
         let sha256: Vec<(PathBuf, String)> = digests
@@ -1347,7 +1351,18 @@ fn write_outputs(
             opts.progress,
         )?;
     }
-    write_explorer(a, opts, d, &m["inputs"])
+    Ok(())
+}
+
+/// The points files, the results files and results.gpkg, written at the same time.
+fn write_tables(a: &Analysis, opts: &RunOptions, d: &Path) -> Result<()> {
+    let (points, (results, gpkg)) = rayon::join(
+        || write_points(a, d, !opts.no_points_geojson),
+        || rayon::join(|| write_results(a, d), || write_gpkg(a, d)),
+    );
+    points?;
+    results?;
+    gpkg
 }
 
 /// explorer.html (output::explorer) of this run; reads the series back from the detail files
