@@ -95,7 +95,7 @@ pub const MAX_CANDIDATES: usize = 400;
 /// suffix sums `E_k = Σ_{i≥k} e_i`, `F_k = Σ_{i≥k} τ_i·e_i` (τ = t − t̄). One pass over the series
 /// and one over the candidates therefore give every candidate's RSS: O(n + K) per series instead
 /// of O(n·K) for a refit (or a dot product) per candidate. The norms `r_kᵀr_k` depend on the
-/// dates only and are computed once, by the numerically stable two-pass formula.
+/// dates only and are computed once, also from suffix sums (of 1, τ and τ² over i > k).
 struct HingeBasis {
     /// Centred times τ_i = t_i − t̄ (years).
     tau: Vec<f64>,
@@ -126,16 +126,34 @@ impl HingeBasis {
         // (Plinth choice; stated in docs/methods.md).
         let span = n - 2 * m;
         let step = span.div_ceil(MAX_CANDIDATES).max(1);
-        for k in (m..=(n - m - 1)).step_by(step) {
+        // The norms from suffix sums over i > k (the hinge is zero up to and including k, the
+        // times being strictly increasing): with S0 = n − 1 − k, S1 = Σ τ_i, S2 = Σ τ_i²,
+        // Σh = S1 − τ_k·S0, Σh² = S2 − 2τ_k·S1 + τ_k²·S0, Σhτ = S2 − τ_k·S1 (Στ = 0), and the
+        // residual sum of squares of h on [1, τ] is Σh² − (Σh)²/n − (Σhτ)²/Σττ.
+        let wanted: Vec<usize> = (m..=(n - m - 1)).step_by(step).collect();
+        let (mut s0, mut s1, mut s2) = (0.0f64, 0.0f64, 0.0f64);
+        let mut i = n;
+        let mut found = Vec::with_capacity(wanted.len());
+        for &k in wanted.iter().rev() {
+            while i > k + 1 {
+                i -= 1;
+                s0 += 1.0;
+                s1 += tau[i];
+                s2 += tau[i] * tau[i];
+            }
             let tk = tau[k];
-            let h = |x: f64| (x - tk).max(0.0);
-            let hm = tau.iter().map(|&x| h(x)).sum::<f64>() / nf;
-            let beta = tau.iter().map(|&x| (h(x) - hm) * x).sum::<f64>() / sxx;
-            let ss: f64 = tau.iter().map(|&x| (h(x) - hm - beta * x).powi(2)).sum();
-            if ss > 0.0 {
-                candidates.push((k, tk, 1.0 / ss));
+            let sh = s1 - tk * s0;
+            let shh = s2 - 2.0 * tk * s1 + tk * tk * s0;
+            let sht = s2 - tk * s1;
+            let ss = shh - sh * sh / nf - sht * sht / sxx;
+            // Round-off can leave a tiny positive remainder where the exact value is 0 (a
+            // hinge that is a straight line over the data): treat it as 0.
+            if ss > 1e-12 * shh {
+                found.push((k, tk, 1.0 / ss));
             }
         }
+        found.reverse();
+        candidates = found;
         Self {
             tau,
             sxx,

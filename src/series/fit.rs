@@ -11,7 +11,7 @@ use chrono::NaiveDate;
 use nalgebra::{DMatrix, DVector};
 use serde::Serialize;
 
-use super::stats::{MAD_TO_SIGMA, f_upper_tail, median};
+use super::stats::{MAD_TO_SIGMA, f_upper_tail, median, quantile_in_place};
 
 /// Days per decimal year (insar-methods.md §1.3).
 pub const DAYS_PER_YEAR: f64 = 365.25;
@@ -794,23 +794,28 @@ pub fn theil_sen(t_yr: &[f64], d_mm: &[f64]) -> Result<TheilSen, FitError> {
             }
         }
     }
-    let b = median(&slopes).ok_or(FitError::Degenerate {
+    let pairs = slopes.len();
+    // The medians by selection in the vectors themselves (the same order statistics as
+    // `stats::median`, which copies and drops non-finite values first).
+    slopes.retain(|v| v.is_finite());
+    let b = quantile_in_place(&mut slopes, 0.5).ok_or(FitError::Degenerate {
         model: "Theil-Sen",
         why: "all epochs at the same time",
     })?;
-    let offsets: Vec<f64> = t_yr
+    let mut offsets: Vec<f64> = t_yr
         .iter()
         .zip(d_mm.iter())
         .map(|(t, d)| d - b * t)
+        .filter(|v| v.is_finite())
         .collect();
-    let a = median(&offsets).ok_or(FitError::Degenerate {
+    let a = quantile_in_place(&mut offsets, 0.5).ok_or(FitError::Degenerate {
         model: "Theil-Sen",
         why: "no offsets",
     })?;
     Ok(TheilSen {
         velocity_mm_per_yr: b,
         intercept_mm: a,
-        pairs: slopes.len(),
+        pairs,
     })
 }
 

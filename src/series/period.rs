@@ -5,6 +5,8 @@
 //! feed the structural metrics (tilt, deflection ratio) downstream. It does not project to the
 //! vertical (`project`/`decompose`) and does not screen outliers (`aggregate`).
 
+use std::borrow::Cow;
+
 use serde::Serialize;
 
 use super::fit::{FitError, LineSummary, LinearFit, fit_line_summary, fit_linear};
@@ -78,16 +80,26 @@ fn ar1_mean_variance_factor(m: usize, rho: f64) -> f64 {
     s / (m * m) as f64
 }
 
-fn window_values(t_yr: &[f64], d_mm: &[f64], t1: f64, t2: f64) -> (Vec<f64>, Vec<f64>) {
+fn window_values<'a>(
+    t_yr: &'a [f64],
+    d_mm: &'a [f64],
+    t1: f64,
+    t2: f64,
+) -> (Cow<'a, [f64]>, Cow<'a, [f64]>) {
+    let keep = |ti: f64, di: f64| ti.is_finite() && di.is_finite() && ti >= t1 && ti <= t2;
+    // The common case: every epoch is valid and inside the window (the caller cut it already).
+    if t_yr.len() == d_mm.len() && t_yr.iter().zip(d_mm).all(|(&ti, &di)| keep(ti, di)) {
+        return (Cow::Borrowed(t_yr), Cow::Borrowed(d_mm));
+    }
     let cap = t_yr.len().min(d_mm.len());
     let (mut t, mut d) = (Vec::with_capacity(cap), Vec::with_capacity(cap));
     for (&ti, &di) in t_yr.iter().zip(d_mm) {
-        if ti.is_finite() && di.is_finite() && ti >= t1 && ti <= t2 {
+        if keep(ti, di) {
             t.push(ti);
             d.push(di);
         }
     }
-    (t, d)
+    (Cow::Owned(t), Cow::Owned(d))
 }
 
 /// Per-epoch noise level used for σ: residual SD and lag-1 autocorrelation of a straight-line
@@ -154,13 +166,21 @@ fn period_in_window(
                     got: n,
                 });
             }
-            let mut idx: Vec<usize> = (0..n).collect();
-            // Window values come in time order; a stable sort of a sorted series changes nothing.
-            if !t.is_sorted_by(|a, b| a.total_cmp(b).is_le()) {
+            // Window values come in time order; a stable sort of a sorted series changes nothing,
+            // so the epochs' own order is used then (no index list).
+            let idx: Vec<usize> = if t.is_sorted_by(|a, b| a.total_cmp(b).is_le()) {
+                [(0..m), (n - m..n)]
+                    .into_iter()
+                    .flatten()
+                    .collect::<Vec<_>>()
+            } else {
+                let mut idx: Vec<usize> = (0..n).collect();
                 idx.sort_by(|a, b| t[*a].total_cmp(&t[*b]));
-            }
+                idx.drain(m..n - m);
+                idx
+            };
             let mean = |ids: &[usize], v: &[f64]| ids.iter().map(|i| v[*i]).sum::<f64>() / m as f64;
-            let (first, last) = (&idx[..m], &idx[n - m..]);
+            let (first, last) = (&idx[..m], &idx[m..]);
             let noise = match fit {
                 Some(f) => f,
                 None => {
