@@ -448,6 +448,7 @@ fn write_explorer(
         window,
         inputs: &manifest["inputs"],
         reports: !no_reports,
+        held: None,
     };
     page.write(d)
 }

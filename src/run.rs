@@ -644,6 +644,9 @@ pub struct Assessed {
     pub records: Vec<StructureResult>,
     /// The screening verdict of every point for the points outputs.
     pub points: PointVerdicts,
+    /// What explorer.html shows of each detail file, kept so the page need not read the files
+    /// back (a few KB per structure).
+    pub page_parts: output::explorer::HeldParts,
 }
 
 /// Each point's screening verdict by its owning structure — or, for a point only in surroundings
@@ -751,7 +754,7 @@ pub fn assess_all(
     let points = PointVerdicts::with_sizes(datasets.iter().map(ingest::Dataset::len));
     // Collected by index into an exactly sized vector (a fallible collect would gather pieces
     // and copy them together, holding the records twice at the end).
-    let records: Vec<Result<StructureResult>> = inputs
+    let records: Vec<Result<(StructureResult, output::explorer::PagePart)>> = inputs
         .structures
         .par_iter()
         .zip(stems.par_iter())
@@ -775,6 +778,7 @@ pub fn assess_all(
                 .collect();
             let a = assess::assess_structure(&ctx, s, &members, Some(stem.clone()));
             write_detail(details_dir, stem, &a.detail)?;
+            let part = output::explorer::PagePart::of_detail(&a.detail)?;
             for v in &a.verdicts {
                 if datasets[v.dataset].association[v.point_index].structure() == Some(s.index) {
                     points.set(
@@ -786,12 +790,25 @@ pub fn assess_all(
                 }
             }
             bar.inc(1);
-            Ok(a.record)
+            Ok((a.record, part))
         })
         .collect();
     bar.finish_and_clear();
-    let records = records.into_iter().collect::<Result<_>>()?;
-    Ok(Assessed { records, points })
+    let mut page_parts = output::explorer::HeldParts::with_capacity(records.len());
+    let records = (records.into_iter())
+        .map(|r| {
+            let (record, part) = r?;
+            if let Some(rel) = &record.detail_file {
+                page_parts.insert(rel.clone(), part);
+            }
+            Ok(record)
+        })
+        .collect::<Result<_>>()?;
+    Ok(Assessed {
+        records,
+        points,
+        page_parts,
+    })
 }
 
 fn progress_bar(progress: bool, n: usize) -> indicatif::ProgressBar {
@@ -1294,7 +1311,7 @@ pub fn assess_into(portfolio_path: &Path, opts: &RunOptions, out: &Path) -> Resu
         let results = summarise(&p, &association, assessed.records, opts)?;
         drop(association);
         let a = Analysis::new(p, results, assessed.points);
-        write_outputs(&a, opts, &staging.dir, digests)?;
+        write_outputs(&a, opts, &staging.dir, digests, &assessed.page_parts)?;
         Ok(a)
     })();
     match res {
@@ -1319,6 +1336,7 @@ fn write_outputs(
     opts: &RunOptions,
     d: &Path,
     digests: std::thread::JoinHandle<Result<Vec<InputDigest>>>,
+    page_parts: &output::explorer::HeldParts,
 ) -> Result<()> {
     let (tables, page) = rayon::join(
         || write_tables(a, opts, d),
@@ -1332,7 +1350,7 @@ fn write_outputs(
                 "manifest.json",
                 (serde_json::to_string_pretty(&m)? + "\n").as_bytes(),
             )?;
-            write_explorer(a, opts, d, &m["inputs"])?;
+            write_explorer(a, opts, d, &m["inputs"], page_parts)?;
             Ok(digests)
         },
     );
@@ -1372,6 +1390,7 @@ fn write_explorer(
     opts: &RunOptions,
     d: &Path,
     inputs: &serde_json::Value,
+    page_parts: &output::explorer::HeldParts,
 ) -> Result<()> {
     let page = ExplorerPage {
         portfolio: &a.portfolio,
@@ -1381,6 +1400,7 @@ fn write_explorer(
         window: a.window,
         inputs,
         reports: !opts.no_reports,
+        held: Some(page_parts),
     };
     page.write(d)
 }
@@ -1401,6 +1421,8 @@ pub struct ExplorerPage<'a> {
     pub inputs: &'a serde_json::Value,
     /// True when the folder holds the PDF reports.
     pub reports: bool,
+    /// The detail files' parts the run kept (`None`: read them all back, as `merge` does).
+    pub held: Option<&'a output::explorer::HeldParts>,
 }
 
 impl ExplorerPage<'_> {
@@ -1429,6 +1451,7 @@ impl ExplorerPage<'_> {
             inputs: self.inputs.clone(),
             cautions: crate::report::pipeline::portfolio_cautions(pf, self.window)?,
             reports: self.reports,
+            held: self.held,
         };
         output::explorer::write(d, &input)
     }

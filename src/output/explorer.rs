@@ -55,6 +55,9 @@ pub struct ExplorerInput<'a> {
     pub cautions: Vec<String>,
     /// True when `reports/<stem>.pdf` files are written by this run.
     pub reports: bool,
+    /// What the page shows of each detail file, kept by the run while it assessed (by the
+    /// record's `detail_file`); a structure missing here is read from its file (as `merge` does).
+    pub held: Option<&'a HeldParts>,
 }
 
 /// The page's local origin: the lower-left corner of all footprints, whole metres.
@@ -227,6 +230,111 @@ impl NearbyPart {
     }
 }
 
+/// A structure's vertical series as the page shows it: the values in whole tenths of a mm (a
+/// chart's resolution; [`MISSING`] for an epoch without a value) and the linear trend's
+/// intercept and velocity. Both sources — a detail file read back, or the assessment's own
+/// numbers while the run goes on — become this one form, so the page is the same either way.
+#[derive(Debug, Clone, PartialEq)]
+struct PageSeries {
+    label: String,
+    time_origin: chrono::NaiveDate,
+    dates: Vec<chrono::NaiveDate>,
+    tenths: Vec<i32>,
+    linear: Option<(f64, f64)>,
+}
+
+/// [`PageSeries::tenths`] of an epoch without a (finite) value.
+const MISSING: i32 = i32::MIN;
+
+/// A value in whole tenths of a mm, [`MISSING`] when not finite. Vertical values are bounded by
+/// the readers' plausibility limit on every input value (far below the ±214 km an `i32` of
+/// tenths holds); anything beyond saturates.
+fn tenths_of(x: Option<f64>) -> i32 {
+    match x.filter(|v| v.is_finite()) {
+        Some(v) => ((v * 10.0).round() as i64).clamp(i32::MIN as i64 + 1, i32::MAX as i64) as i32,
+        None => MISSING,
+    }
+}
+
+impl PageSeries {
+    fn new(
+        label: &str,
+        time_origin: chrono::NaiveDate,
+        dates: &[chrono::NaiveDate],
+        values_mm: &[Option<f64>],
+        linear: Option<(f64, f64)>,
+    ) -> Self {
+        Self {
+            label: label.to_string(),
+            time_origin,
+            dates: dates.to_vec(),
+            tenths: values_mm.iter().map(|x| tenths_of(*x)).collect(),
+            linear,
+        }
+    }
+
+    fn of_part(s: &SeriesPart) -> Option<Self> {
+        let v = s.vertical.as_ref()?;
+        let linear = (v.fits.as_ref())
+            .and_then(|f| f.linear.as_ref())
+            .map(|l| (l.intercept_mm, l.velocity_mm_per_yr));
+        Some(Self::new(
+            &v.label,
+            s.time_origin,
+            &v.dates,
+            &v.vertical_mm,
+            linear,
+        ))
+    }
+
+    fn of_series(s: &crate::series::StructureSeries) -> Option<Self> {
+        let v = s.vertical.as_ref()?;
+        let linear =
+            (v.fits.as_ref()).map(|f| (f.linear.intercept_mm, f.linear.velocity_mm_per_yr));
+        Some(Self::new(
+            &v.label,
+            s.time_origin,
+            &v.dates,
+            &v.vertical_mm,
+            linear,
+        ))
+    }
+}
+
+/// What the page shows of one detail file.
+#[derive(Debug, Default)]
+pub struct PagePart {
+    series: Option<PageSeries>,
+    works: Option<WorksPart>,
+}
+
+impl PagePart {
+    fn of_file(d: DetailPart) -> Self {
+        Self {
+            series: d.series.as_ref().and_then(PageSeries::of_part),
+            works: d.works,
+        }
+    }
+
+    /// The part of an assessed structure's detail (the same numbers the detail file holds).
+    pub fn of_detail(d: &crate::assess::StructureDetail) -> Result<Self> {
+        let works = match &d.works {
+            // Rare (a portfolio with `[works]`): through the detail file's own JSON form.
+            Some(w) => Some(serde_json::from_value(
+                json!({"nearby": w.nearby, "comparison": w.comparison}),
+            )?),
+            None => None,
+        };
+        Ok(Self {
+            series: d.series.as_ref().and_then(PageSeries::of_series),
+            works,
+        })
+    }
+}
+
+/// The [`PagePart`]s a run kept while it assessed, by detail file (`details/<stem>.json`).
+pub type HeldParts = std::collections::HashMap<String, PagePart>;
+
 /// Read the parts of a structure's detail file the page needs; a missing file gives nothing
 /// (the structure then has no series in the page, and says so), a malformed one is an error.
 fn read_detail(dir: &Path, rel: Option<&str>) -> Result<DetailPart> {
@@ -257,31 +365,22 @@ fn years(d: chrono::NaiveDate, origin: chrono::NaiveDate) -> f64 {
 /// The vertical series as `{label, dates: index into the page's date sets, mm_tenths (integers
 /// of 0.1 mm, a chart's resolution), trend}`; the trend is the linear fit's line at the first and
 /// last epoch (mm, + up).
-fn series_json(s: &SeriesPart, dates: &mut DateTable) -> Option<Value> {
-    let v = s.vertical.as_ref()?;
-    let set = dates.set(&v.dates);
-    let mm: Vec<Option<i64>> = (v.vertical_mm.iter())
-        .map(|x| {
-            x.filter(|v| v.is_finite())
-                .map(|v| (v * 10.0).round() as i64)
-        })
+fn series_json(s: &PageSeries, dates: &mut DateTable) -> Value {
+    let set = dates.set(&s.dates);
+    let mm: Vec<Option<i32>> = (s.tenths.iter())
+        .map(|t| (*t != MISSING).then_some(*t))
         .collect();
-    let trend = v
-        .fits
-        .as_ref()
-        .and_then(|f| f.linear.as_ref())
-        .and_then(|l| {
-            let (first, last) = (v.dates.first()?, v.dates.last()?);
-            let at = |d: chrono::NaiveDate| {
-                cm(l.intercept_mm + l.velocity_mm_per_yr * years(d, s.time_origin))
-            };
-            Some(json!({
-                "velocity_mm_per_yr": l.velocity_mm_per_yr,
-                "from": [dates.index(*first), at(*first)],
-                "to": [dates.index(*last), at(*last)],
-            }))
-        });
-    Some(json!({"label": v.label, "dates": set, "mm_tenths": mm, "trend": trend}))
+    let trend = s.linear.and_then(|(intercept_mm, velocity_mm_per_yr)| {
+        let (first, last) = (s.dates.first()?, s.dates.last()?);
+        let at =
+            |d: chrono::NaiveDate| cm(intercept_mm + velocity_mm_per_yr * years(d, s.time_origin));
+        Some(json!({
+            "velocity_mm_per_yr": velocity_mm_per_yr,
+            "from": [dates.index(*first), at(*first)],
+            "to": [dates.index(*last), at(*last)],
+        }))
+    });
+    json!({"label": s.label, "dates": set, "mm_tenths": mm, "trend": trend})
 }
 
 /// The page's table of dates (ISO) and of date sets (lists of date indices): each series refers
@@ -363,7 +462,7 @@ fn entry_fields(input: &ExplorerInput, o: [f64; 2]) -> Result<Vec<String>> {
     let mut seen = std::collections::HashSet::new();
     let mut dates = DateTable::default();
     for (r, fp) in input.results.structures.iter().zip(&input.footprints) {
-        let v = structure_json(r, fp, o, DetailPart::default(), &mut dates, input.reports)?;
+        let v = structure_json(r, fp, o, &PagePart::default(), &mut dates, input.reports)?;
         for k in v.as_object().into_iter().flat_map(|m| m.keys()) {
             if seen.insert(k.clone()) {
                 fields.push(k.clone());
@@ -396,7 +495,7 @@ fn structure_json(
     r: &StructureResult,
     fp: &MultiPolygon<f64>,
     o: [f64; 2],
-    detail: DetailPart,
+    detail: &PagePart,
     dates: &mut DateTable,
     reports: bool,
 ) -> Result<Value> {
@@ -406,16 +505,17 @@ fn structure_json(
             m.remove(unused);
         }
         m.insert("footprint".into(), json!(footprint_rings(fp, o)));
-        let series = detail.series.as_ref().and_then(|s| series_json(s, dates));
+        let series = detail.series.as_ref().map(|s| series_json(s, dates));
         m.insert("series".into(), series.unwrap_or(Value::Null));
         // The comparison only where the works predict a settlement worth comparing (below it,
         // every ratio is "not meaningful"; most of a city is far from the works).
         let compared = r
             .predicted_settlement_mm
             .is_some_and(|p| p >= crate::works::compare::MIN_PREDICTED_SETTLEMENT_MM);
-        let works = detail.works.map(|w| {
+        let works = detail.works.as_ref().map(|w| {
             let nearby: Vec<Value> = w.nearby.iter().map(NearbyPart::json).collect();
-            json!({"nearby": nearby, "comparison": w.comparison.filter(|_| compared)})
+            let comparison = w.comparison.as_ref().filter(|_| compared);
+            json!({"nearby": nearby, "comparison": comparison})
         });
         m.insert("works".into(), works.unwrap_or(Value::Null));
         let pdf = r
@@ -442,11 +542,27 @@ pub fn data_text(input: &ExplorerInput, dir: &Path) -> Result<String> {
     for (records, footprints) in
         (input.results.structures.chunks(BLOCK)).zip(input.footprints.chunks(BLOCK))
     {
-        let details: Vec<Result<DetailPart>> = (records.par_iter())
-            .map(|r| read_detail(dir, r.detail_file.as_deref()))
+        let held = |r: &StructureResult| {
+            let rel = r.detail_file.as_deref()?;
+            input.held?.get(rel)
+        };
+        // Only what the run did not keep is read back (everything, for `merge`).
+        let read: Vec<Result<Option<PagePart>>> = (records.par_iter())
+            .map(|r| match held(r) {
+                Some(_) => Ok(None),
+                None => {
+                    read_detail(dir, r.detail_file.as_deref()).map(|d| Some(PagePart::of_file(d)))
+                }
+            })
             .collect();
-        for ((r, fp), detail) in records.iter().zip(footprints).zip(details) {
-            let entry = structure_json(r, fp, o, detail?, &mut dates, input.reports)?;
+        for ((r, fp), read) in records.iter().zip(footprints).zip(read) {
+            let read = read?;
+            let detail = match (&read, held(r)) {
+                (Some(d), _) => d,
+                (None, Some(d)) => d,
+                (None, None) => &PagePart::default(),
+            };
+            let entry = structure_json(r, fp, o, detail, &mut dates, input.reports)?;
             if !rows.is_empty() {
                 rows.push(',');
             }
@@ -642,12 +758,24 @@ mod tests {
             }),
         };
         let mut t = DateTable::default();
-        let j = series_json(&s, &mut t).unwrap();
+        let j = series_json(&PageSeries::of_part(&s).unwrap(), &mut t);
         assert_eq!(j["mm_tenths"], json!([0, null]), "a gap stays a gap");
         assert_eq!(j["dates"], 0);
         assert_eq!(t.sets, vec![vec![0, 1]]);
         assert_eq!(j["trend"]["from"], json!([0, 1.0]));
         // 365 days = 0.99932 yr: 1 − 3 × 0.99932 = −1.998 mm.
         assert_eq!(j["trend"]["to"], json!([1, -2.0]));
+    }
+
+    /// Tenths of a mm: rounded half away from zero, gaps and non-finite values missing, and
+    /// (unreachable behind the readers' plausibility limit) saturated rather than wrapped.
+    #[test]
+    fn tenths_round_and_keep_gaps() {
+        assert_eq!(tenths_of(Some(-1.25)), -13);
+        assert_eq!(tenths_of(Some(1.24)), 12);
+        assert_eq!(tenths_of(Some(f64::NAN)), MISSING);
+        assert_eq!(tenths_of(None), MISSING);
+        assert_eq!(tenths_of(Some(1e12)), i32::MAX);
+        assert_eq!(tenths_of(Some(-1e12)), i32::MIN + 1);
     }
 }
