@@ -748,10 +748,22 @@ fn process_geometry(
         c >= 2 && 2 * c >= valid_points
     };
 
-    let mut points = Vec::with_capacity(g.points.len());
+    let mut points = Vec::with_capacity(if with_points { g.points.len() } else { 0 });
     let mut included: Vec<&[f64]> = Vec::new();
     let mut u_sum = [0.0; 3];
     for (idx, p) in g.points.iter().enumerate() {
+        let unshared = scans[idx].iter().any(|f| !is_shared(f));
+        let excluded = invalid_reason[idx].is_some() || (unshared && cfg.exclude_jump_points);
+        if let Some(v) = values[idx].as_deref().filter(|_| !excluded) {
+            included.push(v);
+            for (acc, c) in u_sum.iter_mut().zip(p.unit_enu) {
+                *acc += c;
+            }
+        }
+        // Without the points' details (the surroundings) only the aggregate is wanted.
+        if !with_points {
+            continue;
+        }
         let jumps: Vec<PointJump> = scans[idx]
             .iter()
             .map(|f| PointJump {
@@ -761,10 +773,9 @@ fn process_geometry(
                 shared_with_other_points: is_shared(f),
             })
             .collect();
-        let unshared = jumps.iter().any(|j| !j.shared_with_other_points);
         let exclusion_reason = if let Some(r) = &invalid_reason[idx] {
             Some(r.clone())
-        } else if unshared && cfg.exclude_jump_points {
+        } else if excluded {
             Some("suspected phase-unwrapping jump".to_string())
         } else {
             None
@@ -773,7 +784,7 @@ fn process_geometry(
             index: idx,
             valid_epochs_in_window: 0,
             jumps,
-            excluded_from_aggregate: exclusion_reason.is_some(),
+            excluded_from_aggregate: excluded,
             exclusion_reason,
             period_los: None,
             period_los_unavailable_because: None,
@@ -783,23 +794,15 @@ fn process_geometry(
         };
         if let Some(v) = &values[idx] {
             result.valid_epochs_in_window = v.iter().filter(|x| x.is_finite()).count();
-            if with_points {
-                let (period, velocity) = period_and_velocity(&t_all, v, t1, t2, cfg.period_method);
-                match period {
-                    Ok(pd) => result.period_los = Some(pd),
-                    Err(e) => result.period_los_unavailable_because = Some(e.to_string()),
-                }
-                if let Ok(f) = velocity {
-                    result.los_velocity_mm_per_yr = Some(f.velocity_mm_per_yr);
-                    result.se_los_velocity_mm_per_yr = Some(f.se_velocity_mm_per_yr);
-                    result.se_los_velocity_adjusted_mm_per_yr = f.se_velocity_adjusted_mm_per_yr;
-                }
+            let (period, velocity) = period_and_velocity(&t_all, v, t1, t2, cfg.period_method);
+            match period {
+                Ok(pd) => result.period_los = Some(pd),
+                Err(e) => result.period_los_unavailable_because = Some(e.to_string()),
             }
-            if !result.excluded_from_aggregate {
-                included.push(v);
-                for (acc, c) in u_sum.iter_mut().zip(p.unit_enu) {
-                    *acc += c;
-                }
+            if let Ok(f) = velocity {
+                result.los_velocity_mm_per_yr = Some(f.velocity_mm_per_yr);
+                result.se_los_velocity_mm_per_yr = Some(f.se_velocity_mm_per_yr);
+                result.se_los_velocity_adjusted_mm_per_yr = f.se_velocity_adjusted_mm_per_yr;
             }
         } else {
             result.period_los_unavailable_because = invalid_reason[idx].clone();
