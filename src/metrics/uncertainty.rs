@@ -32,6 +32,7 @@ use rand_distr::{Distribution, StandardNormal};
 use serde::Serialize;
 
 use super::MetricPoint;
+use crate::series::stats::{from_key, order_key};
 
 /// Summary of a sample of one metric.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -68,13 +69,18 @@ pub struct Spread {
 ///
 /// Degenerate input: fewer than two finite values → `None` (non-finite values are skipped).
 pub fn spread(values: &[f64]) -> Option<Spread> {
-    let mut v: Vec<f64> = values.iter().copied().filter(|x| x.is_finite()).collect();
-    if v.len() < 2 {
+    // Sorted as `total_cmp` order keys (integers sort faster than floats through a comparator),
+    // then back. Unstable sort: keys that compare equal are bit-identical floats, so the order
+    // (and the sum below) is the same as a stable sort's.
+    let mut keys: Vec<i64> = (values.iter().copied())
+        .filter(|x| x.is_finite())
+        .map(order_key)
+        .collect();
+    if keys.len() < 2 {
         return None;
     }
-    // Unstable sort: values that compare equal under `total_cmp` are bit-identical, so the
-    // order (and the sum below) is the same as a stable sort's.
-    v.sort_unstable_by(f64::total_cmp);
+    keys.sort_unstable();
+    let v: Vec<f64> = keys.into_iter().map(from_key).collect();
     let n = v.len() as f64;
     let mean = v.iter().sum::<f64>() / n;
     let var = v.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (n - 1.0);

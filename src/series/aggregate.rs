@@ -7,7 +7,7 @@
 
 use serde::Serialize;
 
-use super::stats::{MAD_TO_SIGMA, median, quantile_in_place, quantile_sorted};
+use super::stats::{MAD_TO_SIGMA, median, order_key, type7_selected, type7_sorted};
 
 /// Epochs with fewer points than this are marked sparse (insar-methods.md §4.5 route 2 uses
 /// "≥ 3 points per geometry" \[Rec\]; we apply the same floor per epoch).
@@ -62,25 +62,33 @@ fn aggregate_with(n_epochs: usize, series: &[&[f64]], band: bool) -> AggregateSe
         sparse: Vec::with_capacity(n_epochs),
     };
     let usable: Vec<&&[f64]> = series.iter().filter(|s| s.len() == n_epochs).collect();
-    let mut values = Vec::with_capacity(usable.len());
+    // The finite values of an epoch as integer keys in the order of `f64::total_cmp`
+    // ([`order_key`]): integers sort and select with plain comparisons, and the order statistics
+    // (hence every quantile) are the same numbers as those of the floats.
+    let mut keys: Vec<i64> = Vec::with_capacity(usable.len());
     for e in 0..n_epochs {
-        values.clear();
-        values.extend(usable.iter().map(|s| s[e]).filter(|v| v.is_finite()));
+        keys.clear();
+        keys.extend(
+            (usable.iter().map(|s| s[e]))
+                .filter(|v| v.is_finite())
+                .map(order_key),
+        );
         if band {
             // One sort serves the three quantiles (same numbers as `quantile` on each). Three
             // selections in the same buffer instead cost more for the usual 20–100 points
             // (docs/performance.md, session 8).
-            values.sort_unstable_by(f64::total_cmp);
-            out.median_mm.push(quantile_sorted(&values, 0.5));
-            out.band_lower_mm.push(quantile_sorted(&values, 0.25));
-            out.band_upper_mm.push(quantile_sorted(&values, 0.75));
+            keys.sort_unstable();
+            let q = |p| type7_sorted(&keys, p);
+            out.median_mm.push(q(0.5));
+            out.band_lower_mm.push(q(0.25));
+            out.band_upper_mm.push(q(0.75));
         } else {
-            out.median_mm.push(quantile_in_place(&mut values, 0.5));
+            out.median_mm.push(type7_selected(&mut keys, 0.5));
             out.band_lower_mm.push(None);
             out.band_upper_mm.push(None);
         }
-        out.n_points.push(values.len());
-        out.sparse.push(values.len() < MIN_POINTS_PER_EPOCH);
+        out.n_points.push(keys.len());
+        out.sparse.push(keys.len() < MIN_POINTS_PER_EPOCH);
     }
     out
 }

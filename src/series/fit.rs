@@ -11,7 +11,7 @@ use chrono::NaiveDate;
 use nalgebra::{DMatrix, DVector};
 use serde::Serialize;
 
-use super::stats::{MAD_TO_SIGMA, f_upper_tail, median, quantile_in_place};
+use super::stats::{MAD_TO_SIGMA, f_upper_tail, median, order_key, type7_selected};
 
 /// Days per decimal year (insar-methods.md §1.3).
 pub const DAYS_PER_YEAR: f64 = 365.25;
@@ -785,30 +785,34 @@ pub fn theil_sen(t_yr: &[f64], d_mm: &[f64]) -> Result<TheilSen, FitError> {
     } else {
         1
     };
+    // The slopes as `total_cmp` order keys (`stats::order_key`): the median is selected among
+    // integers, the same order statistic as among the floats.
     let mut slopes = Vec::with_capacity((n * (n - 1) / 2 / (stride * stride)).min(1 << 22));
+    let mut pairs = 0;
     for i in (0..n).step_by(stride) {
         for j in ((i + stride)..n).step_by(stride) {
             let dt = t_yr[j] - t_yr[i];
             if dt != 0.0 {
-                slopes.push((d_mm[j] - d_mm[i]) / dt);
+                pairs += 1;
+                let slope = (d_mm[j] - d_mm[i]) / dt;
+                if slope.is_finite() {
+                    slopes.push(order_key(slope));
+                }
             }
         }
     }
-    let pairs = slopes.len();
-    // The medians by selection in the vectors themselves (the same order statistics as
-    // `stats::median`, which copies and drops non-finite values first).
-    slopes.retain(|v| v.is_finite());
-    let b = quantile_in_place(&mut slopes, 0.5).ok_or(FitError::Degenerate {
+    let b = type7_selected(&mut slopes, 0.5).ok_or(FitError::Degenerate {
         model: "Theil-Sen",
         why: "all epochs at the same time",
     })?;
-    let mut offsets: Vec<f64> = t_yr
+    let mut offsets: Vec<i64> = t_yr
         .iter()
         .zip(d_mm.iter())
         .map(|(t, d)| d - b * t)
         .filter(|v| v.is_finite())
+        .map(order_key)
         .collect();
-    let a = quantile_in_place(&mut offsets, 0.5).ok_or(FitError::Degenerate {
+    let a = type7_selected(&mut offsets, 0.5).ok_or(FitError::Degenerate {
         model: "Theil-Sen",
         why: "no offsets",
     })?;
@@ -1119,6 +1123,38 @@ mod tests {
             h.velocity_mm_per_yr
         );
         assert!(h.outlier_indices.contains(&7) && h.outlier_indices.contains(&19));
+    }
+
+    /// Theil–Sen by integer-key selection equals, bit for bit, the plain computation: every
+    /// pairwise slope, `stats::median` (a copy, sorted), then the median offset. Series F, an even
+    /// pair count with ties (repeated values) and a series with a repeated time (skipped pairs).
+    #[test]
+    fn theil_sen_equals_the_plain_medians() {
+        let plain = |t: &[f64], d: &[f64]| {
+            let mut slopes = Vec::new();
+            for i in 0..t.len() {
+                for j in i + 1..t.len() {
+                    if t[j] != t[i] {
+                        slopes.push((d[j] - d[i]) / (t[j] - t[i]));
+                    }
+                }
+            }
+            let b = median(&slopes).unwrap();
+            let off: Vec<f64> = t.iter().zip(d).map(|(t, d)| d - b * t).collect();
+            (b, median(&off).unwrap(), slopes.len())
+        };
+        let (tf, df) = series_f();
+        let t_ties: Vec<f64> = (0..9).map(|i| i as f64 * 0.1).collect();
+        let d_ties = vec![1.0, 1.0, -0.0, 0.0, 2.0, 2.0, 2.0, -1.5, 1.0];
+        let t_rep = vec![0.0, 0.1, 0.1, 0.3, 0.4];
+        let d_rep = vec![0.5, -0.25, 1.0, 3.0, -2.0];
+        for (t, d) in [(tf, df), (t_ties, d_ties), (t_rep, d_rep)] {
+            let ts = theil_sen(&t, &d).unwrap();
+            let (b, a, pairs) = plain(&t, &d);
+            assert_eq!(ts.velocity_mm_per_yr.to_bits(), b.to_bits());
+            assert_eq!(ts.intercept_mm.to_bits(), a.to_bits());
+            assert_eq!(ts.pairs, pairs);
+        }
     }
 
     /// Synthetic series with known velocity, seasonal amplitude and acceleration, Gaussian noise

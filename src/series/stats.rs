@@ -67,6 +67,40 @@ fn type7_position(n: usize, q: f64) -> Option<(usize, usize, f64)> {
     Some((lo, pos.ceil() as usize, pos - lo as f64))
 }
 
+/// The integer whose order is `f64::total_cmp`'s order of the float (the same transform as
+/// `total_cmp`; its own inverse).
+#[inline]
+pub(crate) fn order_key(v: f64) -> i64 {
+    let b = v.to_bits() as i64;
+    b ^ (((b >> 63) as u64) >> 1) as i64
+}
+
+/// The float of an [`order_key`].
+#[inline]
+pub(crate) fn from_key(k: i64) -> f64 {
+    f64::from_bits((k ^ (((k >> 63) as u64) >> 1) as i64) as u64)
+}
+
+/// The type-7 quantile of sorted keys (as `stats::quantile_sorted` on the floats).
+pub(crate) fn type7_sorted(keys: &[i64], q: f64) -> Option<f64> {
+    let (lo, hi, frac) = type7_position(keys.len(), q)?;
+    let (a, b) = (from_key(keys[lo]), from_key(keys[hi]));
+    Some(a + (b - a) * frac)
+}
+
+/// The type-7 quantile of keys by selection (as `stats::quantile_in_place` on the floats).
+pub(crate) fn type7_selected(keys: &mut [i64], q: f64) -> Option<f64> {
+    let (lo, hi, frac) = type7_position(keys.len(), q)?;
+    let (_, lo_key, above) = keys.select_nth_unstable(lo);
+    let a = from_key(*lo_key);
+    let b = if hi > lo {
+        above.iter().copied().min().map_or(a, from_key)
+    } else {
+        a
+    };
+    Some(a + (b - a) * frac)
+}
+
 /// Median absolute deviation `median(|x − median(x)|)` of the finite values (unscaled).
 pub fn mad(x: &[f64]) -> Option<f64> {
     let m = median(x)?;
@@ -230,6 +264,29 @@ mod tests {
         }
         assert_eq!(quantile_in_place(&mut [], 0.5), None);
         assert_eq!(quantile_in_place(&mut [1.0], 1.5), None);
+    }
+
+    /// The integer keys order finite floats as `total_cmp` does (−0 before +0, subnormals,
+    /// extremes) and give the floats back bit for bit.
+    #[test]
+    fn order_keys_follow_total_cmp() {
+        let v = [
+            -f64::MAX,
+            -1.5,
+            -f64::MIN_POSITIVE / 4.0,
+            -0.0,
+            0.0,
+            f64::MIN_POSITIVE / 4.0,
+            1e-300,
+            2.5,
+            f64::MAX,
+        ];
+        for a in v {
+            assert_eq!(from_key(order_key(a)).to_bits(), a.to_bits());
+            for b in v {
+                assert_eq!(order_key(a).cmp(&order_key(b)), a.total_cmp(&b), "{a} {b}");
+            }
+        }
     }
 
     #[test]
