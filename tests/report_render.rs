@@ -80,6 +80,9 @@ fn sample_asset_renders_deterministically_without_warnings() {
             "not computed: the short axis",
             "screening assessment based on remote sensing",
             "Burland, J.B. (1995)",
+            // Section numbers come from the heading show rule in plinth-style.typ.
+            "1. Verdict summary",
+            "6.1. Criteria set",
         ] {
             assert!(t.contains(needle), "PDF text lacks {needle:?}");
         }
