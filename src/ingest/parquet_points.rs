@@ -634,9 +634,10 @@ impl Wanted {
 
 /// Rows of a block the numeric entry gets at a time: a row group is decoded in batches of this
 /// many rows, every needed column's reader open at once (each holds one decompressed page), so
-/// memory holds two blocks of 8 192 rows (≈ 10 MB at 150 epochs) instead of two row groups, and
-/// a block is still in the L3 cache when its rows are checked.
-const BLOCK_ROWS: usize = 8192;
+/// memory holds two blocks of 16 384 rows (≈ 20 MB at 150 epochs) instead of two row groups.
+/// Four pieces per block keep both cores busy while the next block is decoded (8 192 rows: 30 MB
+/// less peak memory on the medium city, ≈ 0.25 s more wall time).
+const BLOCK_ROWS: usize = 16384;
 
 /// The row groups of a file read as blocks of [`BLOCK_ROWS`] rows for the numeric entry,
 /// skipping the groups beyond reach.
