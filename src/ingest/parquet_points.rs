@@ -1,7 +1,8 @@
 //! Points from Parquet / GeoParquet (`.parquet`): one column per acquisition date.
 //!
 //! Owns reading the file one row group at a time (every column of the group decoded into typed
-//! vectors, so memory holds one row group, never the file), the point position (the `columns.x`
+//! vectors, so memory holds one row group, never the file; the numeric entry decodes a group in
+//! blocks of `BLOCK_ROWS` rows), the point position (the `columns.x`
 //! and `columns.y` columns, or a GeoParquet WKB point geometry column, whose CRS is then the
 //! file's declared one), refusing a date column stored as text, and handing the rows to the CSV
 //! reader through the stream of `ingest::gis_points`, so the column map, `date_format`, units,
