@@ -1285,8 +1285,11 @@ fn reads_back_with(v: f64, k: u32) -> bool {
     m as f64 / p == v
 }
 
-/// The largest count of digits after the point in the shortest texts of `values` (non-finite ones skipped), when every one is at most
-/// `limit`. Each value is first tried at the largest count so far (one test for most values).
+/// The largest count of digits after the point in the shortest texts of `values` (non-finite ones
+/// skipped), when every one is at most `limit`. Each value is first tried at the largest count so
+/// far (one test for most values). The plain form of one row; the reader finds it for a tile of
+/// rows column by column ([`raise_text_decimals`]), and the tests compare the two.
+#[cfg(test)]
 fn max_text_decimals(values: impl Iterator<Item = f64>, limit: u32) -> Option<u32> {
     let mut d = 0u32;
     for v in values.filter(|v| v.is_finite()) {
@@ -1295,6 +1298,145 @@ fn max_text_decimals(values: impl Iterator<Item = f64>, limit: u32) -> Option<u3
         }
     }
     Some(d)
+}
+
+/// Rows of a piece summarised together (see `RowParser::num_piece`): 128 rows of 150 epochs
+/// are 150 KB of values, which stay in the L2 cache between the two passes.
+const NUM_TILE_ROWS: usize = 128;
+
+/// [`RowSums::decimals`] of a row with a value beyond the decimal limit.
+const NO_DECIMALS: u8 = u8::MAX;
+
+/// The epoch values of a tile of rows, transposed to rows and summarised per row, column by
+/// column (see `RowParser::num_piece`).
+#[derive(Default)]
+struct TileSums {
+    /// The values row by row, mm (NaN = missing).
+    values_mm: Vec<f64>,
+    /// Epochs per row.
+    n_epochs: usize,
+    /// Per row.
+    rows: Vec<RowAcc>,
+}
+
+/// What [`TileSums`] gathers of one row.
+#[derive(Debug, Clone, Copy, Default)]
+struct RowAcc {
+    /// Largest |value|, mm (implausible values included).
+    max_abs_mm: f64,
+    /// Values present (finite).
+    n_values: u32,
+    /// Whether some value lies beyond [`MAX_ABS_DISPLACEMENT_MM`] after the unit conversion.
+    implausible: bool,
+    /// [`max_text_decimals`] of the values so far, [`NO_DECIMALS`] for None.
+    decimals: u8,
+    /// 10^`decimals`; 0 for [`NO_DECIMALS`].
+    scale: f64,
+}
+
+/// One row of a [`TileSums`].
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct RowSums<'t> {
+    /// The values, mm (NaN = missing).
+    values_mm: &'t [f64],
+    max_abs_mm: f64,
+    n_values: u32,
+    decimals: Option<u32>,
+    implausible: bool,
+}
+
+impl TileSums {
+    /// Summarise rows `rows` of the columns `epochs` (values as written; `factor` converts them
+    /// to mm; `limit`: see [`max_text_decimals`]).
+    fn of(&mut self, epochs: &[&[f64]], rows: std::ops::Range<usize>, factor: f64, limit: u32) {
+        let n_epochs = epochs.len();
+        self.n_epochs = n_epochs;
+        self.values_mm.clear();
+        self.values_mm.resize(rows.len() * n_epochs, f64::NAN);
+        self.rows.clear();
+        let start = RowAcc {
+            scale: 1.0,
+            ..RowAcc::default()
+        };
+        self.rows.resize(rows.len(), start);
+        for (j, c) in epochs.iter().enumerate() {
+            let c = &c[rows.clone()];
+            for ((&v, acc), out) in c
+                .iter()
+                .zip(&mut self.rows)
+                .zip(self.values_mm.chunks_exact_mut(n_epochs.max(1)))
+            {
+                let present = v.is_finite();
+                let mm = if present { v * factor } else { f64::NAN };
+                out[j] = mm;
+                let a = mm.abs();
+                // NaN compares false: a missing value changes neither.
+                if a > acc.max_abs_mm {
+                    acc.max_abs_mm = a;
+                }
+                acc.implausible |= a > MAX_ABS_DISPLACEMENT_MM;
+                acc.n_values += u32::from(present);
+                if present && !reads_back_fast(v, acc.scale) {
+                    acc.raise_decimals(v, limit);
+                }
+            }
+        }
+    }
+
+    /// Row `i` of the tile.
+    fn row(&self, i: usize) -> RowSums<'_> {
+        let acc = &self.rows[i];
+        RowSums {
+            values_mm: &self.values_mm[i * self.n_epochs..(i + 1) * self.n_epochs],
+            max_abs_mm: acc.max_abs_mm,
+            n_values: acc.n_values,
+            decimals: Some(acc.decimals)
+                .filter(|&d| d != NO_DECIMALS)
+                .map(u32::from),
+            implausible: acc.implausible,
+        }
+    }
+}
+
+impl RowAcc {
+    /// One step of [`max_text_decimals`]: raise the row's decimals to cover the finite value `v`
+    /// ([`NO_DECIMALS`] beyond `limit`).
+    #[cold]
+    fn raise_decimals(&mut self, v: f64, limit: u32) {
+        let d = u32::from(self.decimals);
+        if self.decimals == NO_DECIMALS || reads_back_with(v, d) {
+            return;
+        }
+        match (d + 1..=limit).find(|&k| reads_back_with(v, k)) {
+            Some(k) => {
+                self.decimals = k as u8;
+                self.scale = super::decimal::pow10(k);
+            }
+            None => {
+                self.decimals = NO_DECIMALS;
+                self.scale = 0.0;
+            }
+        }
+    }
+}
+
+/// 1.5 · 2⁵²: adding and subtracting it rounds an `f64` below 2⁵¹ in magnitude to an integer.
+const ROUND_MAGIC: f64 = 6_755_399_441_055_744.0;
+
+/// A cheaper [`reads_back_with`]`(v, k)` for the scale `p` = 10ᵏ: true only when that is true;
+/// false when it is false or the value is beyond this test's range (|v·p| ≥ 2⁵¹, |v| ≥ 10¹¹;
+/// p = 0 always), where the caller asks `reads_back_with` itself.
+///
+/// No integer conversion: m = (t + 1.5·2⁵²) − 1.5·2⁵² is an integer nearest t = v·p (ties to
+/// even) for |t| < 2⁵¹. The rounding of ties does not matter: if some decimal m*·10⁻ᵏ reads back
+/// as v (|v − m*/p| ≤ ulp(v)/2), then |v·p − m*| ≤ p·ulp(v)/2 ≤ ulp(v·p), so |t − m*| ≤
+/// 1.5·ulp(t) ≤ 0.375 below 2⁵¹: m* is the integer nearest t, whichever way ties go, and then
+/// both tests compute m*/p; if none does, both fail.
+#[inline(always)]
+fn reads_back_fast(v: f64, p: f64) -> bool {
+    let t = v * p;
+    let m = (t + ROUND_MAGIC) - ROUND_MAGIC;
+    v.abs() < 1e11 && t.abs() < 2_251_799_813_685_248.0 && m / p == v
 }
 
 /// Read points from blocks of decoded columns (the Parquet reader's numeric entry): `next` gives
@@ -1346,7 +1488,11 @@ pub(crate) fn read_numeric(
 }
 
 impl RowParser<'_> {
-    /// Rows `rows` of a decoded block.
+    /// Rows `rows` of a decoded block, a tile of [`NUM_TILE_ROWS`] at a time: the tile's epoch
+    /// values are first summarised column by column ([`TileSums::of`], reading each column in
+    /// order, which the memory prefetch follows), then its rows are checked and stored while
+    /// those values are still in cache. Reading the columns row by row instead touches one cache
+    /// line per column and row (150 streams at once), most of them a miss.
     fn num_piece(&self, b: &NumBlock, rows: std::ops::Range<usize>) -> Piece {
         let mut acc = Acc::default();
         // The epoch columns (all numbers, see `ColumnMap::numeric`).
@@ -1369,12 +1515,17 @@ impl RowParser<'_> {
                 )),
             };
         }
-        for r in rows {
-            if let Err(e) = self.num_row(b, &epochs, r, &mut acc) {
-                return Piece {
-                    acc,
-                    end: PieceEnd::Error(e),
-                };
+        let mut sums = TileSums::default();
+        for lo in rows.clone().step_by(NUM_TILE_ROWS) {
+            let tile = lo..(lo + NUM_TILE_ROWS).min(rows.end);
+            sums.of(&epochs, tile.clone(), self.factor, 4 + self.decimal_shift);
+            for r in tile {
+                if let Err(e) = self.num_row(b, &epochs, r, sums.row(r - lo), &mut acc) {
+                    return Piece {
+                        acc,
+                        end: PieceEnd::Error(e),
+                    };
+                }
             }
         }
         Piece {
@@ -1383,12 +1534,14 @@ impl RowParser<'_> {
         }
     }
 
-    /// Row `r` of a decoded block: the checks of [`Self::row`] in its order, on numbers.
+    /// Row `r` of a decoded block: the checks of [`Self::row`] in its order, on numbers; `sums`
+    /// summarises its epoch values.
     fn num_row(
         &self,
         b: &NumBlock,
         epochs: &[&[f64]],
         r: usize,
+        sums: RowSums,
         acc: &mut Acc,
     ) -> Result<(), InputError> {
         let line = b.first_line + r as u64;
@@ -1425,38 +1578,28 @@ impl RowParser<'_> {
             _ => None,
         };
         let h = self.row_head(line, &|col, _| Ok(cell(col)), acc)?;
-        let mut values = std::mem::take(&mut acc.scratch);
-        values.clear();
-        let mut row_max_abs_mm = 0.0f64;
-        for (&col, c) in self.epoch_cols.iter().zip(epochs) {
-            let mm = match Some(c[r]).filter(|v| v.is_finite()) {
-                Some(v) => {
-                    let mm = v * self.factor;
-                    if mm.abs() > MAX_ABS_DISPLACEMENT_MM {
-                        return Err(self.implausible(line, col, v, mm));
-                    }
-                    row_max_abs_mm = row_max_abs_mm.max(mm.abs());
-                    acc.n_values += 1;
-                    mm
+        if sums.implausible {
+            // The first implausible value of the row, in column order.
+            for (&col, c) in self.epoch_cols.iter().zip(epochs) {
+                let (v, mm) = (c[r], c[r] * self.factor);
+                if mm.abs() > MAX_ABS_DISPLACEMENT_MM {
+                    return Err(self.implausible(line, col, v, mm));
                 }
-                None => f64::NAN,
-            };
-            values.push(mm);
+            }
         }
-        acc.max_abs_mm = acc.max_abs_mm.max(row_max_abs_mm);
+        acc.n_values += u64::from(sums.n_values);
+        acc.max_abs_mm = acc.max_abs_mm.max(sums.max_abs_mm);
         let Some((xy, association)) = self.place(line, h.x, h.y, acc)? else {
-            acc.scratch = values;
             return Ok(());
         };
         // Decimals of the values' shortest texts after the unit conversion; beyond the store's
         // exact range the exact figure does not matter (the row is stored scaled either way).
-        let shift = self.decimal_shift;
-        let decimals = max_text_decimals(epochs.iter().map(|c| c[r]), 4 + shift)
-            .map(|d| d.saturating_sub(shift));
+        let decimals = sums.decimals.map(|d| d.saturating_sub(self.decimal_shift));
         let id = String::from_utf8_lossy(id_raw);
         let meta = self.meta(&id, line, xy, association, &h);
-        let pushed = acc.store.push(meta, &values, decimals, row_max_abs_mm);
-        acc.scratch = values;
+        let pushed = acc
+            .store
+            .push(meta, sums.values_mm, decimals, sums.max_abs_mm);
         pushed.map_err(|e| InputError::new(self.file, loc(), e.0, "split the points file"))
     }
 
@@ -2376,6 +2519,143 @@ mod tests {
         assert_eq!(d(&[]), Some(0));
         assert_eq!(d(&[1.5, 0.1 + 0.2]), None);
         assert_eq!(d(&[0.00001]), None);
+    }
+
+    /// Values at the edges of the decimal count: signed zeros, 15 significant digits, sums with no
+    /// short decimal, 32-bit floats, magnitudes around 10¹¹ and the 2⁵¹ bound of the fast test,
+    /// halves, non-finite values.
+    fn edge_values() -> Vec<f64> {
+        let mut v = vec![
+            0.0,
+            -0.0,
+            1.0,
+            -1.5,
+            0.1,
+            0.1 + 0.2,
+            1.0 - 0.9,
+            0.3,
+            -2.675,
+            123_456_789_012_345.0,
+            0.123_456_789_012_345,
+            12_345.678_901_234_5,
+            99_999_999_999.999,
+            1e10,
+            1e11,
+            -1e11 + 0.5,
+            1e15,
+            2_251_799_813_685_248.0,
+            225_179_981_368_524.8,
+            22_517_998_136_852.48,
+            4_503_599_627_370_495.5,
+            0.5,
+            2.5,
+            -0.000_05,
+            0.000_049_999,
+            5e-324,
+            f64::MIN_POSITIVE,
+            f64::MAX,
+            f64::from(0.1f32),
+            f64::from(-3.3f32),
+            f64::from(1234.567f32),
+            f64::NAN,
+            f64::INFINITY,
+            f64::NEG_INFINITY,
+        ];
+        let mut seed = 0x2545_f491_4f6c_dd1du64;
+        let mut next = || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            seed
+        };
+        for i in 0..4000 {
+            v.push(match i % 4 {
+                0 => (next() % 2_000_001) as f64 / 10f64.powi((next() % 9) as i32) - 1000.0,
+                1 => (next() % 1_000_000_000_000_000) as f64 / 10f64.powi((next() % 16) as i32),
+                2 => f64::from(f32::from_bits((next() as u32 & 0x3fff_ffff) | 0x3000_0000)),
+                _ => f64::from_bits(next()),
+            });
+        }
+        v
+    }
+
+    #[test]
+    fn fast_read_back_test_agrees_with_the_plain_one() {
+        for v in edge_values() {
+            for k in 0..=15u32 {
+                let p = super::super::decimal::pow10(k);
+                let plain = reads_back_with(v, k);
+                let fast = reads_back_fast(v, p);
+                // Never true where the plain test is false; equal within its range.
+                assert!(!fast || plain, "{v:e} at {k} decimals");
+                if v.is_finite() && v.abs() < 1e11 && (v * p).abs() < 2_251_799_813_685_248.0 {
+                    assert_eq!(fast, plain, "{v:e} at {k} decimals");
+                }
+            }
+            assert!(
+                !reads_back_fast(v, 0.0),
+                "{v:e}: scale 0 always asks the plain test"
+            );
+        }
+    }
+
+    /// The tile's per-row figures, found column by column, equal the plain row-by-row ones
+    /// (`max_text_decimals` and the loop the CSV rows get) over rows mixing edge values.
+    #[test]
+    fn tile_sums_equal_the_row_by_row_figures() {
+        let values = edge_values();
+        let (n_rows, n_cols) = (300usize, 7usize);
+        // Column c of row r: a value picked so that most rows mix several kinds.
+        let columns: Vec<Vec<f64>> = (0..n_cols)
+            .map(|c| {
+                (0..n_rows)
+                    .map(|r| values[(r * 7 + c * 131 + r * c * 17) % values.len()])
+                    .collect()
+            })
+            .collect();
+        // A few rows of short decimals only, one all missing; then each of the first 40 values
+        // among short decimals (column 3), in rows 130–169 (the second tile).
+        let mut columns = columns;
+        for (c, col) in columns.iter_mut().enumerate() {
+            col[5] = [1.25, -0.5, 3.0, 0.0, -0.0, 7.125, 2.5][c];
+            col[6] = f64::NAN;
+            col[7] = [0.001, 0.01, 0.1, 1.0, 10.0, 100.0, 1000.0][c] * 3.0;
+            for (i, &v) in values[..40].iter().enumerate() {
+                col[130 + i] = if c == 3 { v } else { 0.25 * c as f64 };
+            }
+        }
+        let epochs: Vec<&[f64]> = columns.iter().map(Vec::as_slice).collect();
+        for (factor, limit) in [(1.0, 4), (-1.0, 4), (1000.0, 7), (-1000.0, 7)] {
+            let mut sums = TileSums::default();
+            for lo in (0..n_rows).step_by(NUM_TILE_ROWS) {
+                let tile = lo..(lo + NUM_TILE_ROWS).min(n_rows);
+                sums.of(&epochs, tile.clone(), factor, limit);
+                for r in tile {
+                    let row: Vec<f64> = columns.iter().map(|c| c[r]).collect();
+                    let mm: Vec<f64> = row
+                        .iter()
+                        .map(|&v| if v.is_finite() { v * factor } else { f64::NAN })
+                        .collect();
+                    let present: Vec<f64> = mm.iter().copied().filter(|v| !v.is_nan()).collect();
+                    let got = sums.row(r - lo);
+                    let want_max = present.iter().fold(0.0f64, |m, v| m.max(v.abs()));
+                    assert_eq!(
+                        got.decimals,
+                        max_text_decimals(row.iter().copied(), limit),
+                        "row {r}: {row:?}, limit {limit}"
+                    );
+                    assert_eq!(got.max_abs_mm.to_bits(), want_max.to_bits(), "row {r}");
+                    assert_eq!(got.n_values as usize, present.len(), "row {r}");
+                    assert_eq!(
+                        got.implausible,
+                        want_max > MAX_ABS_DISPLACEMENT_MM,
+                        "row {r}"
+                    );
+                    let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                    assert_eq!(bits(got.values_mm), bits(&mm), "row {r}");
+                }
+            }
+        }
     }
 
     #[test]
