@@ -7,12 +7,6 @@ use plinth::cli::{Cli, Command};
 use plinth::error::InputError;
 use plinth::output::guard::Refused;
 
-/// mimalloc instead of the system allocator: typst's layout and PDF export allocate and free
-/// many small objects, and glibc's malloc/free were ≈ 8 % of a report's instructions
-/// (DEVELOPERS.md "Dependencies", docs/performance.md "Report rendering", session 3).
-#[global_allocator]
-static GLOBAL: mimalloc::MiMalloc = mimalloc::MiMalloc;
-
 fn main() -> ExitCode {
     let cli = Cli::parse();
     if let Some(n) = cli.jobs {
