@@ -2487,15 +2487,19 @@ mod tests {
         t.split_once('.').map_or(0, |(_, f)| f.len() as u32)
     }
 
-    #[test]
-    fn text_decimals_counts_the_digits_of_the_shortest_text() {
-        let mut seed = 0x9e37_79b9_7f4a_7c15u64;
-        let mut next = || {
+    /// A xorshift64 stream (Marsaglia 2003) for test values: seeded, no dependency.
+    fn xorshift(mut seed: u64) -> impl FnMut() -> u64 {
+        move || {
             seed ^= seed << 13;
             seed ^= seed >> 7;
             seed ^= seed << 17;
             seed
-        };
+        }
+    }
+
+    #[test]
+    fn text_decimals_counts_the_digits_of_the_shortest_text() {
+        let mut next = xorshift(0x9e37_79b9_7f4a_7c15);
         for i in 0..200_000 {
             let v = match i % 4 {
                 // Short decimals of every sign and size the files hold.
@@ -2561,13 +2565,7 @@ mod tests {
             f64::INFINITY,
             f64::NEG_INFINITY,
         ];
-        let mut seed = 0x2545_f491_4f6c_dd1du64;
-        let mut next = || {
-            seed ^= seed << 13;
-            seed ^= seed >> 7;
-            seed ^= seed << 17;
-            seed
-        };
+        let mut next = xorshift(0x2545_f491_4f6c_dd1d);
         for i in 0..4000 {
             v.push(match i % 4 {
                 0 => (next() % 2_000_001) as f64 / 10f64.powi((next() % 9) as i32) - 1000.0,
