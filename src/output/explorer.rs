@@ -320,9 +320,12 @@ impl PagePart {
     pub fn of_detail(d: &crate::assess::StructureDetail) -> Result<Self> {
         let works = match &d.works {
             // Rare (a portfolio with `[works]`): through the detail file's own JSON form.
-            Some(w) => Some(serde_json::from_value(
-                json!({"nearby": w.nearby, "comparison": w.comparison}),
-            )?),
+            Some(w) => Some(
+                serde_json::from_value(json!({"nearby": w.nearby, "comparison": w.comparison}))
+                    .with_context(|| {
+                        format!("the works near structure {} for explorer.html", d.id)
+                    })?,
+            ),
             None => None,
         };
         Ok(Self {
