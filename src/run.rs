@@ -1329,8 +1329,8 @@ pub fn assess_into(portfolio_path: &Path, opts: &RunOptions, out: &Path) -> Resu
 /// Write the portfolio outputs and the reports into the staging folder `d` (the detail files
 /// are already there). Two branches run at the same time: the points, results and GeoPackage
 /// files (the GeoPackage is one SQLite writer, the longest of them), and the manifest (once the
-/// inputs' digests are ready) followed by explorer.html, which reads the detail files back. The
-/// reports come last, on every worker.
+/// inputs' digests are ready) followed by explorer.html, built from the page parts the
+/// assessment kept. The reports come last, on every worker; they read the detail files back.
 fn write_outputs(
     a: &Analysis,
     opts: &RunOptions,
@@ -1383,8 +1383,8 @@ fn write_tables(a: &Analysis, opts: &RunOptions, d: &Path) -> Result<()> {
     gpkg
 }
 
-/// explorer.html (output::explorer) of this run; reads the series back from the detail files
-/// in `d`.
+/// explorer.html (output::explorer) of this run, from the page parts kept while assessing
+/// (`page_parts`; a structure missing there is read from its detail file in `d`).
 fn write_explorer(
     a: &Analysis,
     opts: &RunOptions,
