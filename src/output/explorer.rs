@@ -5,13 +5,14 @@
 //! link), the cautions, the assessment window and the provenance.
 //!
 //! Owns the page's data document (built here from the results, the footprints, the works and the
-//! detail files) and its assembly from the static page parts in `templates/explorer/` (embedded
+//! detail files' series and works — kept by the run while it assessed, or read back by `merge`)
+//! and its assembly from the static page parts in `templates/explorer/` (embedded
 //! at build time, no network, no library). Data reaches the page only as JSON inside a
 //! `<script type="application/json">` element, with `<`, `>` and `&` escaped as `\u003c`,
 //! `\u003e` and `\u0026`, so no name from a user file can close the element; the script renders
 //! every text with `textContent`. It computes nothing new: every number is the results' or the
 //! detail file's, except the map's coordinates (shifted to a local origin, rounded to 1 cm) and
-//! the series (rounded to 0.01 mm).
+//! the series (values to 0.1 mm, the trend's ends to 0.01 mm).
 
 use std::path::Path;
 
@@ -531,10 +532,11 @@ fn structure_json(
     Ok(v)
 }
 
-/// The page's data document as script-safe JSON text ([`script_safe`]). The detail files are
-/// read and parsed in parallel (most of the work) a block at a time, and each structure's row is
-/// serialised as soon as it is built, so only one block's details and entries are held at once
-/// (a document of `serde_json::Value`s would hold about 30 KB per structure).
+/// The page's data document as script-safe JSON text ([`script_safe`]). A structure's series and
+/// works come from `input.held` or, when the run did not keep them (`merge`), from its detail
+/// file, read and parsed in parallel a block at a time; each structure's row is serialised as
+/// soon as it is built, so only one block's entries are held at once (a document of
+/// `serde_json::Value`s would hold about 30 KB per structure).
 pub fn data_text(input: &ExplorerInput, dir: &Path) -> Result<String> {
     const BLOCK: usize = 256;
     let o = origin(&input.footprints);
