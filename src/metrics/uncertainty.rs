@@ -32,7 +32,7 @@ use rand_distr::{Distribution, StandardNormal};
 use serde::Serialize;
 
 use super::MetricPoint;
-use crate::series::stats::{from_key, order_key};
+use crate::series::stats::{from_key, order_key, type7_sorted};
 
 /// Summary of a sample of one metric.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
@@ -80,24 +80,19 @@ pub fn spread(values: &[f64]) -> Option<Spread> {
         return None;
     }
     keys.sort_unstable();
-    let v: Vec<f64> = keys.into_iter().map(from_key).collect();
+    let q = |p| type7_sorted(&keys, p);
+    let (median, p05, p95) = (q(0.5)?, q(0.05)?, q(0.95)?);
+    let v: Vec<f64> = keys.iter().copied().map(from_key).collect();
     let n = v.len() as f64;
     let mean = v.iter().sum::<f64>() / n;
     let var = v.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (n - 1.0);
     Some(Spread {
-        median: quantile_sorted(&v, 0.5),
+        median,
         se: var.sqrt(),
-        p05: quantile_sorted(&v, 0.05),
-        p95: quantile_sorted(&v, 0.95),
+        p05,
+        p95,
         draws_used: v.len(),
     })
-}
-
-fn quantile_sorted(v: &[f64], p: f64) -> f64 {
-    let h = (v.len() - 1) as f64 * p;
-    let lo = h.floor() as usize;
-    let hi = (lo + 1).min(v.len() - 1);
-    v[lo] + (h - lo as f64) * (v[hi] - v[lo])
 }
 
 /// Run `draws` Monte Carlo draws: perturb each point's settlement by N(0, σ_i²) and call

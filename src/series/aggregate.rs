@@ -209,7 +209,7 @@ mod tests {
         assert_eq!(full.sparse, medians.sparse);
         assert!(medians.band_lower_mm.iter().all(Option::is_none));
         assert!(full.band_lower_mm.iter().all(Option::is_some));
-        // The three selections give, bit for bit, the quantiles of the sorted finite values.
+        // The aggregate's quantiles are, bit for bit, those of the sorted finite values.
         for e in 0..12 {
             let mut v: Vec<f64> = rows
                 .iter()

@@ -25,33 +25,18 @@ pub fn quantile(x: &[f64], q: f64) -> Option<f64> {
     if !(0.0..=1.0).contains(&q) {
         return None;
     }
-    let mut v: Vec<f64> = x.iter().copied().filter(|v| v.is_finite()).collect();
-    quantile_in_place(&mut v, q)
-}
-
-/// [`quantile`] of values that are all finite, reordering them instead of copying: the order
-/// statistics at ⌊q·(n−1)⌋ and the next one are found by selection (O(n)), not by a full sort.
-/// The same number as [`quantile`] and as [`quantile_sorted`] after a sort (the order statistics
-/// do not depend on how they are found). `None` for no values or `q` outside [0, 1].
-pub fn quantile_in_place(v: &mut [f64], q: f64) -> Option<f64> {
-    let (lo, hi, frac) = type7_position(v.len(), q)?;
-    let (_, lo_value, above) = v.select_nth_unstable_by(lo, f64::total_cmp);
-    let lo_value = *lo_value;
-    let hi_value = if hi > lo {
-        above
-            .iter()
-            .copied()
-            .min_by(f64::total_cmp)
-            .unwrap_or(lo_value)
-    } else {
-        lo_value
-    };
-    Some(lo_value + (hi_value - lo_value) * frac)
+    // Selected among the `total_cmp` order keys of the finite values ([`type7_selected`]).
+    let mut keys: Vec<i64> = (x.iter().copied())
+        .filter(|v| v.is_finite())
+        .map(order_key)
+        .collect();
+    type7_selected(&mut keys, q)
 }
 
 /// [`quantile`] of values already sorted ascending (all finite): type 7, position q·(n−1).
-/// `None` for no values or `q` outside [0, 1].
-pub fn quantile_sorted(v: &[f64], q: f64) -> Option<f64> {
+/// `None` for no values or `q` outside [0, 1]. The tests' plain reference.
+#[cfg(test)]
+pub(crate) fn quantile_sorted(v: &[f64], q: f64) -> Option<f64> {
     let (lo, hi, frac) = type7_position(v.len(), q)?;
     Some(v[lo] + (v[hi] - v[lo]) * frac)
 }
@@ -81,14 +66,16 @@ pub(crate) fn from_key(k: i64) -> f64 {
     f64::from_bits((k ^ (((k >> 63) as u64) >> 1) as i64) as u64)
 }
 
-/// The type-7 quantile of sorted keys (as `stats::quantile_sorted` on the floats).
+/// The type-7 quantile of sorted keys (as [`quantile`] of the floats).
 pub(crate) fn type7_sorted(keys: &[i64], q: f64) -> Option<f64> {
     let (lo, hi, frac) = type7_position(keys.len(), q)?;
     let (a, b) = (from_key(keys[lo]), from_key(keys[hi]));
     Some(a + (b - a) * frac)
 }
 
-/// The type-7 quantile of keys by selection (as `stats::quantile_in_place` on the floats).
+/// The type-7 quantile of keys by selection, reordering them: the order statistics at
+/// ⌊q·(n−1)⌋ and the next one are found in O(n), not by a full sort, and are the same numbers
+/// as after a sort. `None` for no keys or `q` outside [0, 1].
 pub(crate) fn type7_selected(keys: &mut [i64], q: f64) -> Option<f64> {
     let (lo, hi, frac) = type7_position(keys.len(), q)?;
     let (_, lo_key, above) = keys.select_nth_unstable(lo);
@@ -255,15 +242,19 @@ mod tests {
                     }
                 })
                 .collect();
+            let keys: Vec<i64> = x.iter().copied().map(order_key).collect();
+            let mut sorted = keys.clone();
+            sorted.sort_unstable();
             for q in [0.0, 0.05, 0.25, 0.5, 0.75, 0.95, 1.0, 1.0 / 3.0] {
-                let mut v = x.clone();
-                let fast = quantile_in_place(&mut v, q).unwrap();
+                let mut k = keys.clone();
+                let fast = type7_selected(&mut k, q).unwrap();
                 assert_eq!(fast.to_bits(), plain(&x, q).to_bits(), "n {n} q {q}");
+                assert_eq!(type7_sorted(&sorted, q).unwrap().to_bits(), fast.to_bits());
                 assert_eq!(quantile(&x, q).unwrap().to_bits(), fast.to_bits());
             }
         }
-        assert_eq!(quantile_in_place(&mut [], 0.5), None);
-        assert_eq!(quantile_in_place(&mut [1.0], 1.5), None);
+        assert_eq!(type7_selected(&mut [], 0.5), None);
+        assert_eq!(type7_selected(&mut [order_key(1.0)], 1.5), None);
     }
 
     /// The integer keys order finite floats as `total_cmp` does (−0 before +0, subnormals,
