@@ -218,18 +218,26 @@ pub fn write(conn: &Connection, rtree: &str, entries: Vec<Entry>) -> Result<()> 
     let mut node = conn.prepare(&format!("INSERT INTO {node_t} VALUES (?1, ?2)"))?;
     let mut rowid = conn.prepare(&format!("INSERT INTO {rowid_t} VALUES (?1, ?2)"))?;
     let mut parent = conn.prepare(&format!("INSERT INTO {parent_t} VALUES (?1, ?2)"))?;
+    // (id, node) pairs of the leaves and of the inner nodes, inserted in ascending key order:
+    // appending to a table's B-tree is far cheaper than inserting at random places.
+    let (mut leaf_of, mut parent_of) = (Vec::new(), Vec::new());
     for n in &nodes {
         let root = n.number == 1;
         node.execute(rusqlite::params![
             n.number,
             n.blob(if root { depth } else { 0 })
         ])?;
-        for c in &n.cells {
-            if n.height == 0 {
-                rowid.execute(rusqlite::params![c.id, n.number])?;
-            } else {
-                parent.execute(rusqlite::params![c.id, n.number])?;
-            }
+        let pairs = if n.height == 0 {
+            &mut leaf_of
+        } else {
+            &mut parent_of
+        };
+        pairs.extend(n.cells.iter().map(|c| (c.id, n.number)));
+    }
+    for (pairs, insert) in [(&mut leaf_of, &mut rowid), (&mut parent_of, &mut parent)] {
+        pairs.sort_unstable();
+        for &(id, number) in pairs.iter() {
+            insert.execute(rusqlite::params![id, number])?;
         }
     }
     Ok(())
