@@ -42,9 +42,74 @@ pub fn is_parquet(path: &Path) -> bool {
     matches!(ext.as_deref(), Some("parquet" | "geoparquet" | "pq"))
 }
 
+/// A Parquet file read by position (`pread`): every reader handed out keeps its own offset, so
+/// the columns of a block can be decoded on several threads at once. (`std::fs::File`'s own
+/// `ChunkReader` clones the descriptor, whose offset all clones share: concurrent column readers
+/// would read each other's bytes.)
+struct PosFile(std::sync::Arc<std::fs::File>);
+
+/// A reader of a [`PosFile`] from its own offset.
+struct PosRead {
+    file: std::sync::Arc<std::fs::File>,
+    at: u64,
+}
+
+/// `buf.len()` bytes or fewer at `at`, without moving any shared offset.
+fn read_at(file: &std::fs::File, buf: &mut [u8], at: u64) -> std::io::Result<usize> {
+    #[cfg(unix)]
+    {
+        std::os::unix::fs::FileExt::read_at(file, buf, at)
+    }
+    #[cfg(windows)]
+    {
+        std::os::windows::fs::FileExt::seek_read(file, buf, at)
+    }
+}
+
+impl std::io::Read for PosRead {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let n = read_at(&self.file, buf, self.at)?;
+        self.at += n as u64;
+        Ok(n)
+    }
+}
+
+impl parquet::file::reader::Length for PosFile {
+    fn len(&self) -> u64 {
+        self.0.metadata().map_or(0, |m| m.len())
+    }
+}
+
+impl parquet::file::reader::ChunkReader for PosFile {
+    type T = std::io::BufReader<PosRead>;
+
+    fn get_read(&self, start: u64) -> parquet::errors::Result<Self::T> {
+        Ok(std::io::BufReader::new(PosRead {
+            file: self.0.clone(),
+            at: start,
+        }))
+    }
+
+    fn get_bytes(&self, start: u64, length: usize) -> parquet::errors::Result<bytes::Bytes> {
+        let mut buf = vec![0u8; length];
+        let mut done = 0;
+        while done < length {
+            match read_at(&self.0, &mut buf[done..], start + done as u64)? {
+                0 => {
+                    return Err(parquet::errors::ParquetError::EOF(format!(
+                        "expected {length} bytes at offset {start}, read only {done}"
+                    )));
+                }
+                n => done += n,
+            }
+        }
+        Ok(buf.into())
+    }
+}
+
 /// An opened Parquet points file.
 pub struct ParquetPoints {
-    reader: SerializedFileReader<std::fs::File>,
+    reader: SerializedFileReader<PosFile>,
     /// Index of the GeoParquet WKB geometry column, if the positions come from it.
     geometry: Option<usize>,
     /// CRS of the positions.
@@ -94,7 +159,8 @@ pub fn open(
 ) -> Result<ParquetPoints, InputError> {
     let file = spec.path.as_path();
     let f = std::fs::File::open(file).map_err(|e| damaged(file, "", e))?;
-    let reader = SerializedFileReader::new(f).map_err(|e| damaged(file, "", e))?;
+    let reader = SerializedFileReader::new(PosFile(std::sync::Arc::new(f)))
+        .map_err(|e| damaged(file, "", e))?;
     let meta = reader.metadata().file_metadata();
     let schema = meta.schema_descr();
     let names: Vec<String> = schema.columns().iter().map(|c| c.path().string()).collect();
@@ -732,41 +798,48 @@ fn decode_block(
     names: &[String],
     file: &Path,
 ) -> Result<NumBlock, InputError> {
+    use rayon::prelude::*;
     let g = open.g;
     let schema = p.reader.metadata().file_metadata().schema_descr();
-    let mut columns = Vec::with_capacity(names.len());
-    for (k, (name, reader)) in names.iter().zip(&mut open.readers).enumerate() {
-        let Some(r) = reader else {
-            columns.push(NumColumn::Skipped);
-            continue;
-        };
-        let bad = |e: parquet::errors::ParquetError| {
-            damaged(file, format!("row group {g}, column `{name}`"), e)
-        };
-        let max_def = schema.column(k).max_def_level();
-        if wanted.numeric[k] {
-            let v = decode_numbers(r, n, max_def).map_err(bad)?;
-            columns.push(v.map_or(NumColumn::Skipped, NumColumn::Num));
-            continue;
-        }
-        columns.push(match decode(r, n, max_def).map_err(bad)? {
-            Col::Num(v) => NumColumn::Num(v),
-            Col::Int(v) if k == wanted.id => NumColumn::Text(
-                v.into_iter()
-                    .map(|i| i.map(|i| i.to_string().into_bytes()).unwrap_or_default())
-                    .collect(),
-            ),
-            Col::Int(v) => NumColumn::Num(
-                v.into_iter()
-                    .map(|i| i.map_or(f64::NAN, |i| i as f64))
-                    .collect(),
-            ),
-            Col::Bytes(v) => {
-                NumColumn::Text(v.into_iter().map(Option::unwrap_or_default).collect())
+    // The columns are independent: decoded (decompressed) in parallel, gathered in order; the
+    // first failing column in column order is the error reported.
+    let columns = names
+        .par_iter()
+        .zip(open.readers.par_iter_mut())
+        .enumerate()
+        .map(|(k, (name, reader))| {
+            let Some(r) = reader else {
+                return Ok(NumColumn::Skipped);
+            };
+            let bad = |e: parquet::errors::ParquetError| {
+                damaged(file, format!("row group {g}, column `{name}`"), e)
+            };
+            let max_def = schema.column(k).max_def_level();
+            if wanted.numeric[k] {
+                let v = decode_numbers(r, n, max_def).map_err(bad)?;
+                return Ok(v.map_or(NumColumn::Skipped, NumColumn::Num));
             }
-            Col::Bool(_) | Col::Other => NumColumn::Skipped,
-        });
-    }
+            Ok(match decode(r, n, max_def).map_err(bad)? {
+                Col::Num(v) => NumColumn::Num(v),
+                Col::Int(v) if k == wanted.id => NumColumn::Text(
+                    v.into_iter()
+                        .map(|i| i.map(|i| i.to_string().into_bytes()).unwrap_or_default())
+                        .collect(),
+                ),
+                Col::Int(v) => NumColumn::Num(
+                    v.into_iter()
+                        .map(|i| i.map_or(f64::NAN, |i| i as f64))
+                        .collect(),
+                ),
+                Col::Bytes(v) => {
+                    NumColumn::Text(v.into_iter().map(Option::unwrap_or_default).collect())
+                }
+                Col::Bool(_) | Col::Other => NumColumn::Skipped,
+            })
+        })
+        .collect::<Vec<Result<NumColumn, InputError>>>()
+        .into_iter()
+        .collect::<Result<Vec<NumColumn>, InputError>>()?;
     Ok(NumBlock {
         first_line: open.next_line,
         rows: n,
@@ -962,7 +1035,10 @@ mod tests {
         }
         w.close().unwrap();
         let p = ParquetPoints {
-            reader: SerializedFileReader::new(std::fs::File::open(&path).unwrap()).unwrap(),
+            reader: SerializedFileReader::new(PosFile(std::sync::Arc::new(
+                std::fs::File::open(&path).unwrap(),
+            )))
+            .unwrap(),
             geometry: None,
             crs: Crs::parse("EPSG:4326").unwrap(),
         };
