@@ -1473,10 +1473,33 @@ fn write_gpkg(a: &Analysis, d: &Path) -> Result<()> {
         d,
         &a.results.structures,
         &fps,
-        a.point_rows(&to_wgs),
+        (
+            &point_pieces(a),
+            |(di, range): &(usize, std::ops::Range<usize>)| {
+                a.point_rows_of(*di, range.clone(), &to_wgs)
+            },
+        ),
         a.results.portfolio.analysis_date.as_deref(),
     )
 }
+
+/// The points of every dataset in pieces of [`POINT_PIECE`] (dataset index, point range), in
+/// the order of points.csv: the unit the points outputs are formatted in parallel by.
+fn point_pieces(a: &Analysis) -> Vec<(usize, std::ops::Range<usize>)> {
+    a.inputs
+        .datasets
+        .iter()
+        .enumerate()
+        .flat_map(|(di, ds)| {
+            (0..ds.len())
+                .step_by(POINT_PIECE)
+                .map(move |s| (di, s..(s + POINT_PIECE).min(ds.len())))
+        })
+        .collect()
+}
+
+/// Points in a piece of the points outputs.
+const POINT_PIECE: usize = 1 << 14;
 
 /// results.json, results.csv and results.geojson.
 fn write_results(a: &Analysis, d: &Path) -> Result<()> {
@@ -1495,20 +1518,9 @@ fn write_results(a: &Analysis, d: &Path) -> Result<()> {
 /// written in order.
 fn write_points(a: &Analysis, d: &Path, geojson: bool) -> Result<()> {
     use std::io::Write;
-    const PIECE: usize = 1 << 14;
     let to_wgs =
         crate::coords::Transformer::new(&a.inputs.analysis_crs, &crate::coords::Crs::wgs84());
-    let pieces: Vec<(usize, std::ops::Range<usize>)> = a
-        .inputs
-        .datasets
-        .iter()
-        .enumerate()
-        .flat_map(|(di, ds)| {
-            (0..ds.len())
-                .step_by(PIECE)
-                .map(move |s| (di, s..(s + PIECE).min(ds.len())))
-        })
-        .collect();
+    let pieces = point_pieces(a);
     let write_both = |csv: &mut dyn Write, mut geo: Option<&mut dyn Write>| -> Result<()> {
         let mut head = Vec::new();
         output::points_csv_header(&mut head)?;

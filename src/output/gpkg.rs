@@ -16,7 +16,7 @@ use std::path::Path;
 
 use anyhow::{Context, Result, bail};
 use rusqlite::Connection;
-use rusqlite::types::Value as Sql;
+use rusqlite::types::{ToSqlOutput, Value as Sql, ValueRef};
 
 use crate::results::StructureResult;
 
@@ -233,20 +233,30 @@ fn wkb_xy(out: &mut Vec<u8>, x: f64, y: f64) {
 /// Blob of a point; a point with a non-finite coordinate is written as the empty point
 /// (NaN coordinates, empty flag set), as the standard prescribes.
 pub fn point_blob(x: f64, y: f64) -> Feature {
-    let empty = !(x.is_finite() && y.is_finite());
-    let mut b = Vec::with_capacity(29);
-    header(&mut b, None, empty);
-    wkb_head(&mut b, 1);
-    if empty {
-        wkb_xy(&mut b, f64::NAN, f64::NAN);
-    } else {
-        wkb_xy(&mut b, x, y);
-    }
+    let (b, envelope) = point_geometry(x, y);
     Feature {
-        geom: b,
-        envelope: (!empty).then_some([x, x, y, y]),
+        geom: b.to_vec(),
+        envelope,
         values: Vec::new(),
     }
+}
+
+/// Bytes of a point's blob: an 8-byte header without envelope and a 21-byte WKB point.
+const POINT_BLOB_BYTES: usize = 29;
+
+/// [`point_blob`]'s bytes and envelope, without allocating.
+pub fn point_geometry(x: f64, y: f64) -> ([u8; POINT_BLOB_BYTES], Option<Envelope>) {
+    let empty = !(x.is_finite() && y.is_finite());
+    let (px, py) = if empty { (f64::NAN, f64::NAN) } else { (x, y) };
+    // The layout `header` + `wkb_head` + `wkb_xy` write (a unit test compares the two).
+    let mut b = [0u8; POINT_BLOB_BYTES];
+    b[..4].copy_from_slice(&[b'G', b'P', 0, flags(false, empty)]);
+    b[4..8].copy_from_slice(&SRS_ID.to_le_bytes());
+    b[8] = 1;
+    b[9..13].copy_from_slice(&1u32.to_le_bytes());
+    b[13..21].copy_from_slice(&px.to_le_bytes());
+    b[21..29].copy_from_slice(&py.to_le_bytes());
+    (b, (!empty).then_some([x, x, y, y]))
 }
 
 /// Blob of a multipolygon, with its envelope in the header.
@@ -338,23 +348,36 @@ fn json_to_sql(v: &serde_json::Value, t: FieldType) -> Sql {
 
 /// A points.csv row's feature: the lon/lat point (rounded as in points.geojson) and the other fields.
 pub fn point_feature(r: &PointRow<'_>) -> Feature {
-    let text = |s: &str| Sql::Text(s.to_string());
+    let owned = |v: ValueRef<'_>| match v {
+        ValueRef::Null => Sql::Null,
+        ValueRef::Integer(i) => Sql::Integer(i),
+        ValueRef::Real(x) => Sql::Real(x),
+        ValueRef::Text(t) => Sql::Text(String::from_utf8_lossy(t).into_owned()),
+        ValueRef::Blob(b) => Sql::Blob(b.to_vec()),
+    };
     Feature {
-        values: vec![
-            text(r.dataset),
-            text(r.point_id),
-            Sql::Integer(r.line as i64),
-            text(r.structure_id),
-            text(r.role),
-            Sql::Integer(i64::from(r.inside)),
-            Sql::Real(r.distance_m),
-            text(r.status),
-            text(r.reason),
-            r.vertical_velocity_mm_per_yr.map_or(Sql::Null, Sql::Real),
-            Sql::Integer(r.surroundings_of as i64),
-        ],
+        values: point_values(r).into_iter().map(owned).collect(),
         ..point_blob(round9(r.lon), round9(r.lat))
     }
+}
+
+/// The attribute values of a points.csv row, in the order of [`POINT_FIELDS`], borrowed.
+pub fn point_values<'r>(r: &'r PointRow<'_>) -> [ValueRef<'r>; 11] {
+    let text = |s: &'r str| ValueRef::Text(s.as_bytes());
+    [
+        text(r.dataset),
+        text(r.point_id),
+        ValueRef::Integer(r.line as i64),
+        text(r.structure_id),
+        text(r.role),
+        ValueRef::Integer(i64::from(r.inside)),
+        ValueRef::Real(r.distance_m),
+        text(r.status),
+        text(r.reason),
+        r.vertical_velocity_mm_per_yr
+            .map_or(ValueRef::Null, ValueRef::Real),
+        ValueRef::Integer(r.surroundings_of as i64),
+    ]
 }
 
 /// A GeoPackage being written. Call [`Gpkg::finish`] to complete it.
@@ -419,13 +442,62 @@ impl Gpkg {
     }
 
     /// Write one layer: its table, its features (fid 1, 2, ... in order), its metadata rows and
-    /// its R-tree, packed in one pass once every feature is in (output::rtree_pack) rather than
-    /// grown one insertion at a time. Returns the number of features.
+    /// its R-tree (see [`LayerWriter`]). Returns the number of features.
     pub fn write_layer(
         &mut self,
         spec: &LayerSpec<'_>,
         features: impl IntoIterator<Item = Result<Feature>>,
     ) -> Result<u64> {
+        let mut layer = self.begin_layer(spec)?;
+        for f in features {
+            layer.push(f?)?;
+        }
+        layer.finish()
+    }
+
+    /// Write one layer whose rows are made from `pieces` by `make` (in order) and inserted by
+    /// `put`: the pieces of the next wave are made on the other workers while this thread
+    /// inserts the current wave, so that SQLite's single writer is all this thread does.
+    pub fn write_layer_in_pieces<P: Sync, T: Send>(
+        &mut self,
+        spec: &LayerSpec<'_>,
+        pieces: &[P],
+        make: impl Fn(&P) -> Vec<T> + Sync,
+        mut put: impl FnMut(&mut LayerWriter<'_>, T) -> Result<()>,
+    ) -> Result<u64> {
+        use rayon::prelude::*;
+        let wave = 2 * rayon::current_num_threads().max(1);
+        let make_wave = |w: &[P]| -> Vec<Vec<T>> { w.par_iter().map(&make).collect() };
+        let mut waves = pieces.chunks(wave);
+        let mut current = waves.next().map(make_wave).unwrap_or_default();
+        let mut layer = self.begin_layer(spec)?;
+        loop {
+            let upcoming = waves.next();
+            let mut next = None;
+            // In place: this thread inserts (SQLite's statement stays on it) while the next
+            // wave is made by the other workers, or by this one afterwards when there is none.
+            let inserted = rayon::in_place_scope(|s| {
+                if let Some(w) = upcoming {
+                    let next = &mut next;
+                    let make_wave = &make_wave;
+                    s.spawn(move |_| *next = Some(make_wave(w)));
+                }
+                current
+                    .drain(..)
+                    .flatten()
+                    .try_for_each(|row| put(&mut layer, row))
+            });
+            inserted?;
+            match next {
+                Some(n) => current = n,
+                None => break,
+            }
+        }
+        layer.finish()
+    }
+
+    /// Start a layer: its table and its R-tree table (see [`LayerWriter`]).
+    pub fn begin_layer<'g>(&'g mut self, spec: &'g LayerSpec<'g>) -> Result<LayerWriter<'g>> {
         let (t, rtree) = (ident(spec.name), ident(&rtree_name(spec.name)));
         let cols: String = spec
             .fields
@@ -438,68 +510,21 @@ impl Gpkg {
             g = ident(GEOM),
             gt = spec.geometry.name(),
         ))?;
-        let marks = "?,".repeat(spec.fields.len() + 2);
-        let mut insert = self.conn.prepare(&format!(
-            "INSERT INTO {t} VALUES ({})",
-            marks.trim_end_matches(',')
-        ))?;
-        let mut index = Vec::new();
-        let mut extent: Option<Envelope> = None;
-        let mut n = 0u64;
-        for f in features {
-            let f = f?;
-            n += 1;
-            if f.values.len() != spec.fields.len() {
-                bail!(
-                    "layer `{}`: feature {n} has {} values for {} columns",
-                    spec.name,
-                    f.values.len(),
-                    spec.fields.len()
-                );
-            }
-            let fid = n as i64;
-            let head = [Sql::Integer(fid), Sql::Blob(f.geom)];
-            insert.execute(rusqlite::params_from_iter(head.iter().chain(&f.values)))?;
-            if let Some(e) = f.envelope {
-                index.push(rtree_pack::Entry::new(fid, e));
-                let x = extent.get_or_insert(e);
-                *x = [
-                    x[0].min(e[0]),
-                    x[1].max(e[1]),
-                    x[2].min(e[2]),
-                    x[3].max(e[3]),
-                ];
-            }
-        }
-        drop(insert);
-        rtree_pack::write(&self.conn, &rtree_name(spec.name), index)?;
-        let [min_x, max_x, min_y, max_y] = extent.map_or([None; 4], |e| e.map(Some));
-        self.conn.execute(
-            "INSERT INTO gpkg_contents VALUES (?1, 'features', ?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
-            rusqlite::params![
-                spec.name,
-                spec.description,
-                self.last_change,
-                min_x,
-                min_y,
-                max_x,
-                max_y,
-                SRS_ID
-            ],
-        )?;
-        self.conn.execute(
-            "INSERT INTO gpkg_geometry_columns VALUES (?1, ?2, ?3, ?4, 0, 0)",
-            rusqlite::params![spec.name, GEOM, spec.geometry.name(), SRS_ID],
-        )?;
-        self.conn.execute(
-            "INSERT INTO gpkg_extensions VALUES (?1, ?2, 'gpkg_rtree_index', \
-             'http://www.geopackage.org/spec120/#extension_rtree', 'write-only')",
-            rusqlite::params![spec.name, GEOM],
-        )?;
-        // Created after the rows: the triggers call ST_* functions that GIS software supplies
-        // when it edits the layer, and keep the index in step with such edits.
-        self.conn.execute_batch(&rtree_triggers(spec.name))?;
-        Ok(n)
+        let insert = self
+            .conn
+            .prepare(&insert_sql(&t, spec.fields.len(), ROWS_PER_INSERT))?;
+        Ok(LayerWriter {
+            conn: &self.conn,
+            last_change: &self.last_change,
+            spec,
+            table: t,
+            insert,
+            pending: Vec::with_capacity(ROWS_PER_INSERT * (spec.fields.len() + 2)),
+            arena: Vec::new(),
+            index: Vec::new(),
+            extent: None,
+            n: 0,
+        })
     }
 
     /// Commit and close the file.
@@ -508,6 +533,180 @@ impl Gpkg {
         self.conn.close().map_err(|(_, e)| e)?;
         Ok(())
     }
+}
+
+/// A layer being written: features go in with [`LayerWriter::push`] (fid 1, 2, ... in order);
+/// [`LayerWriter::finish`] writes its metadata rows and its R-tree, packed in one pass once every
+/// feature is in (output::rtree_pack) rather than grown one insertion at a time.
+pub struct LayerWriter<'g> {
+    conn: &'g Connection,
+    last_change: &'g str,
+    spec: &'g LayerSpec<'g>,
+    /// The quoted table name.
+    table: String,
+    /// `INSERT` of [`ROWS_PER_INSERT`] rows.
+    insert: rusqlite::Statement<'g>,
+    /// Values (fid, geometry, fields) of the rows not yet inserted, fewer than
+    /// [`ROWS_PER_INSERT`]; their text and blobs are kept in `arena`.
+    pending: Vec<Cell>,
+    arena: Vec<u8>,
+    index: Vec<rtree_pack::Entry>,
+    extent: Option<Envelope>,
+    n: u64,
+}
+
+impl LayerWriter<'_> {
+    /// Insert the next feature.
+    pub fn push(&mut self, f: Feature) -> Result<()> {
+        let values: Vec<ValueRef<'_>> = f.values.iter().map(ValueRef::from).collect();
+        self.push_row(&f.geom, f.envelope, &values)
+    }
+
+    /// Insert the next feature from its geometry blob, its envelope (None for an empty
+    /// geometry) and its attribute values, borrowed: they are copied into the writer's arena
+    /// until the batch of [`ROWS_PER_INSERT`] rows goes in, with no allocation per value.
+    pub fn push_row(
+        &mut self,
+        geom: &[u8],
+        envelope: Option<Envelope>,
+        values: &[ValueRef<'_>],
+    ) -> Result<()> {
+        self.n += 1;
+        let n = self.n;
+        if values.len() != self.spec.fields.len() {
+            bail!(
+                "layer `{}`: feature {n} has {} values for {} columns",
+                self.spec.name,
+                values.len(),
+                self.spec.fields.len()
+            );
+        }
+        let fid = n as i64;
+        self.pending.push(Cell::Integer(fid));
+        self.pending.push(Cell::Blob(stash(&mut self.arena, geom)));
+        for v in values {
+            let cell = match *v {
+                ValueRef::Null => Cell::Null,
+                ValueRef::Integer(i) => Cell::Integer(i),
+                ValueRef::Real(x) => Cell::Real(x),
+                ValueRef::Text(t) => Cell::Text(stash(&mut self.arena, t)),
+                ValueRef::Blob(b) => Cell::Blob(stash(&mut self.arena, b)),
+            };
+            self.pending.push(cell);
+        }
+        if self.pending.len() == ROWS_PER_INSERT * (self.spec.fields.len() + 2) {
+            let arena = &self.arena;
+            self.insert.execute(rusqlite::params_from_iter(
+                self.pending.iter().map(|c| c.value(arena)),
+            ))?;
+            self.pending.clear();
+            self.arena.clear();
+        }
+        if let Some(e) = envelope {
+            self.index.push(rtree_pack::Entry::new(fid, e));
+            let x = self.extent.get_or_insert(e);
+            *x = [
+                x[0].min(e[0]),
+                x[1].max(e[1]),
+                x[2].min(e[2]),
+                x[3].max(e[3]),
+            ];
+        }
+        Ok(())
+    }
+
+    /// The layer's R-tree, its rows in gpkg_contents, gpkg_geometry_columns and gpkg_extensions,
+    /// and the R-tree triggers. Returns the number of features.
+    pub fn finish(self) -> Result<u64> {
+        let LayerWriter {
+            conn,
+            last_change,
+            spec,
+            table,
+            insert,
+            pending,
+            arena,
+            index,
+            extent,
+            n,
+        } = self;
+        drop(insert);
+        if !pending.is_empty() {
+            let rows = pending.len() / (spec.fields.len() + 2);
+            conn.execute(
+                &insert_sql(&table, spec.fields.len(), rows),
+                rusqlite::params_from_iter(pending.iter().map(|c| c.value(&arena))),
+            )?;
+        }
+        rtree_pack::write(conn, &rtree_name(spec.name), index)?;
+        let [min_x, max_x, min_y, max_y] = extent.map_or([None; 4], |e| e.map(Some));
+        conn.execute(
+            "INSERT INTO gpkg_contents VALUES (?1, 'features', ?1, ?2, ?3, ?4, ?5, ?6, ?7, ?8)",
+            rusqlite::params![
+                spec.name,
+                spec.description,
+                last_change,
+                min_x,
+                min_y,
+                max_x,
+                max_y,
+                SRS_ID
+            ],
+        )?;
+        conn.execute(
+            "INSERT INTO gpkg_geometry_columns VALUES (?1, ?2, ?3, ?4, 0, 0)",
+            rusqlite::params![spec.name, GEOM, spec.geometry.name(), SRS_ID],
+        )?;
+        conn.execute(
+            "INSERT INTO gpkg_extensions VALUES (?1, ?2, 'gpkg_rtree_index', \
+             'http://www.geopackage.org/spec120/#extension_rtree', 'write-only')",
+            rusqlite::params![spec.name, GEOM],
+        )?;
+        // Created after the rows: the triggers call ST_* functions that GIS software supplies
+        // when it edits the layer, and keep the index in step with such edits.
+        conn.execute_batch(&rtree_triggers(spec.name))?;
+        Ok(n)
+    }
+}
+
+/// A value of a row waiting in a [`LayerWriter`]: text and blobs as ranges of its arena.
+enum Cell {
+    Null,
+    Integer(i64),
+    Real(f64),
+    Text(std::ops::Range<usize>),
+    Blob(std::ops::Range<usize>),
+}
+
+impl Cell {
+    fn value<'a>(&self, arena: &'a [u8]) -> ToSqlOutput<'a> {
+        ToSqlOutput::Borrowed(match self {
+            Cell::Null => ValueRef::Null,
+            Cell::Integer(i) => ValueRef::Integer(*i),
+            Cell::Real(x) => ValueRef::Real(*x),
+            Cell::Text(r) => ValueRef::Text(&arena[r.clone()]),
+            Cell::Blob(r) => ValueRef::Blob(&arena[r.clone()]),
+        })
+    }
+}
+
+/// Append `bytes` to `arena`; their range there.
+fn stash(arena: &mut Vec<u8>, bytes: &[u8]) -> std::ops::Range<usize> {
+    let start = arena.len();
+    arena.extend_from_slice(bytes);
+    start..arena.len()
+}
+
+/// Rows a layer's `INSERT` statement takes at once: SQLite runs a statement's fixed work (and
+/// the `AUTOINCREMENT` bookkeeping of `sqlite_sequence`) once per statement, not per row. 64 rows
+/// of a layer's columns stay far below SQLite's limit of 32 766 bound values.
+const ROWS_PER_INSERT: usize = 64;
+
+/// `INSERT INTO table VALUES (?, …), …` for `rows` rows of a layer with `fields` attribute
+/// columns (plus fid and geometry).
+fn insert_sql(table: &str, fields: usize, rows: usize) -> String {
+    let row = format!("({})", vec!["?"; fields + 2].join(","));
+    format!("INSERT INTO {table} VALUES {}", vec![row; rows].join(","))
 }
 
 fn rtree_name(table: &str) -> String {
@@ -581,12 +780,13 @@ pub fn read_layer(path: &Path, spec: &LayerSpec<'_>) -> Result<Vec<Feature>> {
 }
 
 /// Write `results.gpkg` into the folder `dir` from the results, the WGS84 footprints (in
-/// results order) and the points rows.
-pub fn write_results<'a>(
+/// results order) and the points rows, given as `pieces` in order, each made into its rows by
+/// `rows` (made on the other workers while the rows before them are inserted).
+pub fn write_results<'a, P: Sync, R: Iterator<Item = PointRow<'a>>>(
     dir: &Path,
     structures: &[StructureResult],
     footprints_wgs84: &[&geo::MultiPolygon<f64>],
-    points: impl IntoIterator<Item = PointRow<'a>>,
+    (pieces, rows): (&[P], impl Fn(&P) -> R + Sync),
     analysis_date: Option<&str>,
 ) -> Result<()> {
     let path = dir.join(FILE);
@@ -599,9 +799,18 @@ pub fn write_results<'a>(
             .map(|(s, fp)| structure_feature(s, fp)),
     )
     .with_context(|| format!("cannot write layer `{STRUCTURES}` of {}", path.display()))?;
-    g.write_layer(
+    g.write_layer_in_pieces(
         &POINTS_LAYER,
-        points.into_iter().map(|r| Ok(point_feature(&r))),
+        pieces,
+        |p| {
+            rows(p)
+                .map(|r| {
+                    let geometry = point_geometry(round9(r.lon), round9(r.lat));
+                    (r, geometry)
+                })
+                .collect()
+        },
+        |layer, (r, (blob, envelope))| layer.push_row(&blob, envelope, &point_values(&r)),
     )
     .with_context(|| format!("cannot write layer `{POINTS}` of {}", path.display()))?;
     g.finish()
@@ -703,6 +912,82 @@ mod tests {
         let second_at = hole_at + 4 + 4 * 16;
         assert_eq!((le_u32(b, second_at + 1), le_u32(b, second_at + 5)), (3, 1));
         assert_eq!(b.len(), second_at + 9 + 4 + 4 * 16);
+    }
+
+    /// The fixed-size point blob is the one the general writers (`header`, `wkb_head`,
+    /// `wkb_xy`) give, for a point and for the empty point.
+    #[test]
+    fn point_geometry_is_the_general_blob_layout() {
+        for (x, y) in [
+            (11.25, 48.5),
+            (-0.0, 1e-9),
+            (f64::NAN, 3.0),
+            (2.0, f64::INFINITY),
+        ] {
+            let empty = !(x.is_finite() && y.is_finite());
+            let mut b = Vec::new();
+            header(&mut b, None, empty);
+            wkb_head(&mut b, 1);
+            if empty {
+                wkb_xy(&mut b, f64::NAN, f64::NAN);
+            } else {
+                wkb_xy(&mut b, x, y);
+            }
+            let (fixed, envelope) = point_geometry(x, y);
+            assert_eq!(fixed.as_slice(), b.as_slice(), "({x}, {y})");
+            assert_eq!(envelope, (!empty).then_some([x, x, y, y]));
+        }
+    }
+
+    /// Rows written in pieces (several waves, full batches of ROWS_PER_INSERT and a remainder)
+    /// read back in order, each with its values, and the index holds every located point.
+    #[test]
+    fn a_layer_written_in_pieces_reads_back_in_order() {
+        let t = tempfile::tempdir().unwrap();
+        let path = t.path().join("x.gpkg");
+        let mut g = Gpkg::create(&path, &last_change(None)).unwrap();
+        let n = 5 * ROWS_PER_INSERT + 7;
+        let pieces: Vec<std::ops::Range<usize>> =
+            (0..n).step_by(37).map(|s| s..(s + 37).min(n)).collect();
+        let row = |i: usize| -> Feature {
+            let x = if i % 50 == 3 {
+                f64::NAN
+            } else {
+                i as f64 / 10.0
+            };
+            let mut f = point_blob(x, 1.0);
+            f.values = POINT_FIELDS
+                .iter()
+                .enumerate()
+                .map(|(k, (_, t))| match t {
+                    FieldType::Text => Sql::Text(format!("p{i}-{k}")),
+                    FieldType::Real if i % 2 == 0 => Sql::Null,
+                    FieldType::Real => Sql::Real(i as f64 + 0.5),
+                    _ => Sql::Integer((i * 100 + k) as i64),
+                })
+                .collect();
+            f
+        };
+        let written = g
+            .write_layer_in_pieces(
+                &POINTS_LAYER,
+                &pieces,
+                |r| r.clone().map(row).collect(),
+                |layer, f| layer.push(f),
+            )
+            .unwrap();
+        assert_eq!(written, n as u64);
+        g.finish().unwrap();
+        let back = read_layer(&path, &POINTS_LAYER).unwrap();
+        assert_eq!(back.len(), n);
+        for (i, f) in back.iter().enumerate() {
+            assert_eq!(*f, row(i), "row {i}");
+        }
+        let c = Connection::open(&path).unwrap();
+        let located: i64 = c
+            .query_row("SELECT count(*) FROM rtree_points_geom", [], |r| r.get(0))
+            .unwrap();
+        assert_eq!(located as usize, n - (0..n).filter(|i| i % 50 == 3).count());
     }
 
     #[test]
