@@ -216,8 +216,6 @@ pub fn write(conn: &Connection, rtree: &str, entries: Vec<Entry>) -> Result<()> 
     ))
     .with_context(|| format!("cannot clear the spatial index {rtree}"))?;
     let mut node = conn.prepare(&format!("INSERT INTO {node_t} VALUES (?1, ?2)"))?;
-    let mut rowid = conn.prepare(&format!("INSERT INTO {rowid_t} VALUES (?1, ?2)"))?;
-    let mut parent = conn.prepare(&format!("INSERT INTO {parent_t} VALUES (?1, ?2)"))?;
     // (id, node) pairs of the leaves and of the inner nodes, inserted in ascending key order:
     // appending to a table's B-tree is far cheaper than inserting at random places.
     let (mut leaf_of, mut parent_of) = (Vec::new(), Vec::new());
@@ -234,11 +232,38 @@ pub fn write(conn: &Connection, rtree: &str, entries: Vec<Entry>) -> Result<()> 
         };
         pairs.extend(n.cells.iter().map(|c| (c.id, n.number)));
     }
-    for (pairs, insert) in [(&mut leaf_of, &mut rowid), (&mut parent_of, &mut parent)] {
+    for (pairs, table) in [(&mut leaf_of, &rowid_t), (&mut parent_of, &parent_t)] {
         pairs.sort_unstable();
-        for &(id, number) in pairs.iter() {
-            insert.execute(rusqlite::params![id, number])?;
+        insert_pairs(conn, table, pairs)?;
+    }
+    Ok(())
+}
+
+/// Pairs an `INSERT` of [`insert_pairs`] takes at once (SQLite's per-statement work once per
+/// this many rows; 1 000 bound values, far below SQLite's limit of 32 766).
+const PAIRS_PER_INSERT: usize = 500;
+
+/// Insert `(a, b)` rows into the two-column table `table` (quoted), in the given order.
+fn insert_pairs(conn: &Connection, table: &str, pairs: &[(i64, i64)]) -> Result<()> {
+    let sql = |rows: usize| {
+        format!(
+            "INSERT INTO {table} VALUES {}",
+            vec!["(?,?)"; rows].join(",")
+        )
+    };
+    let values = |c: &[(i64, i64)]| {
+        rusqlite::params_from_iter(c.iter().flat_map(|&(a, b)| [a, b]).collect::<Vec<i64>>())
+    };
+    let mut chunks = pairs.chunks_exact(PAIRS_PER_INSERT);
+    if chunks.len() > 0 {
+        let mut full = conn.prepare(&sql(PAIRS_PER_INSERT))?;
+        for c in &mut chunks {
+            full.execute(values(c))?;
         }
+    }
+    let rest = chunks.remainder();
+    if !rest.is_empty() {
+        conn.execute(&sql(rest.len()), values(rest))?;
     }
     Ok(())
 }
