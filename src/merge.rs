@@ -11,9 +11,9 @@
 //! serialisers as a single run, so a merge of shards equals a single run byte for byte when every
 //! structure's result is independent of the other shards' structures. A point listed by several
 //! shards (near the border between their areas) is reduced to the row a single run writes (see
-//! `one_row_per_point`). Limitation (documented in docs/performance.md): such a point is
-//! associated in each shard without the other shard's structures, so a tie between structures of
-//! two shards is not seen (each shard counts the point as its structure's).
+//! `one_row_per_point`). Each shard associates its points with the other shards' structures near
+//! its own taken into account (association::SpatialIndex::with_halo), so the owner of such a
+//! point, or its tie, is the one a single run finds.
 //!
 //! It does not analyse anything and never reads the points files.
 
@@ -604,12 +604,15 @@ struct RowView {
 }
 
 /// A point near the border between shards is listed by every shard holding a structure whose
-/// footprint, buffer or ring holds it, each shard seeing only its own structures. A single run
-/// lists it once: with its owner when it has one, else with the nearest structure whose ring
+/// footprint, buffer or ring holds it; each shard links and counts only its own structures (but
+/// decides owners and ties with its neighbours' structures too, as a single run does). A single
+/// run lists it once: with its owner when it has one, else with the nearest structure whose ring
 /// holds it (the lower input order among equal distances), `surroundings_of` counting the rings
-/// of all structures. The rows of one point (same dataset and line, consecutive in `rows`) are
-/// reduced to that row; a point with a tie row, or owned in two shards (which a single run may
-/// call a tie), keeps its rows.
+/// of all structures; a tie is listed as one tie row, followed by that nearest ring's row when
+/// one holds it. The rows of one point (same dataset and line, consecutive in `rows`) are reduced
+/// to those rows. Every shard that lists a tied point saw the tie and wrote one tie row carrying
+/// its own ring count, so the rings are the sum over the tie rows. Rows that contradict each
+/// other (two owners) are kept as they are.
 fn one_row_per_point<T>(
     rows: Vec<(PointKey, T)>,
     view: impl Fn(&T) -> RowView,
@@ -640,22 +643,42 @@ fn reduce_point<T>(
         return group;
     }
     let views: Vec<RowView> = group.iter().map(|(_, t)| view(t)).collect();
-    if views.iter().any(|v| v.role == "tie") {
-        return group;
+    let nearest = |candidates: &mut dyn Iterator<Item = usize>| {
+        candidates.min_by(|&a, &b| {
+            views[a]
+                .distance_m
+                .total_cmp(&views[b].distance_m)
+                .then(group[a].0.3.cmp(&group[b].0.3))
+        })
+    };
+    let ties: Vec<usize> = (0..views.len())
+        .filter(|&i| views[i].role == "tie")
+        .collect();
+    if let Some(&first_tie) = ties.first() {
+        if views.iter().any(|v| v.role == "structure") {
+            return group;
+        }
+        let rings = ties.iter().map(|&i| views[i].rings).sum();
+        let ring = nearest(&mut (0..views.len()).filter(|&i| views[i].role != "tie"));
+        // Rows are in key order: the tie row comes before any structure's row.
+        let mut keep: Vec<usize> = std::iter::once(first_tie).chain(ring).collect();
+        keep.sort_unstable();
+        let mut rows: Vec<Option<(PointKey, T)>> = group.into_iter().map(Some).collect();
+        return keep
+            .into_iter()
+            .filter_map(|i| rows[i].take())
+            .map(|mut row| {
+                set_rings(&mut row.1, rings);
+                row
+            })
+            .collect();
     }
     let owners: Vec<usize> = (0..views.len())
         .filter(|&i| views[i].role == "structure")
         .collect();
     let chosen = match owners.as_slice() {
         [one] => *one,
-        [] => (0..views.len())
-            .min_by(|&a, &b| {
-                views[a]
-                    .distance_m
-                    .total_cmp(&views[b].distance_m)
-                    .then(group[a].0.3.cmp(&group[b].0.3))
-            })
-            .unwrap_or(0),
+        [] => nearest(&mut (0..views.len())).unwrap_or(0),
         _ => return group,
     };
     let rings = views.iter().map(|v| v.rings).sum();
@@ -773,8 +796,22 @@ mod tests {
     }
 
     #[test]
-    fn a_point_with_a_tie_row_keeps_its_rows() {
-        let got = reduce(&[(2, 0, "tie", 0.0, 2), (2, 4, "surroundings", 40.0, 1)]);
-        assert_eq!(got, [(2, 0, 2), (2, 4, 1)]);
+    fn a_tie_seen_by_two_shards_is_one_tie_row_and_the_nearest_ring() {
+        // Line 2, one shard: its tie row and its ring row, unchanged (2 rings).
+        // Line 3, two shards (each wrote a tie row with its own ring count, 1 and 2, and the
+        // second its nearest ring): one tie row and the nearest ring (structure 6 at 31 m),
+        // both with 1 + 2 rings.
+        // Line 4, two shards, no ring anywhere: one tie row, no ring row.
+        let got = reduce(&[
+            (2, 0, "tie", 0.0, 2),
+            (2, 4, "surroundings", 40.0, 2),
+            (3, 0, "tie", 0.0, 1),
+            (3, 0, "tie", 0.0, 2),
+            (3, 2, "surroundings", 44.0, 1),
+            (3, 6, "surroundings", 31.0, 2),
+            (4, 0, "tie", 0.0, 0),
+            (4, 0, "tie", 0.0, 0),
+        ]);
+        assert_eq!(got, [(2, 0, 2), (2, 4, 2), (3, 0, 3), (3, 6, 3), (4, 0, 0)]);
     }
 }

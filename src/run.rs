@@ -500,7 +500,7 @@ fn load_shard(
     crate::coords::Crs,
     crate::association::SpatialIndex,
 )> {
-    let (mut structures, analysis_crs, index) = ingest::load_structures(pf, warnings)?;
+    let (structures, analysis_crs, index) = ingest::load_structures(pf, warnings)?;
     let Some((k, n)) = shard else {
         return Ok((structures, analysis_crs, index));
     };
@@ -514,17 +514,24 @@ fn load_shard(
         })
         .collect();
     let mine = crate::shard::members(&centroids, k, n);
-    let mut flags = mine.iter();
-    structures.retain(|_| flags.next().copied().unwrap_or(false));
+    let (own, others): (Vec<_>, Vec<_>) = structures.into_iter().zip(&mine).partition(|(_, m)| **m);
+    let mut structures: Vec<ingest::Structure> = own.into_iter().map(|(s, _)| s).collect();
     // Re-index after sharding so that each shard reads only points near its own structures.
     for (i, s) in structures.iter_mut().enumerate() {
         s.index = i;
     }
-    let index = crate::association::SpatialIndex::new(
-        structures.iter().map(|s| s.footprint.clone()).collect(),
-        pf.assessment.buffer_m,
-        pf.assessment.surroundings_m,
-    );
+    // The other shards' structures near this shard's decide owners and ties of the points
+    // between them exactly as a single run does (association::SpatialIndex::with_halo).
+    let (buffer, ring) = (pf.assessment.buffer_m, pf.assessment.surroundings_m);
+    let own_fps: Vec<_> = structures.iter().map(|s| s.footprint.clone()).collect();
+    let other_fps: Vec<_> = others.into_iter().map(|(s, _)| s.footprint).collect();
+    let near = crate::association::SpatialIndex::halo_of(&own_fps, &other_fps, buffer, ring);
+    let halo = other_fps
+        .into_iter()
+        .zip(near)
+        .filter_map(|(f, near)| near.then_some(f))
+        .collect();
+    let index = crate::association::SpatialIndex::with_halo(own_fps, halo, buffer, ring);
     Ok((structures, analysis_crs, index))
 }
 

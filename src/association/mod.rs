@@ -11,7 +11,9 @@
 //!    in the surroundings of several structures, and may also belong to a neighbouring structure.
 //!
 //! Owns the R-tree over footprint envelopes expanded by the surroundings radius (so the ingest
-//! stage can keep only points within reach). It does not screen point quality (see `assess`).
+//! stage can keep only points within reach), and, for a `--shard` run, the halo of the other
+//! shards' structures near its own, which compete for owners and ties as in a single run but are
+//! never linked or counted. It does not screen point quality (see `assess`).
 
 use geo::MultiPolygon;
 use rstar::{AABB, RTree, primitives::GeomWithData, primitives::Rectangle};
@@ -224,10 +226,18 @@ pub fn split_global(dataset_offsets: &[usize], g: u32) -> (usize, usize) {
     (d, g - dataset_offsets[d])
 }
 
-/// The spatial index over structures.
+/// The spatial index over structures: the run's own structures and, in a sharded run, the
+/// other shards' structures near them (the halo), which take part in deciding a point's owner
+/// and ties exactly as in a single run but are never linked to a point or counted.
 pub struct SpatialIndex {
+    /// Expanded envelopes of the own structures (data: index in `footprints`, below `own`).
     tree: RTree<GeomWithData<Rectangle<[f64; 2]>, usize>>,
+    /// Expanded envelopes of the halo structures (data: index in `footprints`, `own` or above).
+    halo: RTree<GeomWithData<Rectangle<[f64; 2]>, usize>>,
+    /// Footprints: the own structures (in their order), then the halo.
     footprints: Vec<MultiPolygon<f64>>,
+    /// Number of own structures.
+    own: usize,
     buffer_m: f64,
     surroundings_m: f64,
 }
@@ -235,28 +245,68 @@ pub struct SpatialIndex {
 impl SpatialIndex {
     /// Build the index over footprints in the analysis CRS.
     pub fn new(footprints: Vec<MultiPolygon<f64>>, buffer_m: f64, surroundings_m: f64) -> Self {
-        use geo::BoundingRect;
+        Self::with_halo(footprints, Vec::new(), buffer_m, surroundings_m)
+    }
+
+    /// Build the index over the own footprints `own` and the `halo` footprints (other structures
+    /// that may compete for a point within reach of an own one; see [`Self::halo_of`]), in the
+    /// analysis CRS. Points are kept, linked and counted for the own structures only; the halo
+    /// only decides owners and ties as a single run over all of them would.
+    pub fn with_halo(
+        own: Vec<MultiPolygon<f64>>,
+        halo: Vec<MultiPolygon<f64>>,
+        buffer_m: f64,
+        surroundings_m: f64,
+    ) -> Self {
         let reach = surroundings_m.max(buffer_m);
-        let items = footprints
-            .iter()
-            .enumerate()
-            .filter_map(|(i, f)| {
-                let r = f.bounding_rect()?;
-                Some(GeomWithData::new(
-                    Rectangle::from_corners(
-                        [r.min().x - reach, r.min().y - reach],
-                        [r.max().x + reach, r.max().y + reach],
-                    ),
-                    i,
-                ))
-            })
-            .collect();
+        let n_own = own.len();
+        let mut footprints = own;
+        footprints.extend(halo);
+        let items = |range: std::ops::Range<usize>| -> Vec<_> {
+            range
+                .filter_map(|i| {
+                    let [lo, hi] = expanded_box(&footprints[i], reach)?;
+                    Some(GeomWithData::new(Rectangle::from_corners(lo, hi), i))
+                })
+                .collect()
+        };
         SpatialIndex {
-            tree: RTree::bulk_load(items),
+            tree: RTree::bulk_load(items(0..n_own)),
+            halo: RTree::bulk_load(items(n_own..footprints.len())),
             footprints,
+            own: n_own,
             buffer_m,
             surroundings_m,
         }
+    }
+
+    /// Which of the `others` footprints belong in the halo of the `own` ones: those whose
+    /// envelope grown by the reach (the larger of `buffer_m` and `surroundings_m`) meets an own
+    /// one's grown envelope — only they can be within reach of a point that is within reach of
+    /// an own structure.
+    pub fn halo_of(
+        own: &[MultiPolygon<f64>],
+        others: &[MultiPolygon<f64>],
+        buffer_m: f64,
+        surroundings_m: f64,
+    ) -> Vec<bool> {
+        let reach = surroundings_m.max(buffer_m);
+        let boxes: Vec<Rectangle<[f64; 2]>> = own
+            .iter()
+            .filter_map(|f| expanded_box(f, reach))
+            .map(|[lo, hi]| Rectangle::from_corners(lo, hi))
+            .collect();
+        let tree = RTree::bulk_load(boxes);
+        others
+            .iter()
+            .map(|f| {
+                expanded_box(f, reach).is_some_and(|[lo, hi]| {
+                    tree.locate_in_envelope_intersecting(&AABB::from_corners(lo, hi))
+                        .next()
+                        .is_some()
+                })
+            })
+            .collect()
     }
 
     /// True when (x, y) lies within the expanded envelope of some structure: the reach test on its
@@ -310,6 +360,20 @@ impl SpatialIndex {
         if !any {
             return None;
         }
+        // The halo competes for the point (owner, ties) but is never linked or counted below.
+        for g in self
+            .halo
+            .locate_in_envelope_intersecting(&AABB::from_point([x, y]))
+        {
+            let (inside, d) = inside_and_distance(&self.footprints[g.data], x, y);
+            if d <= reach {
+                if n == STACK {
+                    return Some(self.associate(x, y).summary());
+                }
+                cands[n] = (g.data, d, inside);
+                n += 1;
+            }
+        }
         let cands = &cands[..n];
         // (distance, structure) order: nearest first, lower index first among equals — the order
         // `associate` gets from its sort by index then stable sort by distance.
@@ -354,7 +418,7 @@ impl SpatialIndex {
         let mut rings = 0usize;
         let mut nearest: Option<&(usize, f64, bool)> = None;
         let mut owned: Option<&(usize, f64, bool)> = None;
-        for c in cands {
+        for c in cands.iter().filter(|c| c.0 < self.own) {
             if Some(c.0) == owner {
                 owned = Some(c);
             } else if c.1 <= self.surroundings_m && !(tie && c.1 <= self.buffer_m) {
@@ -385,9 +449,11 @@ impl SpatialIndex {
 
     /// Associate one point (analysis CRS) by the rules in the module doc.
     pub fn associate(&self, x: f64, y: f64) -> PointLinks {
+        let here = AABB::from_point([x, y]);
         let mut cands: Vec<(usize, f64, bool)> = self
             .tree
-            .locate_in_envelope_intersecting(&AABB::from_point([x, y]))
+            .locate_in_envelope_intersecting(&here)
+            .chain(self.halo.locate_in_envelope_intersecting(&here))
             .map(|g| {
                 let (inside, d) = inside_and_distance(&self.footprints[g.data], x, y);
                 (g.data, d, inside)
@@ -420,7 +486,7 @@ impl SpatialIndex {
                 }
             }
         };
-        for (s, d, inside) in cands {
+        for (s, d, inside) in cands.into_iter().filter(|c| c.0 < self.own) {
             if Some(s) == owner {
                 out.links.push(Link {
                     structure: s,
@@ -439,6 +505,17 @@ impl SpatialIndex {
         }
         out
     }
+}
+
+/// The bounding box of `f` grown by `reach` on every side, as `[min corner, max corner]`; None
+/// for an empty footprint.
+fn expanded_box(f: &MultiPolygon<f64>, reach: f64) -> Option<[[f64; 2]; 2]> {
+    use geo::BoundingRect;
+    let r = f.bounding_rect()?;
+    Some([
+        [r.min().x - reach, r.min().y - reach],
+        [r.max().x + reach, r.max().y + reach],
+    ])
 }
 
 /// Whether (x, y) lies in the interior of `mp`, and its Euclidean distance to `mp` (0 inside), in
@@ -665,6 +742,107 @@ mod tests {
             }
         }
         assert!(ties > 0 && owned > 0 && unreached > 0 && crowded > 0);
+    }
+
+    /// A shard's index (its own structures plus the halo of the others near them) links, ties
+    /// and keeps every point exactly as the index of all structures does, restricted to the own
+    /// structures: the single run's association. The halo chosen by `halo_of` gives what all the
+    /// other structures give, and `summarise` stays `associate().summary()`.
+    #[test]
+    fn a_shard_with_its_halo_associates_as_the_single_run() {
+        let mut seed = 99u64;
+        let mut next = || {
+            seed = seed
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            (seed >> 11) as f64 / (1u64 << 53) as f64
+        };
+        // Terraced rows (touching and 6 m apart: buffer ties and contested owners) and a random
+        // cluster with overlaps; far structures that no halo needs.
+        let mut fps = Vec::new();
+        for i in 0..8 {
+            let x0 = i as f64 * if i < 4 { 10.0 } else { 16.0 };
+            fps.push(rect(x0, 0.0, x0 + 10.0, 10.0));
+        }
+        for _ in 0..20 {
+            let (x0, y0) = (next() * 60.0, 20.0 + next() * 40.0);
+            fps.push(rect(
+                x0,
+                y0,
+                x0 + 3.0 + next() * 12.0,
+                y0 + 3.0 + next() * 12.0,
+            ));
+        }
+        fps.push(rect(2000.0, 2000.0, 2010.0, 2010.0));
+        let (buffer, ring) = (5.0, 20.0);
+        let full = SpatialIndex::new(fps.clone(), buffer, ring);
+        // The shard: every third structure but the far one (its index in the shard = its rank).
+        let mine: Vec<bool> = (0..fps.len())
+            .map(|i| i % 3 == 1 && i + 1 < fps.len())
+            .collect();
+        let own_of: Vec<Option<usize>> = mine
+            .iter()
+            .scan(0, |n, &m| {
+                *n += usize::from(m);
+                Some(m.then(|| *n - 1))
+            })
+            .collect();
+        let own: Vec<_> = (0..fps.len())
+            .filter(|&i| mine[i])
+            .map(|i| fps[i].clone())
+            .collect();
+        let others: Vec<_> = (0..fps.len())
+            .filter(|&i| !mine[i])
+            .map(|i| fps[i].clone())
+            .collect();
+        let near = SpatialIndex::halo_of(&own, &others, buffer, ring);
+        assert!(
+            near.iter().any(|n| *n) && !near.iter().all(|n| *n),
+            "{near:?}"
+        );
+        let halo: Vec<_> = others
+            .iter()
+            .zip(&near)
+            .filter(|(_, n)| **n)
+            .map(|(f, _)| f.clone())
+            .collect();
+        let shard = SpatialIndex::with_halo(own.clone(), halo, buffer, ring);
+        let with_all = SpatialIndex::with_halo(own.clone(), others.clone(), buffer, ring);
+        let own_only = SpatialIndex::new(own, buffer, ring);
+        let (mut kept, mut ties, mut contested) = (0, 0, 0);
+        for i in -60..=260 {
+            for j in -60..=180 {
+                let (x, y) = (i as f64 * 0.5, j as f64 * 0.5);
+                let got = shard.summarise(x, y);
+                assert_eq!(got.is_some(), own_only.within_reach(x, y), "({x}, {y})");
+                assert_eq!(got, with_all.summarise(x, y), "({x}, {y})");
+                let Some(got) = got else { continue };
+                kept += 1;
+                let links = shard.associate(x, y);
+                assert_eq!(got, links.summary(), "({x}, {y})");
+                let single = full.associate(x, y);
+                let want: Vec<Link> = single
+                    .links
+                    .iter()
+                    .filter_map(|k| own_of[k.structure].map(|s| Link { structure: s, ..*k }))
+                    .collect();
+                assert_eq!(links.links, want, "({x}, {y})");
+                assert_eq!(links.tie, single.tie, "({x}, {y})");
+                ties += usize::from(single.tie);
+                contested += usize::from(
+                    own_only
+                        .associate(x, y)
+                        .links
+                        .iter()
+                        .any(|k| k.role == Role::Structure)
+                        && !want.iter().any(|k| k.role == Role::Structure),
+                );
+            }
+        }
+        assert!(
+            kept > 0 && ties > 0 && contested > 0,
+            "{kept} {ties} {contested}"
+        );
     }
 
     #[test]

@@ -417,3 +417,31 @@ fn points_near_the_border_between_shards_are_listed_as_by_a_single_run() {
             .unwrap();
     assert_eq!(r["portfolio"]["coverage"]["points_surroundings_only"], 4);
 }
+
+/// Two blocks 4 m apart (buffers of 5 m overlap), in different shards: a point 2 m from each is
+/// a tie, and a point 1.5 m from W1 and 2.5 m from E2 is W1's — as in a single run, although
+/// E2's shard alone would have taken it (each shard decides with its neighbours' structures).
+#[test]
+fn owners_and_ties_between_touching_shards_are_the_single_runs() {
+    let (fx, pf) = blocks_portfolio(&[("W1", 0.0, 0.0), ("E2", 24.0, 0.0)]);
+    let (_, merged) = single_and_merged(&fx, &pf, &[]);
+    let text = std::fs::read_to_string(merged.join("points.csv")).unwrap();
+    let rows = |id: &str| -> Vec<String> {
+        text.lines()
+            .filter(|l| l.contains(&format!("-{id},")))
+            .map(str::to_string)
+            .collect()
+    };
+    // W1's buffer spot at (12, 0): a tie row, then its nearest ring (W1 and E2 both at 2 m:
+    // W1, first in input order, is tied, so no ring row is left), per dataset.
+    let tie = rows("W1-12");
+    assert!(tie.iter().any(|r| r.contains(",tie,")), "{tie:?}");
+    assert!(!tie.iter().any(|r| r.contains(",structure,")), "{tie:?}");
+    // E2's buffer spot at (11.5, 1): W1's, 1.5 m away, in E2's ring.
+    let contested = rows("E2-13");
+    assert_eq!(contested.len(), 2, "one row per dataset: {contested:?}");
+    assert!(
+        contested.iter().all(|r| r.contains(",W1,structure,")),
+        "{contested:?}"
+    );
+}
