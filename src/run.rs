@@ -588,18 +588,7 @@ pub fn associate(p: &Prepared) -> Result<Association> {
             u32::MAX - 1
         );
     }
-    let mut links: Vec<(u32, u32)> = Vec::new();
-    let mut ties = 0usize;
-    let mut surroundings_only = 0usize;
-    for_each_link_block(datasets, index, |g, l| {
-        if l.tie {
-            ties += 1;
-        } else if !l.links.is_empty() && l.links.iter().all(|k| k.role == Role::Surroundings) {
-            surroundings_only += 1;
-        }
-        // Both fit in 32 bits (checked above).
-        links.extend(l.links.iter().map(|k| (k.structure as u32, g as u32)));
-    });
+    let (links, ties, surroundings_only) = link_pairs(datasets, index);
     let mut starts = vec![0usize; n_structures + 1];
     for &(s, _) in &links {
         starts[s as usize + 1] += 1;
@@ -622,27 +611,49 @@ pub fn associate(p: &Prepared) -> Result<Association> {
     })
 }
 
-/// Every kept point's links (global point index, links), in dataset then point order, worked out
-/// in parallel in blocks so that the per-point link lists never exist for every point at once.
-fn for_each_link_block(
+/// Every kept point's links as (structure, global point index) pairs, in dataset then point
+/// order, with the counts of tied points and of points only in surroundings rings: worked out in
+/// parallel in pieces, each with its own scratch buffers, so that nothing is allocated per point.
+fn link_pairs(
     datasets: &[ingest::Dataset],
     index: &crate::association::SpatialIndex,
-    mut f: impl FnMut(usize, &crate::association::PointLinks),
-) {
-    const BLOCK: usize = 1 << 16;
+) -> (Vec<(u32, u32)>, usize, usize) {
+    const PIECE: usize = 1 << 12;
+    let mut pieces = Vec::new();
     let mut g = 0usize;
     for d in datasets {
-        for block in d.points.chunks(BLOCK) {
-            let links: Vec<crate::association::PointLinks> = block
-                .par_iter()
-                .map(|p| index.associate(p.x, p.y))
-                .collect();
-            for l in &links {
-                f(g, l);
-                g += 1;
+        for (k, chunk) in d.points.chunks(PIECE).enumerate() {
+            pieces.push((g + k * PIECE, chunk));
+        }
+        g += d.len();
+    }
+    let one_piece = |&(first, chunk): &(usize, &[ingest::Point])| {
+        let (mut cands, mut l) = (Vec::new(), crate::association::PointLinks::default());
+        let (mut pairs, mut ties, mut surroundings_only) = (Vec::new(), 0, 0);
+        for (k, p) in chunk.iter().enumerate() {
+            index.associate_into(p.x, p.y, &mut cands, &mut l);
+            if l.tie {
+                ties += 1;
+            } else if !l.links.is_empty() && l.links.iter().all(|k| k.role == Role::Surroundings) {
+                surroundings_only += 1;
             }
+            // Both fit in 32 bits (checked by the caller).
+            let g = (first + k) as u32;
+            pairs.extend(l.links.iter().map(|k| (k.structure as u32, g)));
+        }
+        (pairs, ties, surroundings_only)
+    };
+    let (mut links, mut ties, mut surroundings_only) = (Vec::new(), 0, 0);
+    // A few pieces per worker at a time: the pieces' pairs are held only until appended.
+    for wave in pieces.chunks(8 * rayon::current_num_threads().max(1)) {
+        let parts: Vec<(Vec<(u32, u32)>, usize, usize)> = wave.par_iter().map(one_piece).collect();
+        for (pairs, t, s) in parts {
+            links.extend(pairs);
+            ties += t;
+            surroundings_only += s;
         }
     }
+    (links, ties, surroundings_only)
 }
 
 /// Everything the assessment stage produced, in structure order.

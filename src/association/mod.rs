@@ -505,6 +505,84 @@ impl SpatialIndex {
         }
         out
     }
+
+    /// [`Self::associate`] into `out` (cleared first) with `cands` as scratch space: the same
+    /// links and tie, without allocating once the buffers have grown (the run associates every
+    /// kept point this way; `associate` stays the plain statement of the rules).
+    pub fn associate_into(
+        &self,
+        x: f64,
+        y: f64,
+        cands: &mut Vec<(usize, f64, bool)>,
+        out: &mut PointLinks,
+    ) {
+        let here = AABB::from_point([x, y]);
+        let reach = self.surroundings_m.max(self.buffer_m);
+        cands.clear();
+        cands.extend(
+            self.tree
+                .locate_in_envelope_intersecting(&here)
+                .chain(self.halo.locate_in_envelope_intersecting(&here))
+                .map(|g| {
+                    let (inside, d) = inside_and_distance(&self.footprints[g.data], x, y);
+                    (g.data, d, inside)
+                })
+                .filter(|(_, d, _)| *d <= reach),
+        );
+        // Structure indices are distinct: the order is that of `associate`'s sort.
+        cands.sort_unstable_by_key(|c| c.0);
+        out.links.clear();
+        out.tie = false;
+        let mut insiders = cands.iter().filter(|c| c.2);
+        let owner = match (insiders.next(), insiders.next()) {
+            (Some(_), Some(_)) => {
+                out.tie = true;
+                None
+            }
+            (Some(one), None) => Some(one.0),
+            _ => {
+                // The two nearest within the buffer in (distance, index) order: the first two
+                // of `associate`'s stable sort by distance after the sort by index.
+                let before = |a: &(usize, f64, bool), b: &(usize, f64, bool)| {
+                    a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)).is_lt()
+                };
+                let mut first: Option<&(usize, f64, bool)> = None;
+                let mut second: Option<&(usize, f64, bool)> = None;
+                for c in cands.iter().filter(|c| c.1 <= self.buffer_m) {
+                    if first.is_none_or(|f| before(c, f)) {
+                        second = first;
+                        first = Some(c);
+                    } else if second.is_none_or(|s| before(c, s)) {
+                        second = Some(c);
+                    }
+                }
+                match (first, second) {
+                    (None, _) => None,
+                    (Some(a), None) => Some(a.0),
+                    (Some(a), Some(b)) if (b.1 - a.1).abs() <= TIE_TOLERANCE_M => {
+                        out.tie = true;
+                        None
+                    }
+                    (Some(a), Some(_)) => Some(a.0),
+                }
+            }
+        };
+        for &(s, d, inside) in cands.iter().filter(|c| c.0 < self.own) {
+            let role = if Some(s) == owner {
+                Role::Structure
+            } else if d <= self.surroundings_m && !(out.tie && d <= self.buffer_m) {
+                Role::Surroundings
+            } else {
+                continue;
+            };
+            out.links.push(Link {
+                structure: s,
+                role,
+                distance_m: d,
+                inside,
+            });
+        }
+    }
 }
 
 /// The bounding box of `f` grown by `reach` on every side, as `[min corner, max corner]`; None
@@ -695,7 +773,8 @@ mod tests {
         assert!(index().associate(500.0, 500.0).links.is_empty());
     }
 
-    /// `summarise` (allocation-free, used by the reader) gives exactly `associate().summary()`,
+    /// `summarise` (allocation-free, used by the reader) gives exactly `associate().summary()`
+    /// (and `associate_into` exactly `associate()`),
     /// and `None` exactly when the point is out of reach: overlapping footprints (inside ties),
     /// equidistant buffer points (buffer ties), points near more structures than its stack holds.
     #[test]
@@ -725,6 +804,7 @@ mod tests {
         }
         let idx = SpatialIndex::new(fps, 5.0, 50.0);
         let (mut ties, mut owned, mut unreached, mut crowded) = (0, 0, 0, 0);
+        let (mut cands, mut into) = (Vec::new(), PointLinks::default());
         for i in -240..=480 {
             for j in -240..=480 {
                 let (x, y) = (i as f64 * 0.5, j as f64 * 0.5);
@@ -736,6 +816,8 @@ mod tests {
                 }
                 let want = idx.associate(x, y);
                 assert_eq!(got, Some(want.summary()), "({x}, {y})");
+                idx.associate_into(x, y, &mut cands, &mut into);
+                assert_eq!(into, want, "associate_into ({x}, {y})");
                 ties += usize::from(want.tie);
                 owned += usize::from(want.links.iter().any(|k| k.role == Role::Structure));
                 crowded += usize::from(want.links.len() > 24);
@@ -810,6 +892,7 @@ mod tests {
         let with_all = SpatialIndex::with_halo(own.clone(), others.clone(), buffer, ring);
         let own_only = SpatialIndex::new(own, buffer, ring);
         let (mut kept, mut ties, mut contested) = (0, 0, 0);
+        let (mut cands, mut into) = (Vec::new(), PointLinks::default());
         for i in -60..=260 {
             for j in -60..=180 {
                 let (x, y) = (i as f64 * 0.5, j as f64 * 0.5);
@@ -820,6 +903,8 @@ mod tests {
                 kept += 1;
                 let links = shard.associate(x, y);
                 assert_eq!(got, links.summary(), "({x}, {y})");
+                shard.associate_into(x, y, &mut cands, &mut into);
+                assert_eq!(into, links, "associate_into ({x}, {y})");
                 let single = full.associate(x, y);
                 let want: Vec<Link> = single
                     .links
