@@ -611,6 +611,9 @@ pub fn associate(p: &Prepared) -> Result<Association> {
     })
 }
 
+/// A piece's (structure, global point index) link pairs, tied points and surroundings-only points.
+type PieceLinks = (Vec<(u32, u32)>, usize, usize);
+
 /// Every kept point's links as (structure, global point index) pairs, in dataset then point
 /// order, with the counts of tied points and of points only in surroundings rings: worked out in
 /// parallel in pieces, each with its own scratch buffers, so that nothing is allocated per point.
@@ -646,7 +649,7 @@ fn link_pairs(
     let (mut links, mut ties, mut surroundings_only) = (Vec::new(), 0, 0);
     // A few pieces per worker at a time: the pieces' pairs are held only until appended.
     for wave in pieces.chunks(8 * rayon::current_num_threads().max(1)) {
-        let parts: Vec<(Vec<(u32, u32)>, usize, usize)> = wave.par_iter().map(one_piece).collect();
+        let parts: Vec<PieceLinks> = wave.par_iter().map(one_piece).collect();
         for (pairs, t, s) in parts {
             links.extend(pairs);
             ties += t;
