@@ -375,45 +375,7 @@ impl SpatialIndex {
             }
         }
         let cands = &cands[..n];
-        // (distance, structure) order: nearest first, lower index first among equals — the order
-        // `associate` gets from its sort by index then stable sort by distance.
-        let before = |a: &(usize, f64, bool), b: &(usize, f64, bool)| {
-            a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)).is_lt()
-        };
-        // Rules 1–3: the owner, or a tie.
-        let mut tie = false;
-        let mut insiders = cands.iter().filter(|c| c.2);
-        let owner = match (insiders.next(), insiders.next()) {
-            (Some(_), Some(_)) => {
-                tie = true;
-                None
-            }
-            (Some(one), None) => Some(one.0),
-            _ => {
-                let mut first: Option<&(usize, f64, bool)> = None;
-                let mut second: Option<&(usize, f64, bool)> = None;
-                for c in cands.iter().filter(|c| c.1 <= self.buffer_m) {
-                    if first.is_none_or(|f| before(c, f)) {
-                        second = first;
-                        first = Some(c);
-                    } else if second.is_none_or(|s| before(c, s)) {
-                        second = Some(c);
-                    }
-                }
-                match (first, second) {
-                    (None, _) => None,
-                    (Some(a), None) => Some(a.0),
-                    (Some(a), Some(b)) => {
-                        if (b.1 - a.1).abs() <= TIE_TOLERANCE_M {
-                            tie = true;
-                            None
-                        } else {
-                            Some(a.0)
-                        }
-                    }
-                }
-            }
-        };
+        let (owner, tie) = owner_or_tie(cands, self.buffer_m);
         // Rule 4: surroundings links, the nearest of them, and how many.
         let mut rings = 0usize;
         let mut nearest: Option<&(usize, f64, bool)> = None;
@@ -423,7 +385,7 @@ impl SpatialIndex {
                 owned = Some(c);
             } else if c.1 <= self.surroundings_m && !(tie && c.1 <= self.buffer_m) {
                 rings += 1;
-                if nearest.is_none_or(|m| before(c, m)) {
+                if nearest.is_none_or(|m| nearer(c, m)) {
                     nearest = Some(c);
                 }
             }
@@ -532,41 +494,8 @@ impl SpatialIndex {
         // Structure indices are distinct: the order is that of `associate`'s sort.
         cands.sort_unstable_by_key(|c| c.0);
         out.links.clear();
-        out.tie = false;
-        let mut insiders = cands.iter().filter(|c| c.2);
-        let owner = match (insiders.next(), insiders.next()) {
-            (Some(_), Some(_)) => {
-                out.tie = true;
-                None
-            }
-            (Some(one), None) => Some(one.0),
-            _ => {
-                // The two nearest within the buffer in (distance, index) order: the first two
-                // of `associate`'s stable sort by distance after the sort by index.
-                let before = |a: &(usize, f64, bool), b: &(usize, f64, bool)| {
-                    a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)).is_lt()
-                };
-                let mut first: Option<&(usize, f64, bool)> = None;
-                let mut second: Option<&(usize, f64, bool)> = None;
-                for c in cands.iter().filter(|c| c.1 <= self.buffer_m) {
-                    if first.is_none_or(|f| before(c, f)) {
-                        second = first;
-                        first = Some(c);
-                    } else if second.is_none_or(|s| before(c, s)) {
-                        second = Some(c);
-                    }
-                }
-                match (first, second) {
-                    (None, _) => None,
-                    (Some(a), None) => Some(a.0),
-                    (Some(a), Some(b)) if (b.1 - a.1).abs() <= TIE_TOLERANCE_M => {
-                        out.tie = true;
-                        None
-                    }
-                    (Some(a), Some(_)) => Some(a.0),
-                }
-            }
-        };
+        let (owner, tie) = owner_or_tie(cands, self.buffer_m);
+        out.tie = tie;
         for &(s, d, inside) in cands.iter().filter(|c| c.0 < self.own) {
             let role = if Some(s) == owner {
                 Role::Structure
@@ -582,6 +511,40 @@ impl SpatialIndex {
                 inside,
             });
         }
+    }
+}
+
+/// (distance, structure) order of candidates `(structure, distance, inside)`: nearest first, the
+/// lower index first among equals — the order `associate` gets from its sort by index then stable
+/// sort by distance.
+fn nearer(a: &(usize, f64, bool), b: &(usize, f64, bool)) -> bool {
+    a.1.total_cmp(&b.1).then(a.0.cmp(&b.0)).is_lt()
+}
+
+/// Rules 1–3 (module doc) over the candidates `(structure, distance, inside)` within reach: the
+/// owner, or a tie (`(None, true)`); the two nearest within `buffer_m` found in one pass in
+/// [`nearer`] order. What `associate` finds with its sorts.
+fn owner_or_tie(cands: &[(usize, f64, bool)], buffer_m: f64) -> (Option<usize>, bool) {
+    let mut insiders = cands.iter().filter(|c| c.2);
+    match (insiders.next(), insiders.next()) {
+        (Some(_), Some(_)) => return (None, true),
+        (Some(one), None) => return (Some(one.0), false),
+        _ => {}
+    }
+    let mut first: Option<&(usize, f64, bool)> = None;
+    let mut second: Option<&(usize, f64, bool)> = None;
+    for c in cands.iter().filter(|c| c.1 <= buffer_m) {
+        if first.is_none_or(|f| nearer(c, f)) {
+            second = first;
+            first = Some(c);
+        } else if second.is_none_or(|s| nearer(c, s)) {
+            second = Some(c);
+        }
+    }
+    match (first, second) {
+        (None, _) => (None, false),
+        (Some(a), Some(b)) if (b.1 - a.1).abs() <= TIE_TOLERANCE_M => (None, true),
+        (Some(a), _) => (Some(a.0), false),
     }
 }
 

@@ -700,7 +700,7 @@ fn stash(arena: &mut Vec<u8>, bytes: &[u8]) -> std::ops::Range<usize> {
 /// Rows a layer's `INSERT` statement takes at once: SQLite runs a statement's fixed work (and
 /// the `AUTOINCREMENT` bookkeeping of `sqlite_sequence`) once per statement, not per row. 64 rows
 /// of a layer's columns stay far below SQLite's limit of 32 766 bound values.
-const ROWS_PER_INSERT: usize = 64;
+pub const ROWS_PER_INSERT: usize = 64;
 
 /// `INSERT INTO table VALUES (?, …), …` for `rows` rows of a layer with `fields` attribute
 /// columns (plus fid and geometry).
