@@ -736,19 +736,24 @@ mod tests {
         assert!(index().associate(500.0, 500.0).links.is_empty());
     }
 
+    /// Uniform draws in [0, 1) from a 64-bit linear congruential generator (Knuth's MMIX
+    /// constants), reproducible from `seed`.
+    fn uniform(mut seed: u64) -> impl FnMut() -> f64 {
+        move || {
+            seed = seed
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            (seed >> 11) as f64 / (1u64 << 53) as f64
+        }
+    }
+
     /// `summarise` (allocation-free, used by the reader) gives exactly `associate().summary()`
     /// (and `associate_into` exactly `associate()`),
     /// and `None` exactly when the point is out of reach: overlapping footprints (inside ties),
     /// equidistant buffer points (buffer ties), points near more structures than its stack holds.
     #[test]
     fn summarise_equals_the_summary_of_the_full_links() {
-        let mut seed = 12345u64;
-        let mut next = || {
-            seed = seed
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            (seed >> 11) as f64 / (1u64 << 53) as f64
-        };
+        let mut next = uniform(12345);
         let mut fps = Vec::new();
         // A regular row (exact buffer ties halfway between neighbours) ...
         for i in 0..6 {
@@ -795,13 +800,7 @@ mod tests {
     /// other structures give, and `summarise` stays `associate().summary()`.
     #[test]
     fn a_shard_with_its_halo_associates_as_the_single_run() {
-        let mut seed = 99u64;
-        let mut next = || {
-            seed = seed
-                .wrapping_mul(6364136223846793005)
-                .wrapping_add(1442695040888963407);
-            (seed >> 11) as f64 / (1u64 << 53) as f64
-        };
+        let mut next = uniform(99);
         // Terraced rows (touching and 6 m apart: buffer ties and contested owners) and a random
         // cluster with overlaps; far structures that no halo needs.
         let mut fps = Vec::new();
