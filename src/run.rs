@@ -88,22 +88,11 @@ impl Analysis {
         }
     }
 
-    /// The rows of points.csv, built on the fly: one per point within reach — its owning
-    /// structure, or for a point only in surroundings rings the nearest structure whose ring
-    /// holds it (rows per (point, structure) link would grow with the ring size times the point
-    /// count) — plus one `tie` row per point equidistant between two structures' buffers.
-    pub fn point_rows<'a>(
-        &'a self,
-        to_wgs: &'a crate::coords::Transformer,
-    ) -> impl Iterator<Item = PointRow<'a>> + 'a {
-        self.inputs
-            .datasets
-            .iter()
-            .enumerate()
-            .flat_map(move |(di, d)| self.point_rows_of(di, 0..d.len(), to_wgs))
-    }
-
-    /// The rows of points.csv for the points `range` of dataset `di` (see [`Self::point_rows`]).
+    /// The rows of points.csv for the points `range` of dataset `di`, built on the fly: one per
+    /// point within reach — its owning structure, or for a point only in surroundings rings the
+    /// nearest structure whose ring holds it (rows per (point, structure) link would grow with the
+    /// ring size times the point count) — plus one `tie` row per point equidistant between two
+    /// structures' buffers.
     pub fn point_rows_of<'a>(
         &'a self,
         di: usize,
@@ -611,7 +600,8 @@ pub fn associate(p: &Prepared) -> Result<Association> {
     })
 }
 
-/// A piece's (structure, global point index) link pairs, tied points and surroundings-only points.
+/// (structure, global point index) link pairs, the number of tied points and of points only in
+/// surroundings rings (of a piece, or of the whole run).
 type PieceLinks = (Vec<(u32, u32)>, usize, usize);
 
 /// Every kept point's links as (structure, global point index) pairs, in dataset then point
@@ -620,7 +610,7 @@ type PieceLinks = (Vec<(u32, u32)>, usize, usize);
 fn link_pairs(
     datasets: &[ingest::Dataset],
     index: &crate::association::SpatialIndex,
-) -> (Vec<(u32, u32)>, usize, usize) {
+) -> PieceLinks {
     const PIECE: usize = 1 << 12;
     let mut pieces = Vec::new();
     let mut g = 0usize;
