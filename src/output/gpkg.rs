@@ -702,11 +702,9 @@ fn stash(arena: &mut Vec<u8>, bytes: &[u8]) -> std::ops::Range<usize> {
 /// of a layer's columns stay far below SQLite's limit of 32 766 bound values.
 pub const ROWS_PER_INSERT: usize = 64;
 
-/// `INSERT INTO table VALUES (?, …), …` for `rows` rows of a layer with `fields` attribute
-/// columns (plus fid and geometry).
+/// The layer's `INSERT` of `rows` rows: fid, geometry and `fields` attribute columns.
 fn insert_sql(table: &str, fields: usize, rows: usize) -> String {
-    let row = format!("({})", vec!["?"; fields + 2].join(","));
-    format!("INSERT INTO {table} VALUES {}", vec![row; rows].join(","))
+    rtree_pack::insert_sql(table, fields + 2, rows)
 }
 
 fn rtree_name(table: &str) -> String {

@@ -239,18 +239,20 @@ pub fn write(conn: &Connection, rtree: &str, entries: Vec<Entry>) -> Result<()> 
     Ok(())
 }
 
+/// `INSERT INTO table VALUES (?, …), …`: `rows` rows of `columns` parameters each (`table`
+/// quoted by the caller). One statement for many rows runs SQLite's per-statement work once.
+pub fn insert_sql(table: &str, columns: usize, rows: usize) -> String {
+    let row = format!("({})", vec!["?"; columns].join(","));
+    format!("INSERT INTO {table} VALUES {}", vec![row; rows].join(","))
+}
+
 /// Pairs an `INSERT` of [`insert_pairs`] takes at once (SQLite's per-statement work once per
 /// this many rows; 1 000 bound values, far below SQLite's limit of 32 766).
 const PAIRS_PER_INSERT: usize = 500;
 
 /// Insert `(a, b)` rows into the two-column table `table` (quoted), in the given order.
 fn insert_pairs(conn: &Connection, table: &str, pairs: &[(i64, i64)]) -> Result<()> {
-    let sql = |rows: usize| {
-        format!(
-            "INSERT INTO {table} VALUES {}",
-            vec!["(?,?)"; rows].join(",")
-        )
-    };
+    let sql = |rows: usize| insert_sql(table, 2, rows);
     let values = |c: &[(i64, i64)]| {
         rusqlite::params_from_iter(c.iter().flat_map(|&(a, b)| [a, b]).collect::<Vec<i64>>())
     };
