@@ -660,14 +660,12 @@ fn reduce_point<T>(
         }
         let rings = ties.iter().map(|&i| views[i].rings).sum();
         let ring = nearest(&mut (0..views.len()).filter(|&i| views[i].role != "tie"));
-        // Rows are in key order: the tie row comes before any structure's row.
-        let mut keep: Vec<usize> = std::iter::once(first_tie).chain(ring).collect();
-        keep.sort_unstable();
-        let mut rows: Vec<Option<(PointKey, T)>> = group.into_iter().map(Some).collect();
-        return keep
+        // Kept in key order: the tie row, then the ring's row.
+        return group
             .into_iter()
-            .filter_map(|i| rows[i].take())
-            .map(|mut row| {
+            .enumerate()
+            .filter(|(i, _)| *i == first_tie || Some(*i) == ring)
+            .map(|(_, mut row)| {
                 set_rings(&mut row.1, rings);
                 row
             })
