@@ -91,18 +91,17 @@ impl parquet::file::reader::ChunkReader for PosFile {
     }
 
     fn get_bytes(&self, start: u64, length: usize) -> parquet::errors::Result<bytes::Bytes> {
+        use std::io::Read;
         let mut buf = vec![0u8; length];
-        let mut done = 0;
-        while done < length {
-            match read_at(&self.0, &mut buf[done..], start + done as u64)? {
-                0 => {
-                    return Err(parquet::errors::ParquetError::EOF(format!(
-                        "expected {length} bytes at offset {start}, read only {done}"
-                    )));
-                }
-                n => done += n,
-            }
-        }
+        let mut r = PosRead {
+            file: self.0.clone(),
+            at: start,
+        };
+        r.read_exact(&mut buf).map_err(|e| {
+            parquet::errors::ParquetError::EOF(format!(
+                "cannot read {length} bytes at offset {start}: {e}"
+            ))
+        })?;
         Ok(buf.into())
     }
 }
