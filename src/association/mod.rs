@@ -747,13 +747,24 @@ mod tests {
         }
     }
 
+    /// `n` random rectangles of 3–15 m sides in a 60 × 40 m area north of y = 20 m (overlaps
+    /// among them), reproducible from `seed`.
+    fn cluster(n: usize, seed: u64) -> Vec<MultiPolygon<f64>> {
+        let mut next = uniform(seed);
+        (0..n)
+            .map(|_| {
+                let (x0, y0) = (next() * 60.0, 20.0 + next() * 40.0);
+                rect(x0, y0, x0 + 3.0 + next() * 12.0, y0 + 3.0 + next() * 12.0)
+            })
+            .collect()
+    }
+
     /// `summarise` (allocation-free, used by the reader) gives exactly `associate().summary()`
     /// (and `associate_into` exactly `associate()`),
     /// and `None` exactly when the point is out of reach: overlapping footprints (inside ties),
     /// equidistant buffer points (buffer ties), points near more structures than its stack holds.
     #[test]
     fn summarise_equals_the_summary_of_the_full_links() {
-        let mut next = uniform(12345);
         let mut fps = Vec::new();
         // A regular row (exact buffer ties halfway between neighbours) ...
         for i in 0..6 {
@@ -761,15 +772,7 @@ mod tests {
             fps.push(rect(x0, 0.0, x0 + 10.0, 10.0));
         }
         // ... and a random cluster with overlaps, dense enough for > 24 candidates.
-        for _ in 0..40 {
-            let (x0, y0) = (next() * 60.0, 20.0 + next() * 40.0);
-            fps.push(rect(
-                x0,
-                y0,
-                x0 + 3.0 + next() * 12.0,
-                y0 + 3.0 + next() * 12.0,
-            ));
-        }
+        fps.extend(cluster(40, 12345));
         let idx = SpatialIndex::new(fps, 5.0, 50.0);
         let (mut ties, mut owned, mut unreached, mut crowded) = (0, 0, 0, 0);
         let (mut cands, mut into) = (Vec::new(), PointLinks::default());
@@ -800,7 +803,6 @@ mod tests {
     /// other structures give, and `summarise` stays `associate().summary()`.
     #[test]
     fn a_shard_with_its_halo_associates_as_the_single_run() {
-        let mut next = uniform(99);
         // Terraced rows (touching and 6 m apart: buffer ties and contested owners) and a random
         // cluster with overlaps; far structures that no halo needs.
         let mut fps = Vec::new();
@@ -808,15 +810,7 @@ mod tests {
             let x0 = i as f64 * if i < 4 { 10.0 } else { 16.0 };
             fps.push(rect(x0, 0.0, x0 + 10.0, 10.0));
         }
-        for _ in 0..20 {
-            let (x0, y0) = (next() * 60.0, 20.0 + next() * 40.0);
-            fps.push(rect(
-                x0,
-                y0,
-                x0 + 3.0 + next() * 12.0,
-                y0 + 3.0 + next() * 12.0,
-            ));
-        }
+        fps.extend(cluster(20, 99));
         fps.push(rect(2000.0, 2000.0, 2010.0, 2010.0));
         let (buffer, ring) = (5.0, 20.0);
         let full = SpatialIndex::new(fps.clone(), buffer, ring);
