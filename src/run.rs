@@ -514,13 +514,7 @@ fn load_shard(
     let (buffer, ring) = (pf.assessment.buffer_m, pf.assessment.surroundings_m);
     let own_fps: Vec<_> = structures.iter().map(|s| s.footprint.clone()).collect();
     let other_fps: Vec<_> = others.into_iter().map(|(s, _)| s.footprint).collect();
-    let near = crate::association::SpatialIndex::halo_of(&own_fps, &other_fps, buffer, ring);
-    let halo = other_fps
-        .into_iter()
-        .zip(near)
-        .filter_map(|(f, near)| near.then_some(f))
-        .collect();
-    let index = crate::association::SpatialIndex::with_halo(own_fps, halo, buffer, ring);
+    let index = crate::association::SpatialIndex::with_halo(own_fps, other_fps, buffer, ring);
     Ok((structures, analysis_crs, index))
 }
 
